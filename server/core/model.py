@@ -1,0 +1,187 @@
+"""Frozen dataclasses that carry a project into the numerical core.
+
+The model file (``server/model_file.py``) is validated with pydantic and converted to these
+by ``server/to_core.py``; nothing in ``server/core`` sees JSON, the database or the web.
+
+Conventions
+-----------
+- Units are indexed 0..U-1 top to bottom; the last is the basal unit (no thickness).
+- Boundary ``k`` (0..U-2) is the base of unit ``k``; its depth is the sum of the thicknesses
+  of units 0..k. ``B = U - 1`` boundaries in all.
+- Coordinates are metres in the project CRS (or a local grid); depths are metres below
+  ground level, positive down.
+- Polygons are tuples of closed rings (each an ``(n, 2)`` float array); a point is inside when
+  it is inside an odd number of rings (even-odd rule), which covers holes and multipolygons.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+SHAPES = ("pert", "triangular", "uniform")
+CORRELATION_MODELS = ("exponential", "gaussian", "spherical")
+
+
+@dataclass(frozen=True)
+class ThicknessRange:
+    """Thickness prior of one unit: min, most likely and max (m) and a shape name."""
+
+    min_m: float
+    likely_m: float
+    max_m: float
+    shape: str = "pert"
+
+
+@dataclass(frozen=True)
+class Correlation:
+    """Correlation model of a unit's thickness with its practical range (m)."""
+
+    model: str
+    range_m: float
+
+
+@dataclass(frozen=True, eq=False)
+class Polygon:
+    """Polygon as a tuple of closed rings, each an ``(n, 2)`` array; even-odd rule."""
+
+    rings: tuple[np.ndarray, ...]
+
+
+@dataclass(frozen=True)
+class Unit:
+    name: str
+    thickness: ThicknessRange | None  # None on the basal unit only
+    correlation: Correlation | None  # None on the basal unit only
+    description: str = ""
+
+
+@dataclass(frozen=True)
+class Zone:
+    """An area where some units take other thickness ranges; first containing zone wins."""
+
+    name: str
+    polygon: Polygon
+    thickness: dict[int, ThicknessRange]  # unit index -> range override
+
+
+@dataclass(frozen=True)
+class BoundaryOfInterest:
+    boundary: int  # index k: the base of unit k
+    weight: float
+    tolerance_m: float
+
+
+@dataclass(frozen=True)
+class DepthBound:
+    """A hard bound on a boundary's depth, everywhere or inside a polygon."""
+
+    boundary: int
+    min_depth_m: float
+    max_depth_m: float
+    polygon: Polygon | None = None
+
+
+@dataclass(frozen=True)
+class GroundModel:
+    units: tuple[Unit, ...]
+    zones: tuple[Zone, ...] = ()
+    boundaries_of_interest: tuple[BoundaryOfInterest, ...] = ()
+    bounds: tuple[DepthBound, ...] = ()
+
+    @property
+    def n_boundaries(self) -> int:
+        return len(self.units) - 1
+
+    @property
+    def boundary_names(self) -> tuple[str, ...]:
+        return tuple(u.name for u in self.units[:-1])
+
+
+@dataclass(frozen=True)
+class Method:
+    """An investigation method: costs, production, reach and what it resolves.
+
+    ``precision_m`` has one entry per boundary: the std (m) of the depth it reads for that
+    boundary, or ``nan`` where it does not resolve the boundary.
+    ``refusal_unit`` is the index of the shallowest unit it cannot penetrate, or None.
+    """
+
+    id: str
+    name: str
+    kind: str
+    mobilisation: float
+    per_location: float
+    per_metre: float
+    metres_per_day: float
+    max_depth_m: float
+    embedment_m: float
+    refusal_unit: int | None
+    precision_m: tuple[float, ...]
+
+    def resolves(self, boundary: int) -> bool:
+        return bool(np.isfinite(self.precision_m[boundary]))
+
+
+@dataclass(frozen=True)
+class ExistingProbe:
+    """An earlier probe with the boundary depths it recorded (boundary index -> depth m)."""
+
+    id: str
+    method: str
+    x: float
+    y: float
+    final_depth_m: float
+    observed: dict[int, float]
+    precision_m: dict[int, float]  # boundary index -> std (m) of each recorded depth
+
+
+@dataclass(frozen=True)
+class PlannedProbe:
+    id: str
+    method: str
+    x: float
+    y: float
+    depth_m: float | None = None  # planned depth override; None = planned by the model
+
+
+@dataclass(frozen=True)
+class Layout:
+    name: str
+    probes: tuple[PlannedProbe, ...]
+
+
+@dataclass(frozen=True)
+class AreaOfInterest:
+    name: str
+    polygon: Polygon
+    weight: float
+
+
+@dataclass(frozen=True)
+class Site:
+    outline: Polygon
+    grid_spacing_m: float
+    areas_of_interest: tuple[AreaOfInterest, ...] = ()
+    exclusions: tuple[Polygon, ...] = ()
+    exclusion_names: tuple[str, ...] = ()
+
+
+@dataclass(frozen=True)
+class Project:
+    name: str
+    crs: str | None
+    currency: str
+    site: Site
+    ground: GroundModel
+    methods: dict[str, Method]
+    existing: tuple[ExistingProbe, ...] = ()
+    layouts: tuple[Layout, ...] = field(default_factory=tuple)
+
+    @property
+    def origin(self) -> tuple[float, float]:
+        """Centre of the site's bounding box; the core works relative to it for precision."""
+        pts = np.vstack(self.site.outline.rings)
+        lo, hi = pts.min(axis=0), pts.max(axis=0)
+        return float((lo[0] + hi[0]) / 2), float((lo[1] + hi[1]) / 2)
