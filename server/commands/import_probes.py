@@ -1,11 +1,239 @@
-"""`probewise import_probes`: not written yet."""
+"""`probewise import-probes MODEL FILE [-o OUT]`: earlier probes from CSV, XLSX or AGS4.
+
+Tables follow docs/import-formats.md (wide: one row per probe; long: one row per layer).
+AGS4 files need every geology code mapped to a project unit (``--mapping CODE=UNIT``, or
+``CODE=-`` to leave it out) and every location type to a method (``--method-for TYPE=METHOD``
+or ``--default-method``). Without ``-o``, with ``--preview``, or while codes are unmapped, it
+prints what it read (and the mapping table) and writes nothing. Probes outside the site are
+refused, with their ids, unless ``--leave-outside`` leaves them out; locations whose layers
+break the model's rules are refused unless ``--skip-problems`` leaves them out.
+"""
+
+from __future__ import annotations
 
 import argparse
+import json
+from pathlib import Path
+
+from server.commands.export import parse_pairs, read_model, write_model
+from server.errors import InputError
+
+FORMAT_SUFFIXES = {".csv": "csv", ".txt": "csv", ".xlsx": "xlsx", ".ags": "ags4"}
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    pass
+    parser.add_argument("model", metavar="MODEL", help="model file (JSON, schema probewise/1)")
+    parser.add_argument("file", metavar="FILE", help="probes: .csv, .xlsx or AGS4 .ags")
+    parser.add_argument("--format", choices=("csv", "xlsx", "ags4"), help="default: extension")
+    parser.add_argument(
+        "--mapping",
+        action="append",
+        metavar="CODE=UNIT",
+        help="geology code (AGS4, or the unit column of a long table) -> project unit; "
+        "CODE=- leaves it out; repeat",
+    )
+    parser.add_argument(
+        "--mapping-file", metavar="JSON", help='mapping as a JSON object {"CODE": "UNIT"}'
+    )
+    parser.add_argument(
+        "--method-for", action="append", metavar="TYPE=METHOD", help="AGS4 LOCA_TYPE -> method id"
+    )
+    parser.add_argument("--default-method", metavar="ID", help="method for rows/types not given")
+    parser.add_argument(
+        "--replace", action="store_true", help="replace the existing probes instead of adding"
+    )
+    parser.add_argument(
+        "--leave-outside", action="store_true", help="leave out (and list) probes outside the site"
+    )
+    parser.add_argument(
+        "--skip-problems",
+        action="store_true",
+        help="leave out (and list) rows or locations that break the model's rules",
+    )
+    parser.add_argument("--preview", action="store_true", help="show what would be read; write nothing")
+    parser.add_argument("-o", "--output", metavar="OUT", help="updated model file to write")
+
+
+def _read_bytes(path: str) -> bytes:
+    p = Path(path)
+    try:
+        return p.read_bytes()
+    except FileNotFoundError:
+        raise InputError("FILE", f"file not found: {path}") from None
+    except IsADirectoryError:
+        raise InputError("FILE", f"is a folder, not a file: {path}") from None
+    except OSError as exc:
+        raise InputError("FILE", f"cannot read {path}: {exc.strerror or exc}") from None
+
+
+def _mapping(args: argparse.Namespace) -> dict[str, str]:
+    mapping: dict[str, str] = {}
+    if args.mapping_file:
+        try:
+            loaded = json.loads(Path(args.mapping_file).read_text(encoding="utf-8-sig"))
+        except FileNotFoundError:
+            raise InputError("--mapping-file", f"file not found: {args.mapping_file}") from None
+        except (OSError, ValueError) as exc:
+            raise InputError("--mapping-file", f"is not readable JSON ({exc})") from None
+        if not isinstance(loaded, dict) or not all(
+            isinstance(k, str) and isinstance(v, str | None) for k, v in loaded.items()
+        ):
+            raise InputError("--mapping-file", 'must be a JSON object {"CODE": "UNIT", ...}')
+        mapping.update({k: v or "" for k, v in loaded.items()})
+    mapping.update(parse_pairs(args.mapping, "--mapping"))
+    return mapping
+
+
+def _table(headers: list[str], rows: list[list[str]]) -> str:
+    from server.commands.evaluate import format_table
+
+    return format_table(headers, rows)
+
+
+def _show_list(title: str, items: list[str]) -> None:
+    if items:
+        print(f"{title} ({len(items)}):")
+        for item in items:
+            print(f"  {item}")
+
+
+def _probe_rows(probes: list[dict], outside: list[str]) -> list[list[str]]:
+    rows = []
+    for p in probes:
+        observed = ", ".join(f"{u} {d:g}" for u, d in p["observed"].items()) or "-"
+        where = "outside the site" if p["id"] in outside else ""
+        rows.append(
+            [p["id"], p["method"], f"{p['x']:.2f}", f"{p['y']:.2f}", f"{p['final_depth_m']:g}",
+             observed, where]
+        )
+    return rows
+
+
+def _print_probes(probes: list[dict], outside: list[str]) -> None:
+    headers = ["id", "method", "x", "y", "final m", "observed bases (m)", ""]
+    print(_table(headers, _probe_rows(probes, outside)))
 
 
 def run(args: argparse.Namespace) -> int:
-    raise SystemExit("probewise: this command is not available yet")
+    fmt = args.format or FORMAT_SUFFIXES.get(Path(args.file).suffix.lower())
+    if fmt is None:
+        raise InputError("--format", f"cannot tell the format of {args.file!r}; give --format")
+    model = read_model(args.model)
+    data = _read_bytes(args.file)
+    name = Path(args.file).name
+    mapping = _mapping(args)
+    if fmt == "ags4":
+        probes, outside, problems, notes = _from_ags4(args, model, data, name, mapping)
+        if probes is None:
+            return 0
+    else:
+        probes, outside, problems, notes = _from_table(args, model, data, name, mapping)
+        if probes is None:
+            return 0
+
+    if problems and not args.skip_problems:
+        raise InputError(
+            name,
+            f"{len(problems)} row(s) or location(s) break the model's rules (listed above); "
+            "fix them or leave them out (--skip-problems)",
+        )
+    if outside and not args.leave_outside:
+        from server.probes_in import outside_error
+
+        raise outside_error(name, outside)
+    importable = [p for p in probes if p["id"] not in set(outside)]
+    if not importable:
+        raise InputError(name, "no probe left to import")
+
+    from server.probes_in import merge_existing
+
+    updated = merge_existing(model, importable, mode="replace" if args.replace else "append")
+    write_model(updated, args.output)
+    print(
+        f"imported {len(importable)} probe(s) from {name} into {args.output} "
+        f"({'replacing' if args.replace else 'added to'} the existing probes)"
+    )
+    if outside:
+        print(f"left out, outside the site: {', '.join(outside)}")
+    if problems:
+        print(f"left out, breaking the model's rules: {len(problems)} (listed above)")
+    for note in notes:
+        print(f"note: {note}")
+    return 0
+
+
+def _from_table(args, model, data, name, mapping):
+    from server.probes_in import preview_csv
+
+    preview = preview_csv(
+        data,
+        model,
+        filename=name if args.format != "xlsx" else str(Path(name).with_suffix(".xlsx")),
+        method_default=args.default_method,
+        mapping=mapping or None,
+    )
+    show = args.preview or not args.output
+    if show or preview.problems:
+        print(f"{name}: {preview.format} layout, {preview.rows} data row(s)")
+        print(_table(["column", "read as"], [[c, w] for c, w in preview.columns.items()]))
+        print()
+        if preview.probes:
+            _print_probes(preview.probes, preview.outside_site)
+        _show_list("problems", preview.problems)
+        _show_list("notes", preview.notes)
+    if show:
+        if not args.output and not args.preview:
+            print("nothing written: give -o OUT to import")
+        return None, None, None, None
+    if not preview.probes:
+        raise InputError(name, "has no probe rows to import")
+    return preview.probes, preview.outside_site, preview.problems, preview.notes
+
+
+def _from_ags4(args, model, data, name, mapping):
+    from server.probes_in import ags4_legends, ags4_to_existing, read_ags4
+
+    holes = read_ags4(data, filename=name)
+    legends = ags4_legends(holes)
+    units = {u["name"].lower(): u["name"] for u in model["units"]}
+    unmapped = [c for c, _d, _n in legends if c not in mapping]
+    show = args.preview or not args.output or unmapped
+    if show:
+        print(f"{name}: {len(holes.holes)} location(s), {sum(n for *_x, n in legends)} layer(s)")
+        rows = []
+        for code, desc, count in legends:
+            target = mapping.get(code)
+            shown = "?" if target is None else (
+                "(left out)" if target.strip() in ("", "-") else units.get(target.lower(), target)
+            )
+            rows.append([code, desc[:60], str(count), shown])
+        print(_table(["code", "description", "layers", "unit"], rows))
+        types = sorted({h.type or "(blank)" for h in holes.holes})
+        print(f"location types: {', '.join(types)}")
+        print(f"project units: {', '.join(u['name'] for u in model['units'])}")
+        _show_list("problems", list(holes.problems))
+    if unmapped and not args.preview:
+        raise InputError(
+            "--mapping",
+            f"no unit for geology code(s) {', '.join(unmapped)}; give CODE=UNIT for each "
+            "(or CODE=- to leave it out)",
+        )
+    result = None
+    if not unmapped:
+        result = ags4_to_existing(
+            holes,
+            model,
+            mapping,
+            method_by_type=parse_pairs(args.method_for, "--method-for"),
+            default_method=args.default_method,
+        )
+        if show or result.problems:
+            print()
+            _print_probes(result.probes, result.outside_site)
+            _show_list("problems", result.problems)
+            _show_list("notes", result.notes)
+    if show:
+        if not args.output and not args.preview:
+            print("nothing written: give -o OUT to import")
+        return None, None, None, None
+    return result.probes, result.outside_site, result.problems, result.notes

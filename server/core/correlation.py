@@ -1,0 +1,48 @@
+"""Correlation of a unit's thickness with horizontal distance, practical-range convention.
+
+The practical range r is the distance at which the correlation falls to about 5%
+(DESIGN.md "Probability model"):
+
+- exponential: exp(-3 h / r);
+- gaussian: exp(-3 h^2 / r^2);
+- spherical: 1 - 1.5 (h/r) + 0.5 (h/r)^3 for h < r, else 0.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+
+def correlate(model: str, h_m: np.ndarray, range_m: float) -> np.ndarray:
+    """Correlation at horizontal distances ``h_m`` (any shape) for a model and practical range.
+
+    Parameters
+    ----------
+    model : {"exponential", "gaussian", "spherical"}
+    h_m : array of float, any shape
+        Distances (m), non-negative.
+    range_m : float
+        Practical range r > 0 (m).
+
+    Returns
+    -------
+    array of float, shape of ``h_m``, in [0, 1] with 1 at h = 0.
+    """
+    h = np.asarray(h_m, dtype=float) / float(range_m)
+    if model == "exponential":
+        return np.exp(-3.0 * h)
+    if model == "gaussian":
+        return np.exp(-3.0 * h * h)
+    if model == "spherical":
+        hc = np.minimum(h, 1.0)
+        return np.where(h < 1.0, 1.0 - 1.5 * hc + 0.5 * hc**3, 0.0)
+    raise ValueError(f"unknown correlation model {model!r}")
+
+
+def pairwise_distance_m(xy_a: np.ndarray, xy_b: np.ndarray) -> np.ndarray:
+    """Horizontal distances between two point sets: ``(na, 2), (nb, 2) -> (na, nb)`` (m)."""
+    xy_a = np.asarray(xy_a, dtype=float).reshape(-1, 2)
+    xy_b = np.asarray(xy_b, dtype=float).reshape(-1, 2)
+    dx = xy_a[:, None, 0] - xy_b[None, :, 0]
+    dy = xy_a[:, None, 1] - xy_b[None, :, 1]
+    return np.hypot(dx, dy)

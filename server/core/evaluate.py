@@ -1,0 +1,242 @@
+"""The numbers reported for each layout (DESIGN.md "Numbers reported for a layout").
+
+Over the evaluation grid (``server.core.grid``), with the existing probes as the baseline and a
+layout's probes added:
+
+- per boundary: weighted mean posterior std (m); weighted mean P5-P95 width (m); uncertain
+  volume (m3 = sum of cell area x width, unweighted); confident fraction (weighted share of
+  cells whose width is at most twice the boundary's tolerance; None for a boundary that is not
+  of interest, which has no tolerance);
+- information gain (bits): sum over boundaries of interest of weight x weighted mean of
+  0.5 log2(var_baseline / var_layout), variances floored at ``VAR_FLOOR_M2``;
+- cost: mobilisation once per method used + per location + per metre x planned depth;
+  metres; duration (days) = metres / metres per day summed per method; gain per unit cost;
+  Pareto efficiency among the layouts.
+
+The baseline is solved once on the grid and reused by every layout (block Cholesky update).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+import numpy as np
+
+from server.core.analysis import ProjectAnalysis
+from server.core.grid import EvaluationGrid, evaluation_grid
+from server.core.model import GroundModel, Layout, Method, Project
+from server.core.planning import ProbePlan
+from server.core.posterior import Prediction
+
+VAR_FLOOR_M2 = 1e-12  # keeps the log-ratio of an exactly known depth finite
+
+
+@dataclass(frozen=True)
+class BoundaryMetrics:
+    std_mean_m: float
+    width90_mean_m: float
+    uncertain_volume_m3: float
+    confident_fraction: float | None
+
+
+@dataclass(frozen=True)
+class MethodTotals:
+    """One method's share of a layout."""
+
+    count: int
+    metres: float
+    cost: float
+    duration_days: float
+
+
+@dataclass(frozen=True, eq=False)
+class GridPosterior:
+    """Per-cell posterior of every boundary on the evaluation grid; arrays ``(n, B)`` in m."""
+
+    mean_m: np.ndarray
+    std_m: np.ndarray
+    p05_m: np.ndarray
+    p95_m: np.ndarray
+
+    @property
+    def width90_m(self) -> np.ndarray:
+        return self.p95_m - self.p05_m
+
+
+@dataclass(frozen=True, eq=False)
+class StateResult:
+    """Metrics of one state (baseline or layout) and its per-cell arrays for maps.
+
+    ``boundaries`` maps boundary (unit) name -> BoundaryMetrics, top down.
+    """
+
+    boundaries: dict[str, BoundaryMetrics]
+    grid: GridPosterior
+
+
+@dataclass(frozen=True, eq=False)
+class LayoutResult:
+    """Everything reported for one layout."""
+
+    name: str
+    boundaries: dict[str, BoundaryMetrics]
+    grid: GridPosterior
+    plans: tuple[ProbePlan, ...]
+    cost: float
+    metres: float
+    duration_days: float
+    information_gain_bits: float
+    gain_per_cost: float | None
+    pareto: bool
+    by_method: dict[str, MethodTotals]
+
+
+@dataclass(frozen=True, eq=False)
+class Evaluation:
+    """Baseline and every layout of a project, on one evaluation grid."""
+
+    grid: EvaluationGrid
+    boundary_names: tuple[str, ...]
+    baseline: StateResult
+    layouts: tuple[LayoutResult, ...]
+
+
+def weighted_mean(values: np.ndarray, weight: np.ndarray) -> np.ndarray:
+    """Weighted mean over cells (axis 0): ``(n, ...) , (n,) -> (...)``."""
+    return np.tensordot(weight, values, axes=(0, 0)) / weight.sum()
+
+
+def grid_posterior(analysis: ProjectAnalysis, pred: Prediction) -> GridPosterior:
+    """Mean, std and truncated P5/P95 of a prediction on the grid."""
+    _, _, p05, p95 = analysis.quantiles(pred)
+    return GridPosterior(pred.mean_m, pred.std_m, p05, p95)
+
+
+def summarise(ground: GroundModel, grid: EvaluationGrid, post: GridPosterior):
+    """Per-boundary metrics of a grid posterior: dict boundary name -> BoundaryMetrics."""
+    w = grid.weight
+    width = post.width90_m
+    std_mean = weighted_mean(post.std_m, w)
+    width_mean = weighted_mean(width, w)
+    volume = grid.cell_area_m2 * width.sum(axis=0)
+    tolerance = {b.boundary: b.tolerance_m for b in ground.boundaries_of_interest}
+    out = {}
+    for k, name in enumerate(ground.boundary_names):
+        confident = None
+        if k in tolerance:
+            confident = float(weighted_mean(width[:, k] <= 2.0 * tolerance[k], w))
+        out[name] = BoundaryMetrics(
+            float(std_mean[k]), float(width_mean[k]), float(volume[k]), confident
+        )
+    return out
+
+
+def information_gain_bits(
+    ground: GroundModel, grid: EvaluationGrid, var_base_m2: np.ndarray, var_m2: np.ndarray
+) -> float:
+    """Sum over boundaries of interest of weight x weighted mean of 0.5 log2(var_base / var).
+
+    Parameters
+    ----------
+    var_base_m2, var_m2 : (n, B) float
+        Baseline and layout posterior variances on the grid.
+    """
+    ratio = np.log2(np.maximum(var_base_m2, VAR_FLOOR_M2) / np.maximum(var_m2, VAR_FLOOR_M2))
+    per_boundary = 0.5 * weighted_mean(ratio, grid.weight)
+    return float(sum(b.weight * per_boundary[b.boundary] for b in ground.boundaries_of_interest))
+
+
+def layout_cost(
+    plans: Sequence[ProbePlan], methods: dict[str, Method]
+) -> tuple[float, float, float, dict[str, MethodTotals]]:
+    """Cost, metres and duration (days) of planned probes, and the split per method.
+
+    Mobilisation is paid once per method used; per location and per metre for every probe.
+    """
+    by_method: dict[str, MethodTotals] = {}
+    for method_id in dict.fromkeys(p.probe.method for p in plans):
+        mine = [p for p in plans if p.probe.method == method_id]
+        m = methods[method_id]
+        metres = float(sum(p.depth_m for p in mine))
+        cost = m.mobilisation + m.per_location * len(mine) + m.per_metre * metres
+        by_method[method_id] = MethodTotals(len(mine), metres, cost, metres / m.metres_per_day)
+    totals = by_method.values()
+    return (
+        float(sum(t.cost for t in totals)),
+        float(sum(t.metres for t in totals)),
+        float(sum(t.duration_days for t in totals)),
+        by_method,
+    )
+
+
+def pareto_flags(costs: Sequence[float], gains: Sequence[float]) -> list[bool]:
+    """Pareto efficiency: no other option has at least the gain for at most the cost, with
+    one of the two strictly better."""
+    flags = []
+    for i, (ci, gi) in enumerate(zip(costs, gains, strict=True)):
+        dominated = any(
+            gj >= gi and cj <= ci and (gj > gi or cj < ci)
+            for j, (cj, gj) in enumerate(zip(costs, gains, strict=True))
+            if j != i
+        )
+        flags.append(not dominated)
+    return flags
+
+
+class GridEvaluator:
+    """Evaluates layouts on a project's grid, reusing the baseline solve for every layout."""
+
+    def __init__(self, project: Project, analysis: ProjectAnalysis | None = None):
+        self.analysis = analysis if analysis is not None else ProjectAnalysis(project)
+        self.ground = project.ground
+        self.grid = evaluation_grid(project.site, self.analysis.origin)
+        self.base_pred = self.analysis.baseline.predict(self.grid.xy)
+        base_post = grid_posterior(self.analysis, self.base_pred)
+        self.baseline = StateResult(summarise(self.ground, self.grid, base_post), base_post)
+
+    def evaluate_layout(self, layout: Layout) -> LayoutResult:
+        """Metrics of one layout (``pareto`` is provisional: True; set it over all options)."""
+        state, plans = self.analysis.layout_state(layout)
+        pred = state.predict(self.grid.xy, base=self.base_pred)
+        post = grid_posterior(self.analysis, pred)
+        gain = information_gain_bits(self.ground, self.grid, self.base_pred.var_m2, pred.var_m2)
+        cost, metres, days, by_method = layout_cost(plans, self.analysis.methods)
+        return LayoutResult(
+            name=layout.name,
+            boundaries=summarise(self.ground, self.grid, post),
+            grid=post,
+            plans=plans,
+            cost=cost,
+            metres=metres,
+            duration_days=days,
+            information_gain_bits=gain,
+            gain_per_cost=gain / cost if cost > 0 else None,
+            pareto=True,
+            by_method=by_method,
+        )
+
+
+def with_pareto(results: Sequence[LayoutResult]) -> tuple[LayoutResult, ...]:
+    """The results with their ``pareto`` flags set against each other."""
+    flags = pareto_flags([r.cost for r in results], [r.information_gain_bits for r in results])
+    out = []
+    for r, flag in zip(results, flags, strict=True):
+        fields = dict(r.__dict__)
+        fields["pareto"] = flag
+        out.append(LayoutResult(**fields))
+    return tuple(out)
+
+
+def evaluate_project(project: Project, layouts: Sequence[Layout] | None = None) -> Evaluation:
+    """Baseline metrics and the results of every layout (default: the project's layouts).
+
+    Returns
+    -------
+    Evaluation
+        Per-layout metrics, plans, costs, Pareto flags, and per-cell arrays for maps.
+    """
+    evaluator = GridEvaluator(project)
+    chosen = project.layouts if layouts is None else layouts
+    results = with_pareto([evaluator.evaluate_layout(layout) for layout in chosen])
+    return Evaluation(evaluator.grid, project.ground.boundary_names, evaluator.baseline, results)

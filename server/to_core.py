@@ -1,0 +1,185 @@
+"""Validated model-file dict ("probewise/1") -> ``server.core.model.Project``.
+
+Names become indices: unit ``i`` is the i-th unit top down and boundary ``k`` is the base of
+unit ``k``. The dict is assumed valid (``server.model_file.validate_model``); optional fields
+may be absent. Coordinates stay in project coordinates; the core localises them itself.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from server.core.analysis import reading_precision_m
+from server.core.model import (
+    AreaOfInterest,
+    BoundaryOfInterest,
+    Correlation,
+    DepthBound,
+    ExistingProbe,
+    GroundModel,
+    Layout,
+    Method,
+    PlannedProbe,
+    Polygon,
+    Project,
+    Site,
+    ThicknessRange,
+    Unit,
+    Zone,
+)
+
+
+def core_polygon(geometry: dict) -> Polygon:
+    """GeoJSON Polygon or MultiPolygon -> Polygon of all rings of all parts (even-odd)."""
+    kind = geometry.get("type")
+    coords = geometry.get("coordinates") or []
+    parts = [coords] if kind == "Polygon" else list(coords) if kind == "MultiPolygon" else None
+    if parts is None:
+        raise ValueError(f"not a Polygon or MultiPolygon: {kind!r}")
+    rings = tuple(
+        np.asarray([pt[:2] for pt in ring], dtype=float).reshape(-1, 2)
+        for part in parts
+        for ring in part
+        if len(ring) >= 3
+    )
+    return Polygon(rings)
+
+
+def core_range(spec: dict) -> ThicknessRange:
+    return ThicknessRange(
+        float(spec["min"]), float(spec["likely"]), float(spec["max"]), spec.get("shape", "pert")
+    )
+
+
+def _unit_index(model: dict) -> dict[str, int]:
+    return {u["name"]: i for i, u in enumerate(model["units"])}
+
+
+def core_ground(model: dict) -> GroundModel:
+    """Units, zones, boundaries of interest and bounds of a model dict."""
+    index = _unit_index(model)
+    units = []
+    for u in model["units"]:
+        thick = u.get("thickness_m")
+        corr = u.get("correlation")
+        units.append(
+            Unit(
+                name=u["name"],
+                thickness=core_range(thick) if thick else None,
+                correlation=Correlation(corr["model"], float(corr["range_m"])) if corr else None,
+                description=u.get("description", "") or "",
+            )
+        )
+    zones = tuple(
+        Zone(
+            name=z["name"],
+            polygon=core_polygon(z["geometry"]),
+            thickness={
+                index[name]: core_range(spec["thickness_m"])
+                for name, spec in (z.get("units") or {}).items()
+            },
+        )
+        for z in model.get("zones") or []
+    )
+    interest = tuple(
+        BoundaryOfInterest(index[b["base_of"]], float(b["weight"]), float(b["tolerance_m"]))
+        for b in model.get("boundaries_of_interest") or []
+    )
+    bounds = tuple(
+        DepthBound(
+            index[b["base_of"]],
+            float(b["min_depth_m"]),
+            float(b["max_depth_m"]),
+            core_polygon(b["geometry"]) if b.get("geometry") else None,
+        )
+        for b in model.get("bounds") or []
+    )
+    return GroundModel(tuple(units), zones, interest, bounds)
+
+
+def core_method(spec: dict, model: dict) -> Method:
+    """One method: refusal = shallowest unit it cannot penetrate; precision per boundary."""
+    index = _unit_index(model)
+    n_bnd = len(model["units"]) - 1
+    blocked = [index[name] for name in spec.get("cannot_penetrate") or []]
+    precision = [math.nan] * n_bnd
+    for name, tau in (spec.get("precision_m") or {}).items():
+        if index[name] < n_bnd:
+            precision[index[name]] = float(tau)
+    cost = spec["cost"]
+    return Method(
+        id=spec["id"],
+        name=spec.get("name", spec["id"]),
+        kind=spec.get("kind", "other"),
+        mobilisation=float(cost.get("mobilisation", 0.0)),
+        per_location=float(cost.get("per_location", 0.0)),
+        per_metre=float(cost.get("per_metre", 0.0)),
+        metres_per_day=float(spec["metres_per_day"]),
+        max_depth_m=float(spec["max_depth_m"]),
+        embedment_m=float(spec.get("embedment_m", 0.0)),
+        refusal_unit=min(blocked) if blocked else None,
+        precision_m=tuple(precision),
+    )
+
+
+def core_existing(spec: dict, model: dict, methods: dict[str, Method]) -> ExistingProbe:
+    """An existing probe; the precision of each recorded depth is resolved here:
+    the probe's override, else its method's, else the method's coarsest, else 0.5 m."""
+    index = _unit_index(model)
+    observed = {index[name]: float(d) for name, d in (spec.get("observed") or {}).items()}
+    override = {index[name]: float(t) for name, t in (spec.get("precision_m") or {}).items()}
+    method = methods.get(spec["method"])
+    precision = {k: reading_precision_m(method, k, override.get(k)) for k in observed}
+    return ExistingProbe(
+        id=str(spec["id"]),
+        method=spec["method"],
+        x=float(spec["x"]),
+        y=float(spec["y"]),
+        final_depth_m=float(spec.get("final_depth_m") or max(observed.values(), default=0.0)),
+        observed=observed,
+        precision_m=precision,
+    )
+
+
+def core_layout(spec: dict) -> Layout:
+    """A model-file layout -> Layout (``depth_m`` None when not given)."""
+    return Layout(
+        name=spec["name"],
+        probes=tuple(
+            PlannedProbe(
+                id=str(p["id"]),
+                method=p["method"],
+                x=float(p["x"]),
+                y=float(p["y"]),
+                depth_m=None if p.get("depth_m") is None else float(p["depth_m"]),
+            )
+            for p in spec.get("probes") or []
+        ),
+    )
+
+
+def to_core(model: dict) -> Project:
+    """The whole validated model dict as a core Project."""
+    methods = {m["id"]: core_method(m, model) for m in model.get("methods") or []}
+    site = Site(
+        outline=core_polygon(model["site"]),
+        grid_spacing_m=float(model["grid_spacing_m"]),
+        areas_of_interest=tuple(
+            AreaOfInterest(a["name"], core_polygon(a["geometry"]), float(a["weight"]))
+            for a in model.get("areas_of_interest") or []
+        ),
+        exclusions=tuple(core_polygon(e["geometry"]) for e in model.get("exclusions") or []),
+        exclusion_names=tuple(e["name"] for e in model.get("exclusions") or []),
+    )
+    return Project(
+        name=model.get("name", ""),
+        crs=model.get("crs"),
+        currency=model.get("currency") or "",
+        site=site,
+        ground=core_ground(model),
+        methods=methods,
+        existing=tuple(core_existing(e, model, methods) for e in model.get("existing") or []),
+        layouts=tuple(core_layout(lay) for lay in model.get("layouts") or []),
+    )

@@ -1,0 +1,150 @@
+"""One error form per audience: JSON for /api, a flash message for htmx swaps, a page otherwise.
+
+API bodies are ``{"detail": "message"}`` or, for bad input, ``{"detail": [{"field", "problem"}]}``
+(FastAPI's own validation errors are rewritten into that form too).
+"""
+
+from __future__ import annotations
+
+import logging
+
+from fastapi import FastAPI, Request
+from fastapi.exceptions import RequestValidationError
+from starlette.exceptions import HTTPException as StarletteHTTPException
+from starlette.responses import JSONResponse, Response
+
+from server.errors import InputError
+from server.store.errors import (
+    JobNotFound,
+    NothingToUndo,
+    ProjectDeleted,
+    ProjectNotFound,
+    RevisionNotFound,
+    StaleRevision,
+    StoreError,
+)
+from server.web.templating import is_htmx, render
+
+log = logging.getLogger(__name__)
+
+# Store refusals and their HTTP status (the most specific class wins: MRO lookup).
+STORE_STATUS: dict[type[StoreError], int] = {
+    StoreError: 400,
+    ProjectNotFound: 404,
+    ProjectDeleted: 409,
+    RevisionNotFound: 404,
+    JobNotFound: 404,
+    StaleRevision: 409,
+    NothingToUndo: 409,
+}
+
+STATUS_TITLES = {
+    400: "Bad request",
+    403: "Refused",
+    404: "Not found",
+    405: "Method not allowed",
+    409: "Conflict",
+    413: "Too large",
+    422: "Invalid input",
+    500: "Something went wrong",
+}
+
+
+def wants_json(request: Request) -> bool:
+    return request.url.path.startswith("/api")
+
+
+def field_path(loc: tuple | list) -> str:
+    """('body', 'model', 'units', 0, 'name') -> 'model.units[0].name' (the body prefix goes)."""
+    parts = list(loc)
+    if parts and parts[0] == "body":
+        parts = parts[1:]
+    text = ""
+    for part in parts:
+        if isinstance(part, int):
+            text += f"[{part}]"
+        else:
+            text += f".{part}" if text else str(part)
+    return text or "body"
+
+
+def field_problems_of(exc: RequestValidationError) -> list[dict[str, str]]:
+    problems = []
+    for error in exc.errors():
+        loc = error.get("loc", ())
+        problem = str(error.get("msg", "invalid value"))
+        if error.get("type") == "json_invalid":
+            # loc ends in the character offset; name the body, say where
+            detail = (error.get("ctx") or {}).get("error", "")
+            offset = loc[-1] if loc and isinstance(loc[-1], int) else None
+            problem = "not valid JSON" + (f": {detail}" if detail else "")
+            if offset is not None:
+                problem += f" (at character {offset})"
+            loc = ("body",)
+        elif error.get("type") == "missing" and len(loc) <= 1:
+            problem = "a JSON body is required"
+        problems.append({"field": field_path(loc), "problem": problem})
+    return problems
+
+
+def error_response(
+    request: Request,
+    status: int,
+    message: str,
+    *,
+    field_problems: list[dict[str, str]] | None = None,
+) -> Response:
+    """The error in the form its requester reads."""
+    if wants_json(request):
+        body = {"detail": field_problems if field_problems is not None else message}
+        return JSONResponse(body, status_code=status)
+    context = {"status": status, "title": STATUS_TITLES.get(status, "Error"), "message": message}
+    if is_htmx(request):
+        # Whatever the request targeted, show the message in the page's flash area.
+        return render(
+            request,
+            "_flash.html",
+            {"flash": {"kind": "error", "text": message}},
+            status_code=status,
+            headers={"HX-Retarget": "#flash", "HX-Reswap": "outerHTML"},
+        )
+    return render(request, "error.html", context, status_code=status)
+
+
+def install_error_handlers(app: FastAPI) -> None:
+    @app.exception_handler(StarletteHTTPException)
+    async def on_http_error(request: Request, exc: StarletteHTTPException) -> Response:
+        message = exc.detail if isinstance(exc.detail, str) else STATUS_TITLES.get(exc.status_code)
+        if exc.status_code == 404 and message == "Not Found":
+            message = f"nothing at {request.url.path}"
+        response = error_response(request, exc.status_code, str(message or "error"))
+        for key, value in (exc.headers or {}).items():
+            response.headers[key] = value
+        return response
+
+    @app.exception_handler(RequestValidationError)
+    async def on_validation_error(request: Request, exc: RequestValidationError) -> Response:
+        problems = field_problems_of(exc)
+        status = 422 if wants_json(request) else 400
+        text = "; ".join(f"{p['field']}: {p['problem']}" for p in problems)
+        return error_response(request, status, text, field_problems=problems)
+
+    @app.exception_handler(InputError)
+    async def on_input_error(request: Request, exc: InputError) -> Response:
+        status = 422 if wants_json(request) else 400
+        problems = [{"field": exc.field, "problem": exc.problem}]
+        return error_response(request, status, str(exc), field_problems=problems)
+
+    @app.exception_handler(StoreError)
+    async def on_store_error(request: Request, exc: StoreError) -> Response:
+        status = next(
+            (STORE_STATUS[cls] for cls in type(exc).__mro__ if cls in STORE_STATUS), 400
+        )
+        return error_response(request, status, exc.message)
+
+    @app.exception_handler(Exception)
+    async def on_unexpected(request: Request, exc: Exception) -> Response:
+        log.exception("unexpected error on %s %s", request.method, request.url.path)
+        return error_response(
+            request, 500, "the server met an unexpected error; its log has the details"
+        )

@@ -1,0 +1,244 @@
+"""JSON API over the stored projects (listed in the OpenAPI schema at /openapi.json).
+
+Errors: ``{"detail": "message"}``, or ``{"detail": [{"field", "problem"}]}`` for bad input
+(422). A stale ``expected_revision`` gives 409 and changes nothing.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+import sqlite_utils
+from fastapi import APIRouter, Body, Depends, Query
+from pydantic import BaseModel, Field
+from starlette.responses import Response
+
+from server.errors import InputError
+from server.store import (
+    create_project,
+    delete_project,
+    duplicate_project,
+    get_project,
+    list_projects,
+    list_revisions,
+    restore_project,
+    save_project,
+    undo,
+)
+from server.web.deps import get_db
+from server.web.downloads import model_file_response
+
+router = APIRouter(prefix="/api", tags=["projects"])
+
+
+class ErrorOut(BaseModel):
+    detail: str
+
+
+class FieldProblem(BaseModel):
+    field: str = Field(description="where: a dotted/indexed path such as units[0].name")
+    problem: str
+
+
+class FieldErrorsOut(BaseModel):
+    detail: list[FieldProblem]
+
+
+class ProjectSummaryOut(BaseModel):
+    id: int
+    name: str
+    revision: int
+    updated_at: str
+    deleted: bool
+    n_layouts: int
+
+
+class ProjectOut(BaseModel):
+    id: int
+    name: str
+    revision: int
+    updated_at: str
+    model: dict[str, Any] = Field(description='the model file ("probewise/1")')
+
+
+class RevisionStateOut(BaseModel):
+    id: int
+    revision: int
+
+
+class DeletedStateOut(BaseModel):
+    id: int
+    deleted: bool
+
+
+class RevisionOut(BaseModel):
+    number: int
+    created_at: str
+    message: str
+    name: str
+
+
+class ProjectUpdateIn(BaseModel):
+    model: dict[str, Any] = Field(description="the whole model file after the edit")
+    expected_revision: int = Field(description="the revision the edit was made on")
+
+
+class UndoIn(BaseModel):
+    expected_revision: int | None = None
+
+
+NOT_FOUND = {404: {"model": ErrorOut, "description": "no such project"}}
+INVALID = {422: {"model": FieldErrorsOut, "description": "invalid input, field by field"}}
+STALE = {409: {"model": ErrorOut, "description": "the project changed since that revision"}}
+
+
+def prefixed(error: InputError, prefix: str) -> InputError:
+    field = f"{prefix}.{error.field}" if error.field else prefix
+    return InputError(field, error.problem)
+
+
+def as_text(value: Any) -> str:
+    return value.isoformat() if hasattr(value, "isoformat") else str(value or "")
+
+
+def project_out(db: sqlite_utils.Database, project_id: int) -> ProjectOut:
+    project = get_project(db, project_id)
+    return ProjectOut(
+        id=project.id,
+        name=project.name,
+        revision=project.revision,
+        updated_at=as_text(project.updated_at),
+        model=project.model,
+    )
+
+
+def state_out(db: sqlite_utils.Database, project_id: int) -> RevisionStateOut:
+    return RevisionStateOut(id=project_id, revision=get_project(db, project_id).revision)
+
+
+@router.get("/projects", response_model=list[ProjectSummaryOut])
+def api_list_projects(
+    include_deleted: bool = Query(False, description="also list projects in the bin"),
+    db: sqlite_utils.Database = Depends(get_db),
+) -> list[ProjectSummaryOut]:
+    return [
+        ProjectSummaryOut(
+            id=p.id,
+            name=p.name,
+            revision=p.revision,
+            updated_at=as_text(p.updated_at),
+            deleted=bool(p.deleted),
+            n_layouts=p.n_layouts,
+        )
+        for p in list_projects(db, include_deleted=include_deleted)
+    ]
+
+
+@router.post(
+    "/projects", status_code=201, response_model=RevisionStateOut, responses={**INVALID}
+)
+def api_create_project(
+    model: dict[str, Any] = Body(description='a model file ("probewise/1")'),
+    db: sqlite_utils.Database = Depends(get_db),
+) -> RevisionStateOut:
+    project_id = create_project(db, model)  # validates: InputError -> 422
+    return state_out(db, project_id)
+
+
+@router.get("/projects/{project_id}", response_model=ProjectOut, responses={**NOT_FOUND})
+def api_get_project(project_id: int, db: sqlite_utils.Database = Depends(get_db)) -> ProjectOut:
+    return project_out(db, project_id)
+
+
+@router.put(
+    "/projects/{project_id}",
+    response_model=RevisionStateOut,
+    responses={**NOT_FOUND, **STALE, **INVALID},
+)
+def api_save_project(
+    project_id: int, body: ProjectUpdateIn, db: sqlite_utils.Database = Depends(get_db)
+) -> RevisionStateOut:
+    get_project(db, project_id)  # 404 before 422 when the project does not exist
+    try:
+        revision = save_project(
+            db,
+            project_id,
+            body.model,
+            expected_revision=body.expected_revision,
+            message="Saved through the API",
+        )
+    except InputError as error:
+        raise prefixed(error, "model") from None
+    return RevisionStateOut(id=project_id, revision=revision)
+
+
+@router.post(
+    "/projects/{project_id}/undo",
+    response_model=RevisionStateOut,
+    responses={**NOT_FOUND, **STALE},
+)
+def api_undo(
+    project_id: int,
+    body: UndoIn | None = None,
+    db: sqlite_utils.Database = Depends(get_db),
+) -> RevisionStateOut:
+    expected = body.expected_revision if body else None
+    revision = undo(db, project_id, expected_revision=expected)
+    return RevisionStateOut(id=project_id, revision=revision)
+
+
+@router.post(
+    "/projects/{project_id}/duplicate",
+    status_code=201,
+    response_model=RevisionStateOut,
+    responses={**NOT_FOUND},
+)
+def api_duplicate(project_id: int, db: sqlite_utils.Database = Depends(get_db)) -> Any:
+    return state_out(db, duplicate_project(db, project_id))
+
+
+@router.delete(
+    "/projects/{project_id}", response_model=DeletedStateOut, responses={**NOT_FOUND}
+)
+def api_delete(project_id: int, db: sqlite_utils.Database = Depends(get_db)) -> DeletedStateOut:
+    delete_project(db, project_id)
+    return DeletedStateOut(id=project_id, deleted=True)
+
+
+@router.post(
+    "/projects/{project_id}/restore", response_model=DeletedStateOut, responses={**NOT_FOUND}
+)
+def api_restore(
+    project_id: int, db: sqlite_utils.Database = Depends(get_db)
+) -> DeletedStateOut:
+    restore_project(db, project_id)
+    return DeletedStateOut(id=project_id, deleted=False)
+
+
+@router.get(
+    "/projects/{project_id}/export",
+    responses={
+        200: {"content": {"application/json": {}}, "description": "the model file"},
+        **NOT_FOUND,
+    },
+    response_class=Response,
+)
+def api_export(project_id: int, db: sqlite_utils.Database = Depends(get_db)) -> Response:
+    return model_file_response(db, project_id)
+
+
+@router.get(
+    "/projects/{project_id}/revisions",
+    response_model=list[RevisionOut],
+    responses={**NOT_FOUND},
+)
+def api_revisions(
+    project_id: int, db: sqlite_utils.Database = Depends(get_db)
+) -> list[RevisionOut]:
+    get_project(db, project_id)
+    return [
+        RevisionOut(
+            number=r.number, created_at=as_text(r.created_at), message=r.message, name=r.name
+        )
+        for r in list_revisions(db, project_id)
+    ]

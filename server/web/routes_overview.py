@@ -1,0 +1,110 @@
+"""A project's overview: the site drawn, the model summarised, the revision trail with undo.
+
+The page's main fragment is ``_overview.html`` (root ``#overview``); undo and restoring a
+revision swap it whole, so the drawing, the tables and the trail always agree.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+import sqlite_utils
+from fastapi import APIRouter, Depends, Form, Request
+from starlette.responses import RedirectResponse, Response
+
+from server.store import get_project, list_revisions, restore_revision, undo
+from server.store.errors import NothingToUndo, StaleRevision
+from server.web.deps import get_db
+from server.web.site_map import build_site_map
+from server.web.summary import boundary_rows, existing_by_method, layout_rows, zone_overrides
+from server.web.templating import is_htmx, render_page_or_fragment
+from server.web.workflow import nav_items
+
+router = APIRouter(include_in_schema=False)
+
+
+def overview_context(
+    db: sqlite_utils.Database, project_id: int, notice: dict | None = None
+) -> dict[str, Any]:
+    project = get_project(db, project_id)
+    model = project.model
+    revisions = sorted(list_revisions(db, project_id), key=lambda r: r.number, reverse=True)
+    methods = model.get("methods") or []
+    return {
+        "project": project,
+        "model": model,
+        "deleted": project.deleted,
+        "nav": nav_items(project_id, "overview"),
+        "site_map": build_site_map(model),
+        "units": model.get("units") or [],
+        "zone_overrides": zone_overrides(model),
+        "boundaries": boundary_rows(model),
+        "bounds": model.get("bounds") or [],
+        "methods": methods,
+        "method_names": {m["id"]: m.get("name", m["id"]) for m in methods},
+        "existing": model.get("existing") or [],
+        "existing_mix": existing_by_method(model),
+        "layouts": layout_rows(model),
+        "currency": model.get("currency") or "",
+        "revisions": revisions,
+        "notice": notice,
+    }
+
+
+def answer(
+    request: Request,
+    db: sqlite_utils.Database,
+    project_id: int,
+    *,
+    notice: dict | None = None,
+    status_code: int = 200,
+) -> Response:
+    if not is_htmx(request) and request.method == "POST" and status_code < 400:
+        return RedirectResponse(f"/projects/{project_id}", status_code=303)
+    return render_page_or_fragment(
+        request,
+        "overview.html",
+        "_overview.html",
+        overview_context(db, project_id, notice),
+        status_code=status_code,
+    )
+
+
+@router.get("/projects/{project_id}")
+def overview_page(
+    request: Request, project_id: int, db: sqlite_utils.Database = Depends(get_db)
+) -> Response:
+    return answer(request, db, project_id)
+
+
+@router.post("/projects/{project_id}/undo")
+def undo_last_change(
+    request: Request,
+    project_id: int,
+    expected_revision: int | None = Form(None),
+    db: sqlite_utils.Database = Depends(get_db),
+) -> Response:
+    try:
+        revision = undo(db, project_id, expected_revision=expected_revision)
+    except (StaleRevision, NothingToUndo) as exc:
+        notice = {"kind": "error", "text": f"Not undone: {exc.message}."}
+        return answer(request, db, project_id, notice=notice, status_code=409)
+    notice = {"kind": "ok", "text": f"Last change undone; now at revision {revision}."}
+    return answer(request, db, project_id, notice=notice)
+
+
+@router.post("/projects/{project_id}/revisions/{number}/restore")
+def restore_to_revision(
+    request: Request,
+    project_id: int,
+    number: int,
+    expected_revision: int | None = Form(None),
+    db: sqlite_utils.Database = Depends(get_db),
+) -> Response:
+    try:
+        revision = restore_revision(db, project_id, number, expected_revision=expected_revision)
+    except StaleRevision as exc:
+        notice = {"kind": "error", "text": f"Not restored: {exc.message}."}
+        return answer(request, db, project_id, notice=notice, status_code=409)
+    text = f"Revision {number} restored as revision {revision}; nothing after it was lost."
+    return answer(request, db, project_id, notice={"kind": "ok", "text": text})

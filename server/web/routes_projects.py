@@ -1,0 +1,141 @@
+"""The projects list: open, duplicate, export, delete and restore projects; import a model file.
+
+Every action answers an htmx request with the refreshed ``_projects.html`` fragment (and a
+notice), and a plain form post with a redirect back to the list.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+import sqlite_utils
+from fastapi import APIRouter, Depends, File, Request, UploadFile
+from starlette.responses import RedirectResponse, Response
+
+from server.errors import InputError
+from server.model_file import parse_model_text
+from server.store import (
+    create_project,
+    delete_project,
+    duplicate_project,
+    get_project,
+    list_projects,
+    restore_project,
+)
+from server.web.deps import get_db
+from server.web.downloads import model_file_response
+from server.web.templating import is_htmx, render_page_or_fragment
+
+router = APIRouter(include_in_schema=False)
+
+UPLOAD_FIELD = "model_file"
+
+
+def projects_context(db: sqlite_utils.Database, **extra: Any) -> dict[str, Any]:
+    everything = list_projects(db, include_deleted=True)
+    return {
+        "projects": [p for p in everything if not p.deleted],
+        "deleted_projects": [p for p in everything if p.deleted],
+        "notice": None,
+        "import_error": None,
+        **extra,
+    }
+
+
+def answer(
+    request: Request, db: sqlite_utils.Database, *, status_code: int = 200, **extra: Any
+) -> Response:
+    """The list page or its fragment; a plain successful form post is redirected back."""
+    if not is_htmx(request) and request.method == "POST" and status_code < 400:
+        return RedirectResponse("/", status_code=303)
+    return render_page_or_fragment(
+        request,
+        "projects.html",
+        "_projects.html",
+        projects_context(db, **extra),
+        status_code=status_code,
+    )
+
+
+def parse_model_upload(content: bytes) -> dict[str, Any]:
+    """Uploaded bytes -> a validated model; InputError names the field and the problem."""
+    if not content.strip():
+        raise InputError(UPLOAD_FIELD, "is empty")
+    try:
+        text = content.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        raise InputError(UPLOAD_FIELD, f"is not UTF-8 text (byte {exc.start})") from None
+    try:
+        return parse_model_text(text)
+    except InputError as error:
+        if error.field == "MODEL":  # the file as a whole: name the form field instead
+            raise InputError(UPLOAD_FIELD, error.problem) from None
+        raise
+
+
+@router.get("/")
+def projects_page(request: Request, db: sqlite_utils.Database = Depends(get_db)) -> Response:
+    return answer(request, db)
+
+
+@router.post("/projects/import")
+def import_project(
+    request: Request,
+    model_file: UploadFile | None = File(None),
+    db: sqlite_utils.Database = Depends(get_db),
+) -> Response:
+    if model_file is None or not model_file.filename:
+        error = InputError(UPLOAD_FIELD, "choose a model file (.json) to import")
+        return answer(request, db, status_code=400, import_error=error)
+    try:
+        model = parse_model_upload(model_file.file.read())
+    except InputError as error:
+        return answer(
+            request, db, status_code=400, import_error=error, upload_name=model_file.filename
+        )
+    project_id = create_project(db, model, message=f"Imported {model_file.filename}")
+    project = get_project(db, project_id)
+    notice = {
+        "kind": "ok",
+        "text": f"Imported \u201c{project.name}\u201d from {model_file.filename}.",
+        "project_id": project_id,
+    }
+    return answer(request, db, notice=notice)
+
+
+@router.post("/projects/{project_id}/duplicate")
+def duplicate(
+    request: Request, project_id: int, db: sqlite_utils.Database = Depends(get_db)
+) -> Response:
+    new_id = duplicate_project(db, project_id)
+    copy = get_project(db, new_id)
+    notice = {"kind": "ok", "text": f"Duplicated as \u201c{copy.name}\u201d.", "project_id": new_id}
+    return answer(request, db, notice=notice)
+
+
+@router.post("/projects/{project_id}/delete")
+def delete(
+    request: Request, project_id: int, db: sqlite_utils.Database = Depends(get_db)
+) -> Response:
+    name = get_project(db, project_id).name
+    delete_project(db, project_id)
+    notice = {
+        "kind": "ok",
+        "text": f"Deleted \u201c{name}\u201d. It stays under Recently deleted until restored.",
+    }
+    return answer(request, db, notice=notice)
+
+
+@router.post("/projects/{project_id}/restore")
+def restore(
+    request: Request, project_id: int, db: sqlite_utils.Database = Depends(get_db)
+) -> Response:
+    restore_project(db, project_id)
+    name = get_project(db, project_id).name
+    notice = {"kind": "ok", "text": f"Restored \u201c{name}\u201d.", "project_id": project_id}
+    return answer(request, db, notice=notice)
+
+
+@router.get("/projects/{project_id}/export")
+def export(project_id: int, db: sqlite_utils.Database = Depends(get_db)) -> Response:
+    return model_file_response(db, project_id)

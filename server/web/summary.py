@@ -1,0 +1,80 @@
+"""Small read-only views of a validated model for the overview page (no numerics beyond sums)."""
+
+from __future__ import annotations
+
+from collections import Counter
+from dataclasses import dataclass
+from typing import Any
+
+
+@dataclass(frozen=True)
+class BoundaryRow:
+    base_of: str
+    weight: float
+    tolerance_m: float
+    depth_min_m: float | None  # sum of the minimum thicknesses down to this boundary
+    depth_max_m: float | None  # sum of the maxima
+
+
+@dataclass(frozen=True)
+class LayoutRow:
+    name: str
+    n_probes: int
+    mix: str  # "BH ×2, CPT ×6"
+
+
+def depth_limits(model: dict[str, Any]) -> dict[str, tuple[float, float]]:
+    """Prior hard limits of each boundary (base of unit k): sums of minima and maxima."""
+    limits: dict[str, tuple[float, float]] = {}
+    low = high = 0.0
+    for unit in model.get("units") or []:
+        thickness = unit.get("thickness_m")
+        if not thickness:
+            break  # the basal unit has no base
+        low += float(thickness["min"])
+        high += float(thickness["max"])
+        limits[unit["name"]] = (low, high)
+    return limits
+
+
+def boundary_rows(model: dict[str, Any]) -> list[BoundaryRow]:
+    limits = depth_limits(model)
+    rows = []
+    for item in model.get("boundaries_of_interest") or []:
+        low, high = limits.get(item["base_of"], (None, None))
+        rows.append(
+            BoundaryRow(
+                base_of=item["base_of"],
+                weight=item.get("weight", 1),
+                tolerance_m=item.get("tolerance_m"),
+                depth_min_m=low,
+                depth_max_m=high,
+            )
+        )
+    return rows
+
+
+def zone_overrides(model: dict[str, Any]) -> list[dict[str, Any]]:
+    """One row per (zone, unit) whose thickness range the zone overrides."""
+    rows = []
+    for zone in model.get("zones") or []:
+        for unit_name, override in (zone.get("units") or {}).items():
+            thickness = (override or {}).get("thickness_m")
+            if thickness:
+                rows.append({"zone": zone["name"], "unit": unit_name, "thickness": thickness})
+    return rows
+
+
+def layout_rows(model: dict[str, Any]) -> list[LayoutRow]:
+    rows = []
+    for layout in model.get("layouts") or []:
+        probes = layout.get("probes") or []
+        counts = Counter(p["method"] for p in probes)
+        mix = ", ".join(f"{method} \u00d7{n}" for method, n in sorted(counts.items()))
+        rows.append(LayoutRow(name=layout["name"], n_probes=len(probes), mix=mix))
+    return rows
+
+
+def existing_by_method(model: dict[str, Any]) -> str:
+    counts = Counter(p["method"] for p in model.get("existing") or [])
+    return ", ".join(f"{method} \u00d7{n}" for method, n in sorted(counts.items()))

@@ -1,0 +1,142 @@
+"""Jinja2 environment (autoescaped), template filters and the render helpers every route uses.
+
+Templates live in templates/ at the repository top level. Fragments are named ``_thing.html``,
+have one root element whose id is their swap target, and are included by their page so the
+first load and an htmx swap produce the same markup.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping
+from datetime import datetime
+from pathlib import Path
+from typing import Any
+
+import jinja2
+from fastapi import Request
+from fastapi.templating import Jinja2Templates
+from starlette.responses import Response
+
+REPO_ROOT = Path(__file__).resolve().parents[2]
+TEMPLATES_DIR = REPO_ROOT / "templates"
+STATIC_DIR = REPO_ROOT / "static"
+
+CAUTION = (
+    "probewise supports, and does not replace, the judgement of a qualified geotechnical "
+    "professional. Local codes, standards and licensed practice govern. Clear buried services "
+    "and obtain permits before any intrusive work."
+)
+
+METHOD_KIND_LABELS = {
+    "borehole": "Borehole",
+    "cpt": "CPT",
+    "dmt": "DMT",
+    "trial_pit": "Trial pit",
+    "other": "Other",
+}
+
+
+def find_htmx_path(static_dir: Path = STATIC_DIR) -> str:
+    """URL path of the vendored htmx (its version is in the file name)."""
+    found = sorted((static_dir / "vendor").glob("htmx-*.min.js"))
+    return f"/static/vendor/{found[-1].name}" if found else ""
+
+
+def format_number(value: Any, digits: int = 2) -> str:
+    """A number with at most ``digits`` decimals and no trailing zeros; a dash when absent."""
+    if value is None or value == "":
+        return "\u2014"
+    try:
+        number = float(value)
+    except (TypeError, ValueError):
+        return str(value)
+    if not math.isfinite(number):
+        return str(number)
+    text = f"{number:,.{digits}f}"
+    if "." in text:
+        text = text.rstrip("0").rstrip(".")
+    return "0" if text == "-0" else text
+
+
+def format_money(value: Any) -> str:
+    """Amounts with thousands separators; pence only when there are any."""
+    if value is None or value == "":
+        return "\u2014"
+    number = float(value)
+    return f"{number:,.0f}" if number == round(number) else f"{number:,.2f}"
+
+
+def format_when(value: Any) -> str:
+    """An ISO timestamp as 'YYYY-MM-DD HH:MM' (UTC as stored)."""
+    if value is None or value == "":
+        return "\u2014"
+    if isinstance(value, datetime):
+        moment = value
+    else:
+        try:
+            moment = datetime.fromisoformat(str(value).replace("Z", "+00:00"))
+        except ValueError:
+            return str(value)
+    suffix = " UTC" if moment.utcoffset() is not None and not moment.utcoffset() else ""
+    return moment.strftime("%Y-%m-%d %H:%M") + suffix
+
+
+def kind_label(kind: str) -> str:
+    return METHOD_KIND_LABELS.get(kind, str(kind).replace("_", " ").capitalize())
+
+
+def build_environment(templates_dir: Path = TEMPLATES_DIR) -> jinja2.Environment:
+    env = jinja2.Environment(
+        loader=jinja2.FileSystemLoader(str(templates_dir)),
+        autoescape=True,  # every template, whatever its extension
+        undefined=jinja2.StrictUndefined,  # a typo in a template fails loudly in the tests
+        trim_blocks=True,
+        lstrip_blocks=True,
+    )
+    env.filters.update(
+        num=format_number, money=format_money, when=format_when, kind_label=kind_label
+    )
+    env.globals.update(caution=CAUTION, htmx_js=find_htmx_path())
+    return env
+
+
+templates = Jinja2Templates(env=build_environment())
+
+
+def is_htmx(request: Request) -> bool:
+    """An htmx request that wants a fragment (not a boosted page load)."""
+    headers = request.headers
+    return (
+        headers.get("hx-request") == "true"
+        and headers.get("hx-boosted") != "true"
+        and headers.get("hx-history-restore-request") != "true"
+    )
+
+
+def render(
+    request: Request,
+    name: str,
+    context: Mapping[str, Any] | None = None,
+    *,
+    status_code: int = 200,
+    headers: Mapping[str, str] | None = None,
+) -> Response:
+    """Render one template; pages and fragments vary on HX-Request for caches."""
+    merged_headers = {"Vary": "HX-Request", **(headers or {})}
+    return templates.TemplateResponse(
+        request, name, dict(context or {}), status_code=status_code, headers=merged_headers
+    )
+
+
+def render_page_or_fragment(
+    request: Request,
+    page: str,
+    fragment: str,
+    context: Mapping[str, Any] | None = None,
+    *,
+    status_code: int = 200,
+) -> Response:
+    """The fragment for an htmx swap, else the whole page (which includes the fragment)."""
+    name = fragment if is_htmx(request) else page
+    return render(request, name, context, status_code=status_code)

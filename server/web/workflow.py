@@ -1,0 +1,52 @@
+"""The project's workflow steps, in order: the one list the navigation bar is drawn from.
+
+To add a page, give its step a ``path`` (a URL template with ``{project_id}``) once the route
+exists. A step without a path shows in the bar as plain text, never as a link that could fail.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+
+@dataclass(frozen=True)
+class WorkflowStep:
+    key: str
+    label: str
+    path: str | None = None  # "/projects/{project_id}/..." once the page is built
+    hint: str = ""
+
+
+@dataclass(frozen=True)
+class NavItem:
+    key: str
+    label: str
+    href: str | None
+    current: bool
+    hint: str
+
+
+WORKFLOW_STEPS: tuple[WorkflowStep, ...] = (
+    WorkflowStep("overview", "Overview", "/projects/{project_id}", "Summary and revision trail"),
+    WorkflowStep("site", "Site", None, "Outline, zones, areas of interest, exclusions"),
+    WorkflowStep("ground", "Ground model", None, "Units, thickness ranges, correlation"),
+    WorkflowStep("existing", "Existing", None, "Earlier probes and what they found"),
+    WorkflowStep("methods", "Methods", None, "Investigation methods, rates and precision"),
+    WorkflowStep("options", "Options", None, "Layouts by hand, by grid and by the optimiser"),
+    WorkflowStep("compare", "Compare", None, "Cost against information gained"),
+    WorkflowStep("schedule", "Schedule", None, "The printable scoping schedule"),
+)
+
+
+def nav_items(project_id: int, current_key: str) -> list[NavItem]:
+    """The navigation bar of one project, with the current step marked."""
+    return [
+        NavItem(
+            key=step.key,
+            label=step.label,
+            href=step.path.format(project_id=project_id) if step.path else None,
+            current=step.key == current_key,
+            hint=step.hint if step.path else f"{step.hint} (not available yet)",
+        )
+        for step in WORKFLOW_STEPS
+    ]

@@ -1,0 +1,33 @@
+"""The demo project goes into a database that never held a project, and only then."""
+
+from pathlib import Path
+
+import pytest
+
+from server.store import (
+    delete_project,
+    get_project,
+    list_projects,
+    list_revisions,
+    seed_demo_if_empty,
+)
+
+
+def test_seed_once(db, tiny, tiny_path):
+    project_id = seed_demo_if_empty(db, tiny_path)
+    assert project_id is not None
+    assert get_project(db, project_id).name == tiny["name"]
+    assert seed_demo_if_empty(db, tiny_path) is None
+    delete_project(db, project_id)
+    assert seed_demo_if_empty(db, tiny_path) is None
+    assert list_projects(db) == []
+
+
+def test_seed_the_shipped_demo(db):
+    demo_path = Path(__file__).resolve().parents[2] / "seed_data" / "demo-project.json"
+    if not demo_path.is_file():
+        pytest.skip("seed_data/demo-project.json not written yet")
+    project_id = seed_demo_if_empty(db, demo_path)
+    [summary] = list_projects(db)
+    assert summary.id == project_id and summary.revision == 1
+    assert list_revisions(db, project_id)[0].message == "Demo project (invented data)"
