@@ -21,6 +21,7 @@ import math
 import os
 import re
 import tempfile
+import warnings
 from collections.abc import Sequence
 from contextlib import contextmanager
 from pathlib import Path
@@ -29,7 +30,7 @@ from typing import IO, Any
 from server.errors import InputError
 
 CAUTION = (
-    "Results support, and do not replace, the judgement of a qualified geotechnical "
+    "Caution: results support, and do not replace, the judgement of a qualified geotechnical "
     "professional; local codes, standards and licensed practice govern; clear buried services "
     "and obtain permits before any intrusive work."
 )
@@ -79,8 +80,8 @@ def schedule_rows(probes: Sequence[dict], model: dict) -> list[dict]:
                 "depth_m": depth,
                 "target": p.get("target") or "",
                 "observes": list(p.get("observes") or []),
-                "cost": float(cost.get("per_location", 0.0)) + float(cost.get("per_metre", 0.0))
-                * depth,
+                "cost": float(cost.get("per_location", 0.0))
+                + float(cost.get("per_metre", 0.0)) * depth,
             }
         )
     return rows
@@ -143,7 +144,11 @@ def write_schedule_geojson(rows: Sequence[dict], crs: str | None, *, rfc7946: bo
             coords = [x, y]
         props = {k: _json_value(v) for k, v in row.items()}
         features.append(
-            {"type": "Feature", "geometry": {"type": "Point", "coordinates": coords}, "properties": props}
+            {
+                "type": "Feature",
+                "geometry": {"type": "Point", "coordinates": coords},
+                "properties": props,
+            }
         )
     out: dict[str, Any] = {"type": "FeatureCollection", "features": features}
     if crs and not rfc7946:
@@ -195,7 +200,9 @@ def _description(crs: str | None, what: str) -> str:
 def _write_gpkg(layers: dict[str, Any], path: str | Path, description: str) -> None:
     """Write layers to a new GeoPackage, replacing the file only once all are written."""
     path = Path(path)
-    with _replacing(path) as tmp:
+    with _replacing(path) as tmp, warnings.catch_warnings():
+        # pyogrio warns when a frame has no CRS; the caller tells the user in plain words
+        warnings.filterwarnings("ignore", message=".*crs.*", category=UserWarning)
         for name, frame in layers.items():
             frame.to_file(
                 tmp,

@@ -134,7 +134,7 @@ def _extract_zip(source: Path | bytes, dest: Path, filename: str) -> None:
         if total > MAX_ZIP_BYTES:
             raise InputError(
                 filename,
-                f"unzips to {total / 1e6:.1f} MB, over the {MAX_ZIP_BYTES / 1e6:.0f} MB limit",
+                f"unzips to {total / 2**20:.1f} MB, over the {MAX_ZIP_BYTES / 2**20:.0f} MB limit",
             )
         members = []
         for info in infos:
@@ -160,7 +160,7 @@ def _extract_zip(source: Path | bytes, dest: Path, filename: str) -> None:
                         if written > MAX_ZIP_BYTES:
                             raise InputError(
                                 filename,
-                                f"unzips to more than the {MAX_ZIP_BYTES / 1e6:.0f} MB limit",
+                                f"unzips to more than the {MAX_ZIP_BYTES / 2**20:.0f} MB limit",
                             )
                         out.write(chunk)
             except (zipfile.BadZipFile, RuntimeError, OSError, EOFError) as exc:
@@ -189,7 +189,7 @@ def _dataset(path_or_bytes: str | Path | bytes, filename: str | None) -> Iterato
         if filename is None:
             raise InputError("file", "uploaded data need a file name (its type comes from it)")
         if len(data) > MAX_FILE_BYTES:
-            raise InputError(filename, f"is over the {MAX_FILE_BYTES / 1e6:.0f} MB limit")
+            raise InputError(filename, f"is over the {MAX_FILE_BYTES / 2**20:.0f} MB limit")
         if not data:
             raise InputError(filename, "is empty")
         source: Path | bytes = data

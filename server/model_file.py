@@ -11,6 +11,7 @@ Validation runs in four stages so that absurd input fails fast and every message
 4. cross-references: unique names, units named by other sections, observed depths, probes
    inside the site.
 Unknown extra fields are allowed and kept (the contract says "add optional fields freely").
+Normalising fills defaults, turns numbers into floats and geometry positions into [x, y].
 """
 
 from __future__ import annotations
@@ -62,7 +63,7 @@ LIST_CAPS = (
 MAX_POSITIONS = 100_000  # per geometry
 MAX_VALUES = 5_000_000  # JSON values in the whole file
 MAX_NESTING = 64
-MAX_FILE_BYTES = 200 * 1024 * 1024
+MAX_FILE_BYTES = 100 * 1024 * 1024
 MAX_GRID_CELLS = 250_000
 MAX_DEPTH_M = 10_000.0  # depths and thicknesses: nothing a site investigation meets
 MAX_COORD_M = 1e8  # |x|, |y|: larger than any projected CRS or site grid
@@ -209,7 +210,7 @@ def _check_geometry(value: dict, allowed: tuple[str, ...]) -> dict:
     if "coordinates" not in value:
         raise _ProblemError("coordinates", "is required")
     coords = value["coordinates"]
-    depth = 3 if kind == "Polygon" else 4
+    depth = 2 if kind == "Polygon" else 3  # list levels down to a position
     if _count_positions(coords, depth) > MAX_POSITIONS:
         raise _ProblemError("coordinates", f"has more than {MAX_POSITIONS} positions")
     if kind == "Polygon":
@@ -698,11 +699,12 @@ def _reference_problems(m: dict) -> Iterator[InputError]:
                     field,
                     f"{_num(depth)} m is below the final depth {_num(probe['final_depth_m'])} m",
                 )
-            if above is not None and depth <= above[1]:
+            if above is not None and depth < above[1]:
                 yield InputError(
                     field,
-                    f"base at {_num(depth)} m is not below the base of {_show(above[0])} at "
-                    f"{_num(above[1])} m (depths must increase down the units)",
+                    f"base at {_num(depth)} m is above the base of {_show(above[0])} at "
+                    f"{_num(above[1])} m (depths must not decrease down the units; equal "
+                    "depths record an absent unit)",
                 )
             above = (name, depth)
         for name in probe["precision_m"]:

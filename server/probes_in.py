@@ -162,12 +162,14 @@ def _observed_from_layers(
     layers: list[tuple[float | None, float, int | None, str]],
     final_depth_m: float,
     units: list[str],
+    who: str,
 ) -> tuple[dict[str, float], list[InputError], list[str]]:
     """Observed unit bases of one probe from its layers.
 
     ``layers``: (top_m or None, base_m, unit index or None for "left out", where). The base of
     the deepest layer mapped to a unit is that unit's observed base, unless the layer reaches
-    the final depth (the probe ended inside the unit). Returns (observed, problems, notes).
+    the final depth (the probe ended inside the unit). ``who`` names the probe in messages.
+    Returns (observed, problems, notes).
     """
     problems: list[InputError] = []
     notes: list[str] = []
@@ -207,10 +209,10 @@ def _observed_from_layers(
         if base >= final_depth_m - DEPTH_TOL_M:
             notes.append(f"ended in {units[unit]} at {base:g} m, so its base was not reached")
             continue
-        if above is not None and base <= above[1] + DEPTH_TOL_M:
+        if above is not None and base <= above[1] + DEPTH_TOL_M and not problems:
             problems.append(
                 InputError(
-                    f"base of {units[unit]}",
+                    f"{who}, base of {units[unit]}",
                     f"{base:g} m is not below the base of {above[0]} ({above[1]:g} m); "
                     "bases must deepen in unit order",
                 )
@@ -397,6 +399,10 @@ def preview_csv(
     )
 
 
+def _shown(value: Any) -> str:
+    return f"{value:g}" if isinstance(value, float) else str(value)
+
+
 def _ids(model: dict) -> str:
     return ", ".join(m["id"] for m in model.get("methods", [])) or "none"
 
@@ -542,7 +548,8 @@ def _parse_long(
                         if head[col] != group["head"][col]:
                             raise InputError(
                                 f"{where}, column {col}",
-                                f"{head[col]} differs from {group['head'][col]} on row "
+                                f"{_shown(head[col])} differs from "
+                                f"{_shown(group['head'][col])} on row "
                                 f"{group['rows'][0]} of probe {pid}",
                             )
             code = _text(_cell(cells, fixed["unit"]))
@@ -570,7 +577,7 @@ def _parse_long(
             continue
         head = group["head"]
         observed, problems, hole_notes = _observed_from_layers(
-            group["layers"], head["final_depth_m"], units
+            group["layers"], head["final_depth_m"], units, f"{filename} probe {pid}"
         )
         if problems:
             errors.extend(problems)
@@ -838,7 +845,9 @@ def ags4_to_existing(
             (layer.top_m, layer.base_m, code_to_unit[layer.code], f"{name} {layer.where}")
             for layer in hole.layers
         ]
-        observed, layer_problems, hole_notes = _observed_from_layers(layers, final, units)
+        observed, layer_problems, hole_notes = _observed_from_layers(
+            layers, final, units, f"{name} location {hole.id}"
+        )
         if layer_problems:
             problems.extend(f"{e}; {hole.id} left out" for e in layer_problems)
             continue

@@ -151,9 +151,7 @@ def posterior_grid(model: dict, layout_name: str | None):
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("model", metavar="MODEL", help="model file (JSON, schema probewise/1)")
-    parser.add_argument(
-        "--what", choices=sorted(FORMATS), required=True, help="what to export"
-    )
+    parser.add_argument("--what", choices=sorted(FORMATS), required=True, help="what to export")
     parser.add_argument("--layout", metavar="NAME", help="the layout (needed for a schedule)")
     parser.add_argument(
         "--format",

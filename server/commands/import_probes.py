@@ -50,7 +50,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         action="store_true",
         help="leave out (and list) rows or locations that break the model's rules",
     )
-    parser.add_argument("--preview", action="store_true", help="show what would be read; write nothing")
+    parser.add_argument(
+        "--preview", action="store_true", help="show what would be read; write nothing"
+    )
     parser.add_argument("-o", "--output", metavar="OUT", help="updated model file to write")
 
 
@@ -103,8 +105,15 @@ def _probe_rows(probes: list[dict], outside: list[str]) -> list[list[str]]:
         observed = ", ".join(f"{u} {d:g}" for u, d in p["observed"].items()) or "-"
         where = "outside the site" if p["id"] in outside else ""
         rows.append(
-            [p["id"], p["method"], f"{p['x']:.2f}", f"{p['y']:.2f}", f"{p['final_depth_m']:g}",
-             observed, where]
+            [
+                p["id"],
+                p["method"],
+                f"{p['x']:.2f}",
+                f"{p['y']:.2f}",
+                f"{p['final_depth_m']:g}",
+                observed,
+                where,
+            ]
         )
     return rows
 
@@ -203,8 +212,14 @@ def _from_ags4(args, model, data, name, mapping):
         rows = []
         for code, desc, count in legends:
             target = mapping.get(code)
-            shown = "?" if target is None else (
-                "(left out)" if target.strip() in ("", "-") else units.get(target.lower(), target)
+            shown = (
+                "?"
+                if target is None
+                else (
+                    "(left out)"
+                    if target.strip() in ("", "-")
+                    else units.get(target.lower(), target)
+                )
             )
             rows.append([code, desc[:60], str(count), shown])
         print(_table(["code", "description", "layers", "unit"], rows))

@@ -91,13 +91,14 @@ def truncated_quantiles(
     mean, std, lo, hi = np.broadcast_arrays(
         *(np.asarray(v, dtype=float) for v in (mean, std, lo, hi))
     )
-    out = np.clip(mean, lo, hi)
+    out = np.array(np.clip(mean, lo, hi), dtype=float)
     live = (std > 0) & (lo < hi)
     if not live.any():
         return out
     m, s = mean[live], std[live]
     a, b = (lo[live] - m) / s, (hi[live] - m) / s
-    mirror = (a + b) > 0
+    with np.errstate(invalid="ignore"):  # -inf + inf (no bounds): no mirror
+        mirror = (a + b) > 0
     a2 = np.where(mirror, -b, a)
     b2 = np.where(mirror, -a, b)
     q2 = np.where(mirror, 1.0 - q, q)

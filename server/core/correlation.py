@@ -45,4 +45,7 @@ def pairwise_distance_m(xy_a: np.ndarray, xy_b: np.ndarray) -> np.ndarray:
     xy_b = np.asarray(xy_b, dtype=float).reshape(-1, 2)
     dx = xy_a[:, None, 0] - xy_b[None, :, 0]
     dy = xy_a[:, None, 1] - xy_b[None, :, 1]
-    return np.hypot(dx, dy)
+    dx *= dx
+    dy *= dy
+    dx += dy
+    return np.sqrt(dx, out=dx)

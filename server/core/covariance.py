@@ -97,19 +97,30 @@ def cross_covariance_all(
     """
     bnd_obs = np.asarray(bnd_obs, dtype=int).reshape(-1)
     m, n, B = len(bnd_obs), fields_pts.n_points, ground.n_boundaries
-    out = np.empty((m, B, n))
     if m == 0:
-        return out
-    h = pairwise_distance_m(xy_obs, xy_pts)  # (m, n)
-    acc = np.zeros((m, n))
+        return np.empty((0, B, n))
+    # A probe reads several boundaries at one spot: correlate each distinct spot once.
+    # cum[s, i] = sum over units i' <= i of s_i'(spot) s_i'(pt) rho_i'(h); a reading of
+    # boundary j then has covariance cum[s, min(j, k)] with boundary k at the points.
+    spots, spot_of = np.unique(
+        np.asarray(xy_obs, float).reshape(-1, 2), axis=0, return_inverse=True
+    )
+    spot_of = spot_of.reshape(-1)
+    first = np.zeros(len(spots), dtype=int)
+    first[spot_of] = np.arange(m)  # any reading at each spot, for its fields
+    s_spot = fields_obs.std_m[first]  # (u, B); fields depend on the spot only
+    deepest = np.full(len(spots), -1)
+    np.maximum.at(deepest, spot_of, bnd_obs)
+    h = pairwise_distance_m(spots, xy_pts)  # (u, n)
+    cum = np.empty((len(spots), B, n))
+    acc = np.zeros((len(spots), n))
     for i in range(B):
-        corr = ground.units[i].correlation
-        # Unit i adds to the covariance of an observation of boundary j only when i <= j.
-        s_obs = np.where(bnd_obs >= i, fields_obs.std_m[:, i], 0.0)
-        if s_obs.any():
+        if (deepest >= i).any():
+            corr = ground.units[i].correlation
             rho = correlate(corr.model, h, corr.range_m)
-            rho *= s_obs[:, None]
+            rho *= s_spot[:, i, None]
             rho *= fields_pts.std_m[None, :, i]
             acc += rho
-        out[:, i, :] = acc
-    return out
+        cum[:, i, :] = acc
+    level = np.minimum(bnd_obs[:, None], np.arange(B)[None, :])  # (m, B)
+    return cum[spot_of[:, None], level]

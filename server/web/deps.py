@@ -4,9 +4,10 @@ from __future__ import annotations
 
 import threading
 from pathlib import Path
+from typing import Annotated
 
 import sqlite_utils
-from fastapi import Request
+from fastapi import Depends, Request
 
 from server.store import open_db
 
@@ -26,5 +27,9 @@ def database_of(app) -> sqlite_utils.Database:
 
 
 def get_db(request: Request) -> sqlite_utils.Database:
-    """FastAPI dependency: ``db: Database = Depends(get_db)``."""
+    """FastAPI dependency behind ``Db``."""
     return database_of(request.app)
+
+
+# In a route signature: ``def page(db: Db): ...``
+Db = Annotated[sqlite_utils.Database, Depends(get_db)]

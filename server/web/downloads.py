@@ -23,7 +23,7 @@ def slug_of(name: str, fallback: str = "project") -> str:
 def attachment_headers(filename: str) -> dict[str, str]:
     return {
         "Content-Disposition": (
-            f'attachment; filename="{filename}"; filename*=UTF-8\'\'{quote(filename)}'
+            f"attachment; filename=\"{filename}\"; filename*=UTF-8''{quote(filename)}"
         )
     }
 

@@ -137,9 +137,7 @@ def install_error_handlers(app: FastAPI) -> None:
 
     @app.exception_handler(StoreError)
     async def on_store_error(request: Request, exc: StoreError) -> Response:
-        status = next(
-            (STORE_STATUS[cls] for cls in type(exc).__mro__ if cls in STORE_STATUS), 400
-        )
+        status = next((STORE_STATUS[cls] for cls in type(exc).__mro__ if cls in STORE_STATUS), 400)
         return error_response(request, status, exc.message)
 
     @app.exception_handler(Exception)

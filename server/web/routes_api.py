@@ -6,10 +6,10 @@ Errors: ``{"detail": "message"}``, or ``{"detail": [{"field", "problem"}]}`` for
 
 from __future__ import annotations
 
-from typing import Any
+from typing import Annotated, Any
 
 import sqlite_utils
-from fastapi import APIRouter, Body, Depends, Query
+from fastapi import APIRouter, Body, Query
 from pydantic import BaseModel, Field
 from starlette.responses import Response
 
@@ -25,7 +25,7 @@ from server.store import (
     save_project,
     undo,
 )
-from server.web.deps import get_db
+from server.web.deps import Db
 from server.web.downloads import model_file_response
 
 router = APIRouter(prefix="/api", tags=["projects"])
@@ -118,8 +118,8 @@ def state_out(db: sqlite_utils.Database, project_id: int) -> RevisionStateOut:
 
 @router.get("/projects", response_model=list[ProjectSummaryOut])
 def api_list_projects(
-    include_deleted: bool = Query(False, description="also list projects in the bin"),
-    db: sqlite_utils.Database = Depends(get_db),
+    db: Db,
+    include_deleted: Annotated[bool, Query(description="also list projects in the bin")] = False,
 ) -> list[ProjectSummaryOut]:
     return [
         ProjectSummaryOut(
@@ -134,19 +134,17 @@ def api_list_projects(
     ]
 
 
-@router.post(
-    "/projects", status_code=201, response_model=RevisionStateOut, responses={**INVALID}
-)
+@router.post("/projects", status_code=201, response_model=RevisionStateOut, responses={**INVALID})
 def api_create_project(
-    model: dict[str, Any] = Body(description='a model file ("probewise/1")'),
-    db: sqlite_utils.Database = Depends(get_db),
+    db: Db,
+    model: Annotated[dict[str, Any], Body(description='a model file ("probewise/1")')],
 ) -> RevisionStateOut:
     project_id = create_project(db, model)  # validates: InputError -> 422
     return state_out(db, project_id)
 
 
 @router.get("/projects/{project_id}", response_model=ProjectOut, responses={**NOT_FOUND})
-def api_get_project(project_id: int, db: sqlite_utils.Database = Depends(get_db)) -> ProjectOut:
+def api_get_project(project_id: int, db: Db) -> ProjectOut:
     return project_out(db, project_id)
 
 
@@ -155,9 +153,7 @@ def api_get_project(project_id: int, db: sqlite_utils.Database = Depends(get_db)
     response_model=RevisionStateOut,
     responses={**NOT_FOUND, **STALE, **INVALID},
 )
-def api_save_project(
-    project_id: int, body: ProjectUpdateIn, db: sqlite_utils.Database = Depends(get_db)
-) -> RevisionStateOut:
+def api_save_project(project_id: int, body: ProjectUpdateIn, db: Db) -> RevisionStateOut:
     get_project(db, project_id)  # 404 before 422 when the project does not exist
     try:
         revision = save_project(
@@ -179,8 +175,8 @@ def api_save_project(
 )
 def api_undo(
     project_id: int,
+    db: Db,
     body: UndoIn | None = None,
-    db: sqlite_utils.Database = Depends(get_db),
 ) -> RevisionStateOut:
     expected = body.expected_revision if body else None
     revision = undo(db, project_id, expected_revision=expected)
@@ -193,14 +189,12 @@ def api_undo(
     response_model=RevisionStateOut,
     responses={**NOT_FOUND},
 )
-def api_duplicate(project_id: int, db: sqlite_utils.Database = Depends(get_db)) -> Any:
+def api_duplicate(project_id: int, db: Db) -> Any:
     return state_out(db, duplicate_project(db, project_id))
 
 
-@router.delete(
-    "/projects/{project_id}", response_model=DeletedStateOut, responses={**NOT_FOUND}
-)
-def api_delete(project_id: int, db: sqlite_utils.Database = Depends(get_db)) -> DeletedStateOut:
+@router.delete("/projects/{project_id}", response_model=DeletedStateOut, responses={**NOT_FOUND})
+def api_delete(project_id: int, db: Db) -> DeletedStateOut:
     delete_project(db, project_id)
     return DeletedStateOut(id=project_id, deleted=True)
 
@@ -208,9 +202,7 @@ def api_delete(project_id: int, db: sqlite_utils.Database = Depends(get_db)) -> 
 @router.post(
     "/projects/{project_id}/restore", response_model=DeletedStateOut, responses={**NOT_FOUND}
 )
-def api_restore(
-    project_id: int, db: sqlite_utils.Database = Depends(get_db)
-) -> DeletedStateOut:
+def api_restore(project_id: int, db: Db) -> DeletedStateOut:
     restore_project(db, project_id)
     return DeletedStateOut(id=project_id, deleted=False)
 
@@ -223,7 +215,7 @@ def api_restore(
     },
     response_class=Response,
 )
-def api_export(project_id: int, db: sqlite_utils.Database = Depends(get_db)) -> Response:
+def api_export(project_id: int, db: Db) -> Response:
     return model_file_response(db, project_id)
 
 
@@ -232,9 +224,7 @@ def api_export(project_id: int, db: sqlite_utils.Database = Depends(get_db)) -> 
     response_model=list[RevisionOut],
     responses={**NOT_FOUND},
 )
-def api_revisions(
-    project_id: int, db: sqlite_utils.Database = Depends(get_db)
-) -> list[RevisionOut]:
+def api_revisions(project_id: int, db: Db) -> list[RevisionOut]:
     get_project(db, project_id)
     return [
         RevisionOut(

@@ -6,17 +6,24 @@ revision swap it whole, so the drawing, the tables and the trail always agree.
 
 from __future__ import annotations
 
-from typing import Any
+from typing import Annotated, Any
 
 import sqlite_utils
-from fastapi import APIRouter, Depends, Form, Request
+from fastapi import APIRouter, Form, Request
 from starlette.responses import RedirectResponse, Response
 
 from server.store import get_project, list_revisions, restore_revision, undo
 from server.store.errors import NothingToUndo, StaleRevision
-from server.web.deps import get_db
+from server.web.deps import Db
 from server.web.site_map import build_site_map
-from server.web.summary import boundary_rows, existing_by_method, layout_rows, zone_overrides
+from server.web.summary import (
+    boundary_names,
+    boundary_rows,
+    existing_by_method,
+    layout_rows,
+    resolution_rows,
+    zone_overrides,
+)
 from server.web.templating import is_htmx, render_page_or_fragment
 from server.web.workflow import nav_items
 
@@ -41,7 +48,8 @@ def overview_context(
         "boundaries": boundary_rows(model),
         "bounds": model.get("bounds") or [],
         "methods": methods,
-        "method_names": {m["id"]: m.get("name", m["id"]) for m in methods},
+        "boundary_names": boundary_names(model),
+        "resolution": resolution_rows(model),
         "existing": model.get("existing") or [],
         "existing_mix": existing_by_method(model),
         "layouts": layout_rows(model),
@@ -71,9 +79,7 @@ def answer(
 
 
 @router.get("/projects/{project_id}")
-def overview_page(
-    request: Request, project_id: int, db: sqlite_utils.Database = Depends(get_db)
-) -> Response:
+def overview_page(request: Request, project_id: int, db: Db) -> Response:
     return answer(request, db, project_id)
 
 
@@ -81,8 +87,8 @@ def overview_page(
 def undo_last_change(
     request: Request,
     project_id: int,
-    expected_revision: int | None = Form(None),
-    db: sqlite_utils.Database = Depends(get_db),
+    db: Db,
+    expected_revision: Annotated[int | None, Form()] = None,
 ) -> Response:
     try:
         revision = undo(db, project_id, expected_revision=expected_revision)
@@ -98,8 +104,8 @@ def restore_to_revision(
     request: Request,
     project_id: int,
     number: int,
-    expected_revision: int | None = Form(None),
-    db: sqlite_utils.Database = Depends(get_db),
+    db: Db,
+    expected_revision: Annotated[int | None, Form()] = None,
 ) -> Response:
     try:
         revision = restore_revision(db, project_id, number, expected_revision=expected_revision)

@@ -6,10 +6,10 @@ notice), and a plain form post with a redirect back to the list.
 
 from __future__ import annotations
 
-from typing import Any
+from typing import Annotated, Any
 
 import sqlite_utils
-from fastapi import APIRouter, Depends, File, Request, UploadFile
+from fastapi import APIRouter, File, Request, UploadFile
 from starlette.responses import RedirectResponse, Response
 
 from server.errors import InputError
@@ -22,7 +22,7 @@ from server.store import (
     list_projects,
     restore_project,
 )
-from server.web.deps import get_db
+from server.web.deps import Db
 from server.web.downloads import model_file_response
 from server.web.templating import is_htmx, render_page_or_fragment
 
@@ -74,15 +74,15 @@ def parse_model_upload(content: bytes) -> dict[str, Any]:
 
 
 @router.get("/")
-def projects_page(request: Request, db: sqlite_utils.Database = Depends(get_db)) -> Response:
+def projects_page(request: Request, db: Db) -> Response:
     return answer(request, db)
 
 
 @router.post("/projects/import")
 def import_project(
     request: Request,
-    model_file: UploadFile | None = File(None),
-    db: sqlite_utils.Database = Depends(get_db),
+    db: Db,
+    model_file: Annotated[UploadFile | None, File()] = None,
 ) -> Response:
     if model_file is None or not model_file.filename:
         error = InputError(UPLOAD_FIELD, "choose a model file (.json) to import")
@@ -104,9 +104,7 @@ def import_project(
 
 
 @router.post("/projects/{project_id}/duplicate")
-def duplicate(
-    request: Request, project_id: int, db: sqlite_utils.Database = Depends(get_db)
-) -> Response:
+def duplicate(request: Request, project_id: int, db: Db) -> Response:
     new_id = duplicate_project(db, project_id)
     copy = get_project(db, new_id)
     notice = {"kind": "ok", "text": f"Duplicated as \u201c{copy.name}\u201d.", "project_id": new_id}
@@ -114,9 +112,7 @@ def duplicate(
 
 
 @router.post("/projects/{project_id}/delete")
-def delete(
-    request: Request, project_id: int, db: sqlite_utils.Database = Depends(get_db)
-) -> Response:
+def delete(request: Request, project_id: int, db: Db) -> Response:
     name = get_project(db, project_id).name
     delete_project(db, project_id)
     notice = {
@@ -127,9 +123,7 @@ def delete(
 
 
 @router.post("/projects/{project_id}/restore")
-def restore(
-    request: Request, project_id: int, db: sqlite_utils.Database = Depends(get_db)
-) -> Response:
+def restore(request: Request, project_id: int, db: Db) -> Response:
     restore_project(db, project_id)
     name = get_project(db, project_id).name
     notice = {"kind": "ok", "text": f"Restored \u201c{name}\u201d.", "project_id": project_id}
@@ -137,5 +131,5 @@ def restore(
 
 
 @router.get("/projects/{project_id}/export")
-def export(project_id: int, db: sqlite_utils.Database = Depends(get_db)) -> Response:
+def export(project_id: int, db: Db) -> Response:
     return model_file_response(db, project_id)

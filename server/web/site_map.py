@@ -9,13 +9,13 @@ from __future__ import annotations
 
 import math
 from collections.abc import Iterable, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any
 
 from shapely.geometry import shape
 
-MAX_FRAME_W_PX = 720.0
-MAX_FRAME_H_PX = 480.0
+MAX_FRAME_W_PX = 860.0
+MAX_FRAME_H_PX = 520.0
 MARGIN_LEFT_PX = 76.0
 MARGIN_TOP_PX = 16.0
 MARGIN_RIGHT_PX = 56.0
@@ -26,10 +26,12 @@ PAD_FRACTION = 0.05  # empty border around the features, as a share of the large
 @dataclass(frozen=True)
 class MapShape:
     name: str
+    tag: str  # short key drawn on the map ("Z1", "A2", "X1"), spelled out beside it
     path: str  # SVG path data in screen pixels (even-odd rule handles holes)
     label_x: float
     label_y: float
     note: str = ""
+    anchor: str = "middle"  # text-anchor that keeps the label inside the frame
 
 
 @dataclass(frozen=True)
@@ -202,20 +204,25 @@ def build_site_map(model: dict[str, Any]) -> SiteMap:
     """Everything the template needs to draw the site of a (validated) model."""
     projection = Projection(feature_bounds(model))
 
-    def map_shapes(items: list[dict[str, Any]], note_of=lambda item: "") -> list[MapShape]:
+    def map_shapes(
+        items: list[dict[str, Any]], prefix: str, note_of=lambda item: ""
+    ) -> list[MapShape]:
         shapes = []
-        for item in items:
+        for number, item in enumerate(items, start=1):
             rings = polygon_rings(item.get("geometry"))
             if not rings:
                 continue
             lx, ly = label_point(item["geometry"], rings)
+            label_x = projection.x(lx)
             shapes.append(
                 MapShape(
                     name=str(item.get("name", "")),
+                    tag=f"{prefix}{number}",
                     path=projection.path(rings),
-                    label_x=round(projection.x(lx), 1),
+                    label_x=round(label_x, 1),
                     label_y=round(projection.y(ly), 1),
                     note=note_of(item),
+                    anchor=anchor_for(label_x, projection),
                 )
             )
         return shapes
@@ -224,9 +231,7 @@ def build_site_map(model: dict[str, Any]) -> SiteMap:
     site = None
     if site_rings:
         lx, ly = label_point(model["site"], site_rings)
-        site = MapShape(
-            "Site", projection.path(site_rings), projection.x(lx), projection.y(ly), ""
-        )
+        site = MapShape("Site", "", projection.path(site_rings), projection.x(lx), projection.y(ly))
 
     kinds = {m["id"]: m.get("kind", "other") for m in model.get("methods") or []}
     probes = [
@@ -253,6 +258,18 @@ def build_site_map(model: dict[str, Any]) -> SiteMap:
         for v in tick_values(projection.min_y, projection.max_y, y_step)
     ]
 
+    zones, areas, exclusions = spread_labels(
+        [
+            map_shapes(model.get("zones") or [], "Z"),
+            map_shapes(
+                model.get("areas_of_interest") or [],
+                "A",
+                lambda item: f"weight {item.get('weight', 1):g}",
+            ),
+            map_shapes(model.get("exclusions") or [], "X"),
+        ]
+    )
+
     crs = model.get("crs")
     if crs:
         x_caption, y_caption, north_label = f"Easting (m), {crs}", "Northing (m)", "N"
@@ -278,12 +295,9 @@ def build_site_map(model: dict[str, Any]) -> SiteMap:
         frame_w=round(projection.frame_w, 1),
         frame_h=round(projection.frame_h, 1),
         site=site,
-        zones=map_shapes(model.get("zones") or []),
-        areas=map_shapes(
-            model.get("areas_of_interest") or [],
-            lambda item: f"weight {item.get('weight', 1):g}",
-        ),
-        exclusions=map_shapes(model.get("exclusions") or []),
+        zones=zones,
+        areas=areas,
+        exclusions=exclusions,
         probes=probes,
         x_ticks=x_ticks,
         y_ticks=y_ticks,
@@ -295,6 +309,40 @@ def build_site_map(model: dict[str, Any]) -> SiteMap:
         north_label=north_label,
         probe_kinds=sorted({p.kind for p in probes}),
     )
+
+
+LABEL_GAP_PX = 13.0
+
+
+def spread_labels(groups: list[list[MapShape]]) -> list[list[MapShape]]:
+    """Nudge a label down until it clears the labels placed before it (tags are short)."""
+    placed: list[tuple[float, float]] = []
+    out = []
+    for group in groups:
+        moved = []
+        for item in group:
+            x, y = item.label_x, item.label_y
+            for _ in range(20):
+                if all(
+                    abs(x - px) > 2 * LABEL_GAP_PX or abs(y - py) > LABEL_GAP_PX
+                    for px, py in placed
+                ):
+                    break
+                y += LABEL_GAP_PX
+            placed.append((x, y))
+            moved.append(replace(item, label_y=round(y, 1)))
+        out.append(moved)
+    return out
+
+
+def anchor_for(x_px: float, projection: Projection) -> str:
+    """Labels near the frame's sides grow inwards."""
+    share = (x_px - MARGIN_LEFT_PX) / projection.frame_w
+    if share < 0.25:
+        return "start"
+    if share > 0.75:
+        return "end"
+    return "middle"
 
 
 def tick_values(low: float, high: float, step: float) -> list[float]:

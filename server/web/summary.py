@@ -78,3 +78,33 @@ def layout_rows(model: dict[str, Any]) -> list[LayoutRow]:
 def existing_by_method(model: dict[str, Any]) -> str:
     counts = Counter(p["method"] for p in model.get("existing") or [])
     return ", ".join(f"{method} \u00d7{n}" for method, n in sorted(counts.items()))
+
+
+@dataclass(frozen=True)
+class ResolutionRow:
+    method_id: str
+    method_name: str
+    precisions_m: list[float | None]  # one per boundary, None where not resolved
+    cannot_penetrate: list[str]
+
+
+def boundary_names(model: dict[str, Any]) -> list[str]:
+    """Units that have a base (all but the basal unit), top to bottom."""
+    return [u["name"] for u in (model.get("units") or [])[:-1]]
+
+
+def resolution_rows(model: dict[str, Any]) -> list[ResolutionRow]:
+    """Which boundary each method reads, with what precision (std, m)."""
+    names = boundary_names(model)
+    rows = []
+    for method in model.get("methods") or []:
+        precision = method.get("precision_m") or {}
+        rows.append(
+            ResolutionRow(
+                method_id=method["id"],
+                method_name=method.get("name", method["id"]),
+                precisions_m=[precision.get(name) for name in names],
+                cannot_penetrate=list(method.get("cannot_penetrate") or []),
+            )
+        )
+    return rows

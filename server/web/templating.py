@@ -59,6 +59,11 @@ def format_number(value: Any, digits: int = 2) -> str:
     return "0" if text == "-0" else text
 
 
+def format_coordinate(value: Any, digits: int = 2) -> str:
+    """A coordinate: no thousands separators, at most ``digits`` decimals."""
+    return format_number(value, digits).replace(",", "")
+
+
 def format_money(value: Any) -> str:
     """Amounts with thousands separators; pence only when there are any."""
     if value is None or value == "":
@@ -95,7 +100,11 @@ def build_environment(templates_dir: Path = TEMPLATES_DIR) -> jinja2.Environment
         lstrip_blocks=True,
     )
     env.filters.update(
-        num=format_number, money=format_money, when=format_when, kind_label=kind_label
+        num=format_number,
+        coord=format_coordinate,
+        money=format_money,
+        when=format_when,
+        kind_label=kind_label,
     )
     env.globals.update(caution=CAUTION, htmx_js=find_htmx_path())
     return env

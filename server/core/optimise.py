@@ -1,0 +1,785 @@
+"""Greedy optimiser: the most information per unit of money, with exact low-rank updates.
+
+DESIGN.md "Optimiser". Candidates are a regular grid of locations inside the site and outside
+exclusions, times the allowed methods; each candidate's planned depth and observed set are
+planned exactly as for evaluation (``server.core.planning``), so the optimiser scores what
+``evaluate`` will report. Greedy forward selection picks, at each step, the candidate with
+the largest information gain per unit cost (per location + per metre x planned depth), until
+nothing more fits the budget; references: greedy variance/entropy reduction for Gaussian
+processes (Krause, Singh and Guestrin, JMLR 9, 2008).
+
+Exact incremental updates: the posterior covariance ``M`` between every candidate
+location-boundary and every target (a cell of the optimisation grid and a boundary of
+interest) is kept and updated by a rank-k step after each pick; a candidate is scored from
+its rows of ``M`` without re-solving anything (``server.core.greedy_kernel``).
+
+Mobilisation makes a method's first probe look expensive, so mixes are handled explicitly:
+one greedy run per mix of methods (every subset of the allowed methods of at most
+``max_methods_per_mix``), with the mix's mobilisation paid up front; runs are also started
+from every hand-made layout that fits the budget (its probes kept, more added), so the result
+never gains less than an option the engineer already has. Every prefix of a run is a layout;
+the cost-gain curve is the upper envelope of all prefixes, and the best few layouts within
+the budget are re-evaluated on the full evaluation grid to choose the answer.
+"""
+
+from __future__ import annotations
+
+import itertools
+import math
+import time
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass, replace
+
+import numpy as np
+from scipy.linalg import solve_triangular
+
+from server.core.analysis import ProjectAnalysis
+from server.core.correlation import correlate
+from server.core.covariance import boundary_covariance
+from server.core.evaluate import GridEvaluator, LayoutResult, layout_cost
+from server.core.field import UnitFields, unit_fields
+from server.core.geometry import points_in_polygon
+from server.core.greedy_kernel import Q_MIN, kernel_for, plan_runs
+from server.core.grid import EvaluationGrid, evaluation_grid
+from server.core.model import Layout, PlannedProbe, Project
+from server.core.planning import planned_observations, plan_probes
+
+MIN_GAIN_BITS = 1e-9  # a candidate that buys less than this is not worth a pick
+FINALISTS = 4  # layouts re-evaluated on the full grid before choosing
+
+
+class OptimiseCancelled(Exception):
+    """Raised inside :func:`optimise` when the caller asks it to stop."""
+
+
+class OptimiseError(ValueError):
+    """The optimiser cannot run: no candidate, or nothing fits the budget (message says)."""
+
+
+@dataclass(frozen=True)
+class OptimiseOptions:
+    """What to optimise for.
+
+    Attributes
+    ----------
+    budget : float
+        Most the layout may cost (currency units), mobilisation included.
+    methods : tuple of str, optional
+        Method ids the optimiser may use; default all.
+    candidate_spacing_m : float, optional
+        Spacing of the candidate grid; default chosen so there are about
+        ``target_locations`` locations.
+    min_spacing_m : float, optional
+        Least distance between chosen probes; default the candidate spacing.
+    max_cells : int
+        Optimise on a coarser copy of the evaluation grid when it has more cells than this.
+    target_locations : int
+        Number of candidate locations the default spacing aims at.
+    max_methods_per_mix : int
+        Largest number of methods in one mix.
+    warm_start : bool
+        Also start runs from the hand-made layouts that fit the budget.
+    """
+
+    budget: float
+    methods: tuple[str, ...] | None = None
+    candidate_spacing_m: float | None = None
+    min_spacing_m: float | None = None
+    max_cells: int = 1500
+    target_locations: int = 600
+    max_methods_per_mix: int = 3
+    warm_start: bool = True
+
+
+@dataclass(frozen=True, eq=False)
+class Candidates:
+    """Candidate probes: ``L`` locations times ``J`` methods.
+
+    Attributes
+    ----------
+    xy : (L, 2) float
+        Project coordinates of the locations.
+    local : (L, 2) float
+        The same relative to the analysis origin.
+    method_ids : tuple of str, length J
+    depth_m : (L, J) float
+        Planned depth of each candidate.
+    cost : (L, J) float
+        Per-location + per-metre cost (no mobilisation).
+    noise_var : (L, J, B) float
+        Reading variance for each boundary the candidate observes; ``nan`` elsewhere.
+    valid : (L, J) bool
+        Observes at least one boundary.
+    """
+
+    xy: np.ndarray
+    local: np.ndarray
+    method_ids: tuple[str, ...]
+    depth_m: np.ndarray
+    cost: np.ndarray
+    noise_var: np.ndarray
+    valid: np.ndarray
+
+    @property
+    def observes(self) -> np.ndarray:
+        """``(L, J, B)`` bool: boundaries each candidate reads."""
+        return np.isfinite(self.noise_var)
+
+
+@dataclass(frozen=True)
+class Pick:
+    """One greedy step: candidate (location, method index), its cost and gain (bits)."""
+
+    location: int
+    method: int
+    cost: float
+    gain_bits: float
+
+
+@dataclass(frozen=True)
+class GreedyRun:
+    """One greedy run: a mix of methods, optionally started from a hand-made layout."""
+
+    mix: tuple[str, ...]
+    start: str | None
+    start_cost: float
+    start_gain_bits: float
+    picks: tuple[Pick, ...]
+
+    def prefixes(self, cand: Candidates, mobilisation: dict[str, float]):
+        """``(n_picks, cost, gain)`` of every prefix; cost pays mobilisation of methods used."""
+        used: set[str] = set()
+        cost, gain = self.start_cost, self.start_gain_bits
+        out = [(0, cost, gain)]
+        for n, p in enumerate(self.picks, start=1):
+            mid = cand.method_ids[p.method]
+            if mid not in used:
+                used.add(mid)
+                cost += mobilisation[mid]
+            cost += p.cost
+            gain += p.gain_bits
+            out.append((n, cost, gain))
+        return out
+
+
+@dataclass(frozen=True, eq=False)
+class OptimiseResult:
+    """The chosen layout (evaluated on the full grid), the curve and how it was found."""
+
+    layout: Layout
+    result: LayoutResult
+    curve: tuple[tuple[float, float], ...]
+    runs: tuple[GreedyRun, ...]
+    candidates: Candidates
+    optimisation_cells: int
+    optimisation_spacing_m: float
+    candidate_spacing_m: float
+    min_spacing_m: float
+    seconds: float
+
+
+ProgressFn = Callable[[float, str], None]
+
+
+def nice_spacing_m(raw_m: float) -> float:
+    """Round a spacing up to 1, 2, 2.5 or 5 times a power of ten (m)."""
+    if raw_m <= 0 or not math.isfinite(raw_m):
+        raise ValueError("spacing must be positive")
+    decade = 10.0 ** math.floor(math.log10(raw_m))
+    for step in (1.0, 2.0, 2.5, 5.0, 10.0):
+        if step * decade >= raw_m * (1 - 1e-12):
+            return step * decade
+    return 10.0 * decade  # pragma: no cover - loop always returns
+
+
+def optimisation_grid(project: Project, origin, max_cells: int) -> EvaluationGrid:
+    """The evaluation grid, coarsened by a whole factor until it has at most ``max_cells``."""
+    grid = evaluation_grid(project.site, origin)
+    factor = 1
+    while grid.n_cells > max_cells:
+        factor = max(factor + 1, int(math.ceil(factor * math.sqrt(grid.n_cells / max_cells))))
+        site = replace(project.site, grid_spacing_m=project.site.grid_spacing_m * factor)
+        grid = evaluation_grid(site, origin)
+    return grid
+
+
+def candidate_locations(project: Project, origin, spacing_m: float) -> np.ndarray:
+    """Regular grid of locations inside the site and outside every exclusion: ``(L, 2)``
+    in project coordinates (cell centres of a grid aligned to the site bounding box)."""
+    site = project.site
+    pts = np.vstack(site.outline.rings)
+    lo, hi = pts.min(axis=0), pts.max(axis=0)
+    nx = max(int(math.ceil((hi[0] - lo[0]) / spacing_m - 1e-9)), 1)
+    ny = max(int(math.ceil((hi[1] - lo[1]) / spacing_m - 1e-9)), 1)
+    gx, gy = np.meshgrid(
+        lo[0] + spacing_m * (np.arange(nx) + 0.5), lo[1] + spacing_m * (np.arange(ny) + 0.5)
+    )
+    xy = np.column_stack([gx.ravel(), gy.ravel()])
+    keep = points_in_polygon(xy, site.outline)
+    for excl in site.exclusions:
+        keep &= ~points_in_polygon(xy, excl)
+    return xy[keep]
+
+
+def build_candidates(
+    analysis: ProjectAnalysis, xy: np.ndarray, method_ids: Sequence[str]
+) -> Candidates:
+    """Plan every (location, method) candidate against the baseline (existing probes)."""
+    methods = analysis.methods
+    B = analysis.ground.n_boundaries
+    L, J = len(xy), len(method_ids)
+    probes = [
+        PlannedProbe(f"c{l}-{m}", m, float(x), float(y))
+        for l, (x, y) in enumerate(xy)
+        for m in method_ids
+    ]
+    plans = plan_probes(analysis.ground, methods, analysis.baseline, probes)
+    depth = np.zeros((L, J))
+    cost = np.zeros((L, J))
+    noise = np.full((L, J, B), np.nan)
+    for n, plan in enumerate(plans):
+        l, j = divmod(n, J)
+        method = methods[method_ids[j]]
+        depth[l, j] = plan.depth_m
+        cost[l, j] = method.per_location + method.per_metre * plan.depth_m
+        for k in plan.observes:
+            noise[l, j, k] = method.precision_m[k] ** 2
+    valid = np.isfinite(noise).any(axis=2)
+    local = analysis.to_local(xy)
+    return Candidates(xy, local, tuple(method_ids), depth, cost, noise, valid)
+
+
+@dataclass(frozen=True, eq=False)
+class Targets:
+    """Targets of the objective, laid out in padded slots of equal weight.
+
+    ``cells (C, 2)`` local points, ``fields`` their priors, ``boundaries`` of interest
+    ``(K,)`` and ``slot_cell``/``slot_bnd`` ``(S,)`` (-1 on pad slots), runs for the kernel.
+    """
+
+    cells: np.ndarray
+    fields: UnitFields
+    boundaries: np.ndarray
+    omega: np.ndarray
+    slot_cell: np.ndarray
+    slot_bnd: np.ndarray
+    run_start: np.ndarray
+    run_stop: np.ndarray
+    run_omega: np.ndarray
+
+
+def build_targets(analysis: ProjectAnalysis, grid: EvaluationGrid) -> Targets:
+    """Targets (cell, boundary of interest) with weight ``w_k * w_cell / sum(w_cell)``, so
+    that the kernel's total equals DESIGN.md's information gain on this grid."""
+    boi = analysis.ground.boundaries_of_interest
+    if not boi:
+        raise OptimiseError("the model has no boundary of interest to optimise for")
+    w_cell = grid.weight / grid.weight.sum()
+    bnds = np.array([b.boundary for b in boi], dtype=int)
+    omega = np.concatenate([b.weight * w_cell for b in boi])  # (K * C,) boundary-major
+    slot_target, rs, re_, rw = plan_runs(omega)
+    C = grid.n_cells
+    real = slot_target >= 0
+    slot_cell = np.where(real, slot_target % C, -1)
+    slot_bnd = np.where(real, bnds[np.maximum(slot_target, 0) // C], -1)
+    fields = unit_fields(analysis.ground, grid.xy, analysis.origin)
+    return Targets(grid.xy, fields, bnds, omega, slot_cell, slot_bnd, rs, re_, rw)
+
+
+def _unit_correlations(ground, xy_a: np.ndarray, xy_b: np.ndarray, fa, fb) -> list[np.ndarray]:
+    """Per unit ``s_i(a) s_i(b) rho_i(|a - b|)``: list of ``(na, nb)``."""
+    h = np.sqrt(((xy_a[:, None, :] - xy_b[None, :, :]) ** 2).sum(axis=2))
+    out = []
+    for i in range(ground.n_boundaries):
+        corr = ground.units[i].correlation
+        term = correlate(corr.model, h, corr.range_m)
+        term *= fa.std_m[:, i][:, None]
+        term *= fb.std_m[:, i][None, :]
+        out.append(term)
+    return out
+
+
+class GreedyState:
+    """Posterior quantities the greedy search keeps up to date (see module docstring).
+
+    ``M (L, B, S)``: covariance of each candidate location-boundary with each target slot;
+    ``P (L, B, B)``: covariance among the boundaries at each location; ``V (S,)``: target
+    variances (1 on pad slots); ``F (R, L, B)``: whitened covariance of every reading so far
+    with the candidate location-boundaries, so that the covariance of a new pick with every
+    candidate is ``prior - F^T F[:, pick]``.
+    """
+
+    def __init__(self, M, P, V, F, n_rows):
+        self.M, self.P, self.V, self.F, self.n_rows = M, P, V, F, n_rows
+        B, S = M.shape[1], M.shape[2]
+        self.G = np.zeros((M.shape[0], B, B))
+        self.H = np.zeros((B, S))
+        self.pending = False
+
+    def copy(self) -> GreedyState:
+        out = GreedyState(self.M.copy(), self.P.copy(), self.V.copy(), self.F.copy(), self.n_rows)
+        out.G, out.H, out.pending = self.G.copy(), self.H.copy(), self.pending
+        return out
+
+    def flush(self) -> None:
+        """Apply a pending update to ``M`` (the kernel normally does it while scoring)."""
+        if self.pending:
+            self.M -= np.einsum("lbq,qs->lbs", self.G, self.H)
+            self.pending = False
+
+    def _append_rows(self, rows: np.ndarray) -> None:
+        need = self.n_rows + rows.shape[0]
+        if need > self.F.shape[0]:
+            grown = np.zeros((max(need, 2 * self.F.shape[0]), *self.F.shape[1:]))
+            grown[: self.n_rows] = self.F[: self.n_rows]
+            self.F = grown
+        self.F[self.n_rows : need] = rows
+        self.n_rows = need
+
+    def apply(self, chol: np.ndarray, cov_cand: np.ndarray, cov_slots: np.ndarray) -> None:
+        """Condition on a block of ``m`` readings.
+
+        Parameters
+        ----------
+        chol : (m, m) float
+            Lower Cholesky factor of the block's current posterior covariance plus noise.
+        cov_cand : (L, B, m) float
+            Current posterior covariance of every candidate location-boundary with the block.
+        cov_slots : (m, S) float
+            Current posterior covariance of the block with every target slot.
+        """
+        L, B, m = cov_cand.shape
+        g = solve_triangular(chol, cov_cand.reshape(L * B, m).T, lower=True).T.reshape(L, B, m)
+        h = solve_triangular(chol, cov_slots, lower=True)
+        self.flush()
+        self.V -= np.einsum("qs,qs->s", h, h)
+        self.P -= np.einsum("lbq,lcq->lbc", g, g)
+        self._append_rows(np.moveaxis(g, 2, 0))
+        if m <= B:
+            self.G[:] = 0.0
+            self.H[:] = 0.0
+            self.G[:, :, :m] = g
+            self.H[:m] = h
+            self.pending = True
+        else:  # a large block (a hand-made layout): apply at once
+            self.M -= np.einsum("lbq,qs->lbs", g, h)
+
+
+class GreedyProblem:
+    """Everything fixed across the greedy runs of one optimisation."""
+
+    def __init__(self, analysis: ProjectAnalysis, cand: Candidates, targets: Targets):
+        self.analysis = analysis
+        self.ground = analysis.ground
+        self.cand = cand
+        self.targets = targets
+        self.B = self.ground.n_boundaries
+        self.cand_fields = unit_fields(self.ground, cand.local, analysis.origin)
+        self.base_state = self._initial_state()
+        self.kernel = kernel_for(self.B)
+
+    def _prior_cand_slots(self) -> np.ndarray:
+        """Prior covariance of candidate location-boundaries with target slots ``(L, B, S)``."""
+        t = self.targets
+        terms = _unit_correlations(
+            self.ground, self.cand.local, t.cells, self.cand_fields, t.fields
+        )
+        cum = np.cumsum(np.stack(terms), axis=0)  # (B, L, C): sum over units 0..i
+        L, S = len(self.cand.local), len(t.slot_cell)
+        out = np.zeros((L, self.B, S))
+        real = t.slot_cell >= 0
+        for b in range(self.B):
+            for k in np.unique(t.slot_bnd[real]):
+                sel = real & (t.slot_bnd == k)
+                out[:, b, sel] = cum[min(b, k)][:, t.slot_cell[sel]]
+        return out
+
+    def _initial_state(self) -> GreedyState:
+        t = self.targets
+        base = self.analysis.baseline
+        pred_c = base.predict(self.cand.local)
+        pred_t = base.predict(t.cells)
+        white_c = np.concatenate(pred_c.white, axis=0) if pred_c.white else None  # (m, B, L)
+        M = self._prior_cand_slots()
+        real = t.slot_cell >= 0
+        V = np.ones(len(t.slot_cell))
+        V[real] = pred_t.var_m2[t.slot_cell[real], t.slot_bnd[real]]
+        L = len(self.cand.local)
+        var_cum = np.cumsum(self.cand_fields.std_m**2, axis=1)  # (L, B)
+        idx = np.minimum.outer(np.arange(self.B), np.arange(self.B))
+        P = var_cum[:, idx]  # (L, B, B): prior cov at one point
+        if white_c is not None and white_c.shape[0]:
+            white_t = np.concatenate(pred_t.white, axis=0)  # (m, B, C)
+            slots = np.zeros((white_t.shape[0], len(t.slot_cell)))
+            slots[:, real] = white_t[:, t.slot_bnd[real], t.slot_cell[real]]
+            M -= np.einsum("mbl,ms->lbs", white_c, slots)
+            P -= np.einsum("mbl,mcl->lbc", white_c, white_c)
+            F = np.ascontiguousarray(np.moveaxis(white_c, 2, 1))  # (m, L, B)
+        else:
+            F = np.zeros((0, L, self.B))
+        F_store = np.zeros((max(64, 2 * F.shape[0]), L, self.B))
+        F_store[: F.shape[0]] = F
+        return GreedyState(np.ascontiguousarray(M), P, V, F_store, F.shape[0])
+
+    # -- scoring -------------------------------------------------------------------------
+    def whitening(self, state: GreedyState, active: np.ndarray) -> np.ndarray:
+        """``(L, J, B, B)`` lower-triangular operators ``chol(P_O + noise)^-1`` padded with
+        zero rows and columns where a candidate does not read a boundary."""
+        obs = self.cand.observes  # (L, J, B)
+        noise = np.where(obs, self.cand.noise_var, 0.0)
+        L, J, B = obs.shape
+        both = obs[..., :, None] & obs[..., None, :]
+        S = np.where(both, state.P[:, None, :, :], 0.0)
+        S = S + np.eye(B) * np.where(obs, noise, 1.0)[..., None, :]
+        S[~active] = np.eye(B)
+        low = np.linalg.cholesky(S)
+        white = np.linalg.solve(low, np.broadcast_to(np.eye(B), low.shape))
+        white *= obs[..., :, None]
+        white *= obs[..., None, :]
+        return white
+
+    def score(self, state: GreedyState, active: np.ndarray) -> np.ndarray:
+        """Information gain (bits) of every candidate: ``(L, J)``; 0 where inactive."""
+        V = state.V
+        inv_v = np.where(V > 0, 1.0 / np.maximum(V, 1e-300), 0.0)
+        gain = self.kernel(
+            state.M,
+            inv_v,
+            self.targets.run_start,
+            self.targets.run_stop,
+            self.targets.run_omega,
+            self.whitening(state, active),
+            active,
+            state.G,
+            state.H,
+            state.pending,
+            Q_MIN,
+        )
+        state.pending = False
+        return gain
+
+    # -- updates -------------------------------------------------------------------------
+    def _prior_cand_point(self, xy_local: np.ndarray, bnds: np.ndarray) -> np.ndarray:
+        """Prior covariance of every candidate location-boundary with readings of ``bnds``
+        at points ``xy_local (m, 2)``: ``(L, B, m)``."""
+        fields = unit_fields(self.ground, xy_local, self.analysis.origin)
+        terms = np.stack(
+            _unit_correlations(self.ground, self.cand.local, xy_local, self.cand_fields, fields)
+        )  # (B units, L, m)
+        cum = np.cumsum(terms, axis=0)
+        idx = np.minimum.outer(np.arange(self.B), bnds)  # (B, m)
+        return cum[idx, :, np.arange(len(bnds))[None, :]].transpose(2, 0, 1)
+
+    def apply_pick(self, state: GreedyState, l: int, j: int) -> None:
+        """Condition ``state`` on candidate ``(l, j)``'s readings."""
+        obs = np.flatnonzero(self.cand.observes[l, j])
+        noise = self.cand.noise_var[l, j, obs]
+        cov_cand = self._prior_cand_point(self.cand.local[[l] * len(obs)], obs)
+        R = state.n_rows
+        cov_cand -= np.einsum("rlb,ro->lbo", state.F[:R], state.F[:R, l][:, obs])
+        S = state.P[l][np.ix_(obs, obs)] + np.diag(noise)
+        chol = np.linalg.cholesky(S)
+        state.flush()
+        state.apply(chol, cov_cand, state.M[l, obs, :])
+
+    def apply_layout(self, state: GreedyState, layout: Layout) -> tuple[float, float]:
+        """Condition ``state`` on a hand-made layout's readings; return (cost, gain bits)."""
+        plans = plan_probes(self.ground, self.analysis.methods, self.analysis.baseline, layout.probes)
+        cost = layout_cost(plans, self.analysis.methods)[0]
+        obs = planned_observations(plans, self.analysis.methods, self.analysis.origin)
+        if obs.size == 0:
+            return cost, 0.0
+        base = self.analysis.baseline
+        # covariance among the block and with the slots, given the existing probes only
+        t = self.targets
+        pred_t = base.predict(t.cells)
+        white_o = base.predict(obs.xy)  # whitened blocks at the readings' points
+        fields_o = white_o.fields
+        k_oo = boundary_covariance(
+            self.ground, obs.xy, obs.boundary, fields_o, obs.xy, obs.boundary, fields_o
+        )
+        w_o = self._white_at(white_o, obs.boundary)  # (m_e, m)
+        k_oo = k_oo - w_o.T @ w_o + np.diag(obs.noise_std_m**2)
+        chol = np.linalg.cholesky(0.5 * (k_oo + k_oo.T) + 1e-12 * np.eye(len(k_oo)))
+        cov_cand = self._prior_cand_point(obs.xy, obs.boundary)
+        R = state.n_rows
+        cov_cand -= np.einsum("rlb,rm->lbm", state.F[:R], w_o)
+        # slots: prior covariance of readings with targets minus the existing probes' part
+        real = t.slot_cell >= 0
+        terms = np.stack(_unit_correlations(self.ground, obs.xy, t.cells, fields_o, t.fields))
+        cum = np.cumsum(terms, axis=0)  # (B, m, C)
+        cov_slots = np.zeros((obs.size, len(t.slot_cell)))
+        sb, sc = t.slot_bnd[real], t.slot_cell[real]
+        cov_slots[:, real] = cum[np.minimum(obs.boundary[:, None], sb[None, :]),
+                                 np.arange(obs.size)[:, None], sc[None, :]]
+        if pred_t.white:
+            white_t = np.concatenate(pred_t.white, axis=0)
+            cov_slots[:, real] -= w_o.T @ white_t[:, sb, sc]
+        before = state.V.copy()
+        state.flush()
+        state.apply(chol, cov_cand, cov_slots)
+        gain = float(
+            np.sum(self._slot_omega() * 0.5 * np.log2(before / np.maximum(state.V, 1e-300)))
+        )
+        return cost, gain
+
+    def _white_at(self, pred, bnds: np.ndarray) -> np.ndarray:
+        """Whitened covariance of the existing readings with readings ``bnds`` at the
+        prediction's points: ``(m_e, m)``."""
+        if not pred.white:
+            return np.zeros((0, len(bnds)))
+        w = np.concatenate(pred.white, axis=0)  # (m_e, B, m)
+        return w[:, bnds, np.arange(len(bnds))]
+
+    def _slot_omega(self) -> np.ndarray:
+        t = self.targets
+        out = np.zeros(len(t.slot_cell))
+        for a, b, w in zip(t.run_start, t.run_stop, t.run_omega, strict=True):
+            out[a:b] = w * 2.0 * math.log(2.0)  # back from bits-scaled to plain weights
+        out[t.slot_cell < 0] = 0.0
+        return out
+
+
+def greedy_run(
+    problem: GreedyProblem,
+    state: GreedyState,
+    allowed: np.ndarray,
+    budget_left: float,
+    min_spacing_m: float,
+    taken_xy: np.ndarray | None = None,
+    max_picks: int | None = None,
+    on_pick: Callable[[int], None] | None = None,
+) -> tuple[Pick, ...]:
+    """Greedy forward selection on gain per cost until nothing more fits.
+
+    Parameters
+    ----------
+    problem : GreedyProblem
+    state : GreedyState
+        Updated in place.
+    allowed : (J,) bool
+        Methods of the mix.
+    budget_left : float
+        Money left for per-location and per-metre costs.
+    min_spacing_m : float
+        Least distance from a chosen (or already taken) probe to the next.
+    taken_xy : (n, 2) float, optional
+        Local coordinates of probes already in the layout (a hand-made start).
+    max_picks : int, optional
+        Stop after this many picks.
+    on_pick : callable, optional
+        Called with the number of picks so far; may raise to cancel.
+    """
+    cand = problem.cand
+    active = cand.valid & allowed[None, :]
+    dist_ok = np.ones(len(cand.local), dtype=bool)
+    if taken_xy is not None and len(taken_xy):
+        for p in taken_xy:
+            dist_ok &= np.hypot(*(cand.local - p).T) >= min_spacing_m
+    picks: list[Pick] = []
+    while max_picks is None or len(picks) < max_picks:
+        active &= dist_ok[:, None] & (cand.cost <= budget_left + 1e-9)
+        if not active.any():
+            break
+        gain = problem.score(state, active)
+        ratio = np.where(active & (gain > MIN_GAIN_BITS), gain / np.maximum(cand.cost, 1e-9), -1)
+        best = int(np.argmax(ratio))
+        if ratio.flat[best] <= 0:
+            break
+        l, j = divmod(best, ratio.shape[1])
+        picks.append(Pick(l, j, float(cand.cost[l, j]), float(gain[l, j])))
+        budget_left -= cand.cost[l, j]
+        problem.apply_pick(state, l, j)
+        dist_ok &= np.hypot(*(cand.local - cand.local[l]).T) >= min_spacing_m
+        if on_pick is not None:
+            on_pick(len(picks))
+    return tuple(picks)
+
+
+def method_mixes(method_ids: Sequence[str], mobilisation: dict[str, float], budget: float,
+                 max_size: int) -> list[tuple[str, ...]]:
+    """Every mix of at most ``max_size`` methods whose mobilisation fits the budget."""
+    mixes = []
+    for size in range(1, min(max_size, len(method_ids)) + 1):
+        for mix in itertools.combinations(method_ids, size):
+            if sum(mobilisation[m] for m in mix) < budget:
+                mixes.append(mix)
+    return mixes
+
+
+def layout_from_run(problem: GreedyProblem, run: GreedyRun, n_picks: int, start: Layout | None,
+                    name: str) -> Layout:
+    """The layout of the first ``n_picks`` picks of a run (after its start layout)."""
+    cand = problem.cand
+    probes = list(start.probes) if start is not None else []
+    used_ids = {p.id for p in probes}
+    counters: dict[str, int] = {}
+    for p in run.picks[:n_picks]:
+        mid = cand.method_ids[p.method]
+        while True:
+            counters[mid] = counters.get(mid, 0) + 1
+            pid = f"{mid}-O{counters[mid]:02d}"
+            if pid not in used_ids:
+                break
+        used_ids.add(pid)
+        x, y = cand.xy[p.location]
+        probes.append(PlannedProbe(pid, mid, float(x), float(y)))
+    return Layout(name, tuple(probes))
+
+
+def upper_envelope(points: Sequence[tuple[float, float]]) -> tuple[tuple[float, float], ...]:
+    """Cost-gain points where the gain rises above every cheaper point: the curve."""
+    out: list[tuple[float, float]] = []
+    best = -math.inf
+    for cost, gain in sorted(points, key=lambda p: (p[0], -p[1])):
+        if gain > best + 1e-12:
+            out.append((float(cost), float(gain)))
+            best = gain
+    return tuple(out)
+
+
+def optimise(
+    project: Project,
+    options: OptimiseOptions,
+    progress: ProgressFn | None = None,
+    should_stop: Callable[[], bool] | None = None,
+    name: str | None = None,
+) -> OptimiseResult:
+    """Propose the layout that buys the most information within ``options.budget``.
+
+    Parameters
+    ----------
+    project : Project
+    options : OptimiseOptions
+    progress : callable(fraction, message), optional
+        Told how far the search is (0..1).
+    should_stop : callable() -> bool, optional
+        Polled between picks; when it returns True the search raises OptimiseCancelled.
+    name : str, optional
+        Name of the returned layout.
+
+    Returns
+    -------
+    OptimiseResult
+
+    Raises
+    ------
+    OptimiseError
+        No usable candidate or nothing fits the budget.
+    OptimiseCancelled
+    """
+    t_start = time.perf_counter()
+    report = progress or (lambda f, m: None)
+    analysis = ProjectAnalysis(project)
+    methods = analysis.methods
+    allowed_ids = tuple(options.methods) if options.methods else tuple(methods)
+    unknown = [m for m in allowed_ids if m not in methods]
+    if unknown:
+        raise OptimiseError(f"no method with id {unknown[0]!r}; methods are {', '.join(methods)}")
+    if not (options.budget > 0 and math.isfinite(options.budget)):
+        raise OptimiseError("the budget must be a positive number")
+    grid = optimisation_grid(project, analysis.origin, options.max_cells)
+    spacing = options.candidate_spacing_m
+    if spacing is None:
+        area = grid.n_cells * grid.cell_area_m2
+        spacing = nice_spacing_m(max(math.sqrt(area / options.target_locations), 1e-3))
+    min_spacing = options.min_spacing_m if options.min_spacing_m is not None else spacing
+    xy = candidate_locations(project, analysis.origin, spacing)
+    if len(xy) == 0:
+        raise OptimiseError(
+            "no candidate location: the site (less exclusions) is smaller than the candidate "
+            "spacing; use a finer --candidate-spacing"
+        )
+    report(0.02, f"planning {len(xy)} locations x {len(allowed_ids)} methods")
+    cand = build_candidates(analysis, xy, allowed_ids)
+    if not cand.valid.any():
+        raise OptimiseError("no allowed method can read any boundary anywhere on the site")
+    targets = build_targets(analysis, grid)
+    report(0.05, "building the covariance of candidates and targets")
+    problem = GreedyProblem(analysis, cand, targets)
+    mob = {m: methods[m].mobilisation for m in allowed_ids}
+
+    jobs: list[tuple[tuple[str, ...], Layout | None]] = [
+        (mix, None)
+        for mix in method_mixes(allowed_ids, mob, options.budget, options.max_methods_per_mix)
+    ]
+    if options.warm_start:
+        for layout in project.layouts:
+            used = tuple(dict.fromkeys(p.method for p in layout.probes))
+            if layout.probes and set(used) <= set(allowed_ids):
+                jobs.append((used, layout))
+    if not jobs:
+        raise OptimiseError(
+            f"the budget {options.budget:g} does not cover the mobilisation of any method"
+        )
+
+    runs: list[GreedyRun] = []
+    starts: dict[int, Layout | None] = {}
+    for n_job, (mix, start) in enumerate(jobs):
+        if should_stop is not None and should_stop():
+            raise OptimiseCancelled()
+        state = problem.base_state.copy()
+        start_cost = start_gain = 0.0
+        taken = None
+        if start is not None:
+            start_cost, start_gain = problem.apply_layout(state, start)
+            if start_cost > options.budget:
+                continue
+            taken = analysis.to_local(np.array([(p.x, p.y) for p in start.probes]))
+            left = options.budget - start_cost
+        else:
+            left = options.budget - sum(mob[m] for m in mix)
+        allowed = np.array([m in mix for m in cand.method_ids])
+        label = f"from {start.name!r}" if start is not None else "+".join(mix)
+
+        def on_pick(n, n_job=n_job, label=label):
+            if should_stop is not None and should_stop():
+                raise OptimiseCancelled()
+            report(0.05 + 0.85 * (n_job + min(n, 50) / 50) / len(jobs), f"{label}: {n} picks")
+
+        picks = greedy_run(problem, state, allowed, left, min_spacing, taken, on_pick=on_pick)
+        starts[len(runs)] = start
+        runs.append(GreedyRun(mix, start.name if start else None, start_cost, start_gain, picks))
+        report(0.05 + 0.85 * (n_job + 1) / len(jobs), f"{label}: done, {len(picks)} picks")
+
+    # every prefix within the budget; the curve is their upper envelope
+    prefixes = []
+    for r_idx, run in enumerate(runs):
+        for n, cost, gain in run.prefixes(cand, mob):
+            if cost <= options.budget + 1e-9 and (n > 0 or run.start is not None):
+                prefixes.append((gain, -cost, r_idx, n))
+    if not prefixes:
+        raise OptimiseError(f"nothing fits the budget {options.budget:g}")
+    curve = upper_envelope([(-c, g) for g, c, _, _ in prefixes])
+    report(0.92, "re-evaluating the best layouts on the full grid")
+    evaluator = GridEvaluator(project, analysis)
+    finalists = sorted(prefixes, reverse=True)[:FINALISTS]
+    # the best prefix of each warm start keeps the guarantee against hand-made layouts
+    for r_idx, run in enumerate(runs):
+        if run.start is not None:
+            mine = [p for p in prefixes if p[2] == r_idx]
+            if mine:
+                finalists.append(max(mine))
+    title = name or f"Optimised for {options.budget:g}"
+    best = None
+    for _, _, r_idx, n in dict.fromkeys(finalists):
+        layout = layout_from_run(problem, runs[r_idx], n, starts[r_idx], title)
+        result = evaluator.evaluate_layout(layout)
+        key = (result.information_gain_bits, -result.cost)
+        if result.cost <= options.budget + 1e-6 and (best is None or key > best[0]):
+            best = (key, layout, result)
+    if best is None:  # pragma: no cover - prefixes were costed the same way
+        raise OptimiseError(f"nothing fits the budget {options.budget:g}")
+    report(1.0, "done")
+    return OptimiseResult(
+        layout=best[1],
+        result=best[2],
+        curve=curve,
+        runs=tuple(runs),
+        candidates=cand,
+        optimisation_cells=grid.n_cells,
+        optimisation_spacing_m=grid.spacing_m,
+        candidate_spacing_m=float(spacing),
+        min_spacing_m=float(min_spacing),
+        seconds=time.perf_counter() - t_start,
+    )

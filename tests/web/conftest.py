@@ -1,0 +1,42 @@
+"""Fixtures for the web tests: an app over a fresh database in tmp_path, and its client.
+
+The client talks to http://127.0.0.1 so the Host check (DNS-rebinding guard) is exercised as
+in real use; ``lifespan`` runs (``with TestClient``) so the demo project is seeded.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterator
+from pathlib import Path
+
+import pytest
+from fastapi.testclient import TestClient
+
+from server.web.app import create_app
+from web_helpers import BASE_URL
+
+DATA = Path(__file__).resolve().parents[1] / "data"
+
+
+@pytest.fixture
+def db_path(tmp_path: Path) -> Path:
+    return tmp_path / "probewise.db"
+
+
+@pytest.fixture
+def client(db_path: Path) -> Iterator[TestClient]:
+    """A client of an app whose fresh database holds the invented demo project."""
+    with TestClient(create_app(db_path), base_url=BASE_URL) as test_client:
+        yield test_client
+
+
+@pytest.fixture
+def empty_client(db_path: Path) -> Iterator[TestClient]:
+    """A client of an app over an empty database (no demo)."""
+    with TestClient(create_app(db_path, seed=False), base_url=BASE_URL) as test_client:
+        yield test_client
+
+
+@pytest.fixture
+def tiny_bytes() -> bytes:
+    return (DATA / "tiny-model.json").read_bytes()
