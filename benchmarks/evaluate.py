@@ -48,7 +48,9 @@ def extra_layouts(model: dict, count: int) -> list[dict]:
         probes = [
             {"id": f"{method}{i + 1:03d}", "method": method, "x": float(x), "y": float(y)}
             for i, (x, y) in enumerate(
-                (x, y) for x in range(step // 2, int(w), step) for y in range(step // 2, int(h), step)
+                (x, y)
+                for x in range(step // 2, int(w), step)
+                for y in range(step // 2, int(h), step)
             )
         ]
         out.append({"name": f"Stress grid {n + 1} ({method} at {step} m)", "probes": probes})

@@ -244,10 +244,10 @@ def _read_table(data: bytes, filename: str) -> tuple[list[str], list[tuple[int, 
     text = _decode(data)
     if not text.strip():
         raise InputError(filename, "is empty")
-    try:
-        delimiter = csv.Sniffer().sniff(text[:4096], delimiters=",;\t").delimiter
-    except csv.Error:
-        delimiter = ","
+    # The heading row decides the separator: the candidate it holds most of (comma on a tie),
+    # which copes with semicolon files from locales that write decimal commas.
+    first = next(line for line in text.splitlines() if line.strip())
+    delimiter = max((",", ";", "\t"), key=first.count)
     reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter)
     rows: list[tuple[int, list[str]]] = []
     header: list[str] | None = None

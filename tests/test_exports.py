@@ -20,10 +20,24 @@ from pyproj import Transformer
 from server import exports
 
 PLANNED = [
-    {"id": "BH01", "method": "BH", "x": 530_050.0, "y": 180_060.0, "depth_m": 9.123,
-     "observes": ["Made ground", "Alluvial clay", "River gravel"], "target": "River gravel"},
-    {"id": "CPT01", "method": "CPT", "x": 530_020.0, "y": 180_060.0, "depth_m": 5.5,
-     "observes": ["Made ground", "Alluvial clay"], "target": "Alluvial clay"},
+    {
+        "id": "BH01",
+        "method": "BH",
+        "x": 530_050.0,
+        "y": 180_060.0,
+        "depth_m": 9.123,
+        "observes": ["Made ground", "Alluvial clay", "River gravel"],
+        "target": "River gravel",
+    },
+    {
+        "id": "CPT01",
+        "method": "CPT",
+        "x": 530_020.0,
+        "y": 180_060.0,
+        "depth_m": 5.5,
+        "observes": ["Made ground", "Alluvial clay"],
+        "target": "Alluvial clay",
+    },
 ]
 
 
@@ -131,8 +145,17 @@ def test_posterior_grid_csv_long_rows(tmp_path):
     exports.write_posterior_grid_csv(xy, names, fields, path)
     back = list(csv.DictReader(path.open(newline="")))
     assert len(back) == 6
-    assert list(back[0]) == ["x", "y", "boundary", "mean_m", "std_m", "p05_m", "p50_m", "p95_m",
-                             "width90_m"]
+    assert list(back[0]) == [
+        "x",
+        "y",
+        "boundary",
+        "mean_m",
+        "std_m",
+        "p05_m",
+        "p50_m",
+        "p95_m",
+        "width90_m",
+    ]
     clay = [r for r in back if r["boundary"] == "Alluvial clay"]
     assert [float(r["x"]) for r in clay] == list(xy[:, 0])
     want = fields["p95_m"][:, 1] - fields["p05_m"][:, 1]
@@ -155,8 +178,10 @@ def test_posterior_grid_gpkg_layer_per_boundary(tmp_path):
 
 def test_posterior_grid_shape_checked():
     with pytest.raises(exports.InputError, match="shape"):
-        exports.write_posterior_grid_csv(np.zeros((2, 2)), ["a"], {"std_m": np.zeros((3, 1))},
-                                         io.StringIO())
+        exports.write_posterior_grid_csv(
+            np.zeros((2, 2)), ["a"], {"std_m": np.zeros((3, 1))}, io.StringIO()
+        )
     with pytest.raises(exports.InputError, match="unknown field"):
-        exports.write_posterior_grid_csv(np.zeros((2, 2)), ["a"], {"var": np.zeros((2, 1))},
-                                         io.StringIO())
+        exports.write_posterior_grid_csv(
+            np.zeros((2, 2)), ["a"], {"var": np.zeros((2, 1))}, io.StringIO()
+        )

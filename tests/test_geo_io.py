@@ -36,8 +36,12 @@ def lonlat_box_around(model: dict, margin_deg: float = 0.0005) -> Polygon:
     """A lon/lat rectangle enclosing the model's site (so its probes stay inside)."""
     x0, y0, x1, y1 = shape(model["site"]).bounds
     lons, lats = TO_WGS84.transform([x0, x1, x0, x1], [y0, y0, y1, y1])
-    return box(min(lons) - margin_deg, min(lats) - margin_deg, max(lons) + margin_deg,
-               max(lats) + margin_deg)
+    return box(
+        min(lons) - margin_deg,
+        min(lats) - margin_deg,
+        max(lons) + margin_deg,
+        max(lats) + margin_deg,
+    )
 
 
 def area_by_pyproj(poly_lonlat: Polygon) -> float:
@@ -95,7 +99,9 @@ def test_gpkg_layer_must_be_chosen_when_several(tiny_model, tmp_path):
     assert err.value.field == "two.gpkg layer c"
 
 
-@settings(max_examples=15, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@settings(
+    max_examples=15, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture]
+)
 @given(
     lon=st.floats(-2.5, 1.0),
     lat=st.floats(50.5, 54.0),
@@ -189,8 +195,9 @@ def test_check_project_crs_normalises():
 def test_self_intersecting_polygon_named_with_feature_and_repaired(tmp_path):
     bowtie = Polygon([(0, 0), (10, 10), (10, 0), (0, 10), (0, 0)])
     path = tmp_path / "zones.geojson"
-    write_geojson(path, [feature(box(0, 0, 5, 5), name="ok"), feature(bowtie, name="bow")],
-                  crs="EPSG:27700")
+    write_geojson(
+        path, [feature(box(0, 0, 5, 5), name="ok"), feature(bowtie, name="bow")], crs="EPSG:27700"
+    )
     with pytest.raises(InputError) as err:
         read_polygons(path, target_crs="EPSG:27700")
     assert err.value.field == "zones.geojson feature 2"
@@ -222,8 +229,14 @@ def test_not_a_polygon_and_empty_refused(tmp_path):
 
 def test_null_geometry_reported(tmp_path):
     path = tmp_path / "nullgeom.geojson"
-    path.write_text(json.dumps({"type": "FeatureCollection", "features": [
-        {"type": "Feature", "geometry": None, "properties": {"name": "x"}}]}))
+    path.write_text(
+        json.dumps(
+            {
+                "type": "FeatureCollection",
+                "features": [{"type": "Feature", "geometry": None, "properties": {"name": "x"}}],
+            }
+        )
+    )
     with pytest.raises(InputError, match="has no geometry") as err:
         read_polygons(path, target_crs="EPSG:27700")
     assert err.value.field == "nullgeom.geojson feature 1"
@@ -247,12 +260,14 @@ def test_zipped_shapefile_round_trip_with_names(tiny_model, tmp_path):
     model = placed_model(tiny_model)
     dx, dy = BNG_OFFSET
     sheds = [box(dx + 20, dy + 90, dx + 40, dy + 110), box(dx + 60, dy + 5, dx + 70, dy + 15)]
-    frame = geopandas.GeoDataFrame({"LABEL": ["Shed A", "Shed B"]}, geometry=sheds,
-                                   crs="EPSG:27700")
+    frame = geopandas.GeoDataFrame(
+        {"LABEL": ["Shed A", "Shed B"]}, geometry=sheds, crs="EPSG:27700"
+    )
     data = shapefile_zip(tmp_path, frame)
     assert list_layers(data, filename="exclusions.zip") == ["exclusions"]
-    got = read_polygons(data, filename="exclusions.zip", target_crs="EPSG:27700",
-                        name_column="label")
+    got = read_polygons(
+        data, filename="exclusions.zip", target_crs="EPSG:27700", name_column="label"
+    )
     assert [f["name"] for f in got] == ["Shed A", "Shed B"]
     for f, want in zip(got, sheds, strict=True):
         assert shape(f["geometry"]).equals(want)
@@ -342,13 +357,15 @@ def test_weight_column_for_areas_of_interest(tiny_model, tmp_path):
     assert err.value.field == "aoi.gpkg column nope" and "title, w" in err.value.problem
 
 
-@pytest.mark.parametrize(("value", "words"), [("high", "'high' is not a number"),
-                                              ("0", "not a weight > 0"),
-                                              ("", "empty")])
+@pytest.mark.parametrize(
+    ("value", "words"),
+    [("high", "'high' is not a number"), ("0", "not a weight > 0"), ("", "empty")],
+)
 def test_bad_weight_named_by_feature_and_column(tmp_path, value, words):
     path = tmp_path / "aoi.geojson"
-    write_geojson(path, [feature(box(0, 0, 5, 5), w="2"), feature(box(5, 5, 9, 9), w=value)],
-                  crs="EPSG:27700")
+    write_geojson(
+        path, [feature(box(0, 0, 5, 5), w="2"), feature(box(5, 5, 9, 9), w=value)], crs="EPSG:27700"
+    )
     with pytest.raises(InputError, match=words) as err:
         read_polygons(path, target_crs=None, assume_local=True, weight_column="w")
     assert err.value.field == "aoi.geojson feature 2, column w"
@@ -373,8 +390,10 @@ def test_zones_from_multipolygon_split_and_named(tiny_model, tmp_path):
 
 
 def test_site_union_of_features_and_bad_role(tiny_model):
-    feats = [{"name": "a", "geometry": mapping(box(0, 0, 120, 120))},
-             {"name": "b", "geometry": mapping(box(100, 0, 200, 120))}]
+    feats = [
+        {"name": "a", "geometry": mapping(box(0, 0, 120, 120))},
+        {"name": "b", "geometry": mapping(box(100, 0, 200, 120))},
+    ]
     updated = apply_polygons(tiny_model, "site", feats)
     assert shape(updated["site"]).equals(box(0, 0, 200, 120))
     with pytest.raises(InputError, match="not one of site"):

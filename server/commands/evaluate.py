@@ -147,7 +147,7 @@ def evaluation_text(evaluation, currency: str) -> str:
         f"Cost{cur}",
         "Days",
         "Gain (bits)",
-        f"Bits per 1000{cur}",
+        f"Bits per 1000 {currency}".rstrip(),
         "Pareto",
     ]
     parts += ["", "Layouts", format_table(headers, rows) if rows else "(no layouts)"]

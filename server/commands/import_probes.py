@@ -86,10 +86,18 @@ def _mapping(args: argparse.Namespace) -> dict[str, str]:
     return mapping
 
 
-def _table(headers: list[str], rows: list[list[str]]) -> str:
-    from server.commands.evaluate import format_table
+def _table(headers: list[str], rows: list[list[str]], right: tuple[int, ...] = ()) -> str:
+    """Plain-text table, columns left-aligned except those in ``right`` (numbers)."""
+    cells = [headers, *rows]
+    widths = [max(len(r[c]) for r in cells) for c in range(len(headers))]
 
-    return format_table(headers, rows)
+    def line(row: list[str]) -> str:
+        return "  ".join(
+            v.rjust(w) if c in right else v.ljust(w)
+            for c, (v, w) in enumerate(zip(row, widths, strict=True))
+        ).rstrip()
+
+    return "\n".join([line(headers), "  ".join("-" * w for w in widths), *map(line, rows)])
 
 
 def _show_list(title: str, items: list[str]) -> None:
@@ -120,7 +128,7 @@ def _probe_rows(probes: list[dict], outside: list[str]) -> list[list[str]]:
 
 def _print_probes(probes: list[dict], outside: list[str]) -> None:
     headers = ["id", "method", "x", "y", "final m", "observed bases (m)", ""]
-    print(_table(headers, _probe_rows(probes, outside)))
+    print(_table(headers, _probe_rows(probes, outside), right=(2, 3, 4)))
 
 
 def run(args: argparse.Namespace) -> int:
@@ -194,7 +202,7 @@ def _from_table(args, model, data, name, mapping):
         if not args.output and not args.preview:
             print("nothing written: give -o OUT to import")
         return None, None, None, None
-    if not preview.probes:
+    if not preview.probes and not preview.problems:
         raise InputError(name, "has no probe rows to import")
     return preview.probes, preview.outside_site, preview.problems, preview.notes
 
@@ -222,7 +230,7 @@ def _from_ags4(args, model, data, name, mapping):
                 )
             )
             rows.append([code, desc[:60], str(count), shown])
-        print(_table(["code", "description", "layers", "unit"], rows))
+        print(_table(["code", "description", "layers", "unit"], rows, right=(2,)))
         types = sorted({h.type or "(blank)" for h in holes.holes})
         print(f"location types: {', '.join(types)}")
         print(f"project units: {', '.join(u['name'] for u in model['units'])}")

@@ -73,7 +73,9 @@ def posterior_text(names, post, inside, layout_name: str | None) -> str:
 
     given = f"existing probes and layout '{layout_name}'" if layout_name else "existing probes"
     parts = [f"Boundary depths (m below ground level) given {given}"]
-    headers = ["Base of", "Prior mean", "Prior std", "Mean", "Std", "P5", "P95"]
+    headers = ["Base of"] + [
+        f"{h} (m)" for h in ("Prior mean", "Prior std", "Mean", "Std", "P5", "P95")
+    ]
     for i, (x, y) in enumerate(post.xy):
         where = "" if inside[i] else "  (outside the site)"
         rows = [

@@ -22,8 +22,8 @@ class EmptyGridError(ValueError):
 
 @dataclass(frozen=True, eq=False)
 class EvaluationGrid:
-    """Cell centres relative to the project origin ``xy (n, 2)``, ``weight (n,)`` and the
-    area of one cell (m2). ``shape``/``index`` place each cell on the full bbox raster
+    """Cell centres relative to ``origin``: ``xy (n, 2)``, ``weight (n,)`` and the area of
+    one cell (m2). ``shape``/``index`` place each cell on the full bbox raster
     (``index (n, 2)`` = row from the bottom, column from the left) for maps."""
 
     xy: np.ndarray
@@ -32,10 +32,16 @@ class EvaluationGrid:
     spacing_m: float
     shape: tuple[int, int]
     index: np.ndarray
+    origin: tuple[float, float] = (0.0, 0.0)
 
     @property
     def n_cells(self) -> int:
         return int(self.xy.shape[0])
+
+    @property
+    def xy_project(self) -> np.ndarray:
+        """Cell centres in project coordinates ``(n, 2)``."""
+        return self.xy + np.asarray(self.origin, dtype=float)
 
 
 def evaluation_grid(site: Site, origin: tuple[float, float]) -> EvaluationGrid:
@@ -78,4 +84,6 @@ def evaluation_grid(site: Site, origin: tuple[float, float]) -> EvaluationGrid:
         inside = points_in_polygon(xy, area.polygon, origin)
         heaviest = np.where(inside, np.maximum(heaviest, area.weight), heaviest)
     weight = np.where(np.isfinite(heaviest), heaviest, weight)
-    return EvaluationGrid(xy, weight, g * g, g, (ny, nx), index)
+    return EvaluationGrid(
+        xy, weight, g * g, g, (ny, nx), index, (float(origin[0]), float(origin[1]))
+    )

@@ -286,6 +286,21 @@ def build_targets(analysis: ProjectAnalysis, grid: EvaluationGrid) -> Targets:
     return Targets(grid.xy, fields, bnds, omega, slot_cell, slot_bnd, rs, re_, rw)
 
 
+def forward_substitute(low: np.ndarray, rhs: np.ndarray) -> np.ndarray:
+    """``low^-1 rhs`` for a small lower-triangular ``low (m, m)`` and a wide ``rhs (m, n)``.
+
+    Row by row, vectorised over the columns: for the few readings of one probe this is much
+    faster than a LAPACK call on a wide right-hand side.
+    """
+    if low.shape[0] > 16:
+        return solve_triangular(low, rhs, lower=True, check_finite=False)
+    out = np.empty_like(rhs, dtype=float)
+    for i in range(low.shape[0]):
+        row = rhs[i] - low[i, :i] @ out[:i] if i else rhs[i].astype(float)
+        out[i] = row / low[i, i]
+    return out
+
+
 def _unit_correlations(ground, xy_a: np.ndarray, xy_b: np.ndarray, fa, fb) -> list[np.ndarray]:
     """Per unit ``s_i(a) s_i(b) rho_i(|a - b|)``: list of ``(na, nb)``."""
     h = np.sqrt(((xy_a[:, None, :] - xy_b[None, :, :]) ** 2).sum(axis=2))
@@ -349,8 +364,8 @@ class GreedyState:
             Current posterior covariance of the block with every target slot.
         """
         L, B, m = cov_cand.shape
-        g = solve_triangular(chol, cov_cand.reshape(L * B, m).T, lower=True).T.reshape(L, B, m)
-        h = solve_triangular(chol, cov_slots, lower=True)
+        g = forward_substitute(chol, cov_cand.reshape(L * B, m).T).T.reshape(L, B, m)
+        h = forward_substitute(chol, cov_slots)
         self.flush()
         self.V -= np.einsum("qs,qs->s", h, h)
         self.P -= np.einsum("lbq,lcq->lbc", g, g)

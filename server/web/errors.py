@@ -68,12 +68,31 @@ def field_path(loc: tuple | list) -> str:
     return text or "body"
 
 
+# Pydantic's wording for the common cases, in the model file's plain style.
+PLAIN_PROBLEMS = {
+    "missing": "is required",
+    "dict_type": "must be a JSON object",
+    "model_type": "must be a JSON object",
+    "model_attributes_type": "must be a JSON object",
+    "list_type": "must be a JSON array",
+    "int_parsing": "must be a whole number",
+    "int_type": "must be a whole number",
+    "int_from_float": "must be a whole number",
+    "float_parsing": "must be a number",
+    "float_type": "must be a number",
+    "bool_parsing": "must be true or false",
+    "bool_type": "must be true or false",
+    "string_type": "must be text",
+}
+
+
 def field_problems_of(exc: RequestValidationError) -> list[dict[str, str]]:
     problems = []
     for error in exc.errors():
         loc = error.get("loc", ())
-        problem = str(error.get("msg", "invalid value"))
-        if error.get("type") == "json_invalid":
+        kind = error.get("type", "")
+        problem = PLAIN_PROBLEMS.get(kind) or str(error.get("msg", "invalid value"))
+        if kind == "json_invalid":
             # loc ends in the character offset; name the body, say where
             detail = (error.get("ctx") or {}).get("error", "")
             offset = loc[-1] if loc and isinstance(loc[-1], int) else None
@@ -81,7 +100,7 @@ def field_problems_of(exc: RequestValidationError) -> list[dict[str, str]]:
             if offset is not None:
                 problem += f" (at character {offset})"
             loc = ("body",)
-        elif error.get("type") == "missing" and len(loc) <= 1:
+        elif kind == "missing" and len(loc) <= 1:
             problem = "a JSON body is required"
         problems.append({"field": field_path(loc), "problem": problem})
     return problems

@@ -10,7 +10,7 @@ from typing import Annotated, Any
 
 import sqlite_utils
 from fastapi import APIRouter, Form, Request
-from starlette.responses import RedirectResponse, Response
+from starlette.responses import Response
 
 from server.store import get_project, list_revisions, restore_revision, undo
 from server.store.errors import NothingToUndo, StaleRevision
@@ -24,8 +24,8 @@ from server.web.summary import (
     resolution_rows,
     zone_overrides,
 )
-from server.web.templating import is_htmx, render_page_or_fragment
-from server.web.workflow import nav_items
+from server.web.templating import render_action, render_page_or_fragment
+from server.web.workflow import project_context
 
 router = APIRouter(include_in_schema=False)
 
@@ -38,10 +38,7 @@ def overview_context(
     revisions = sorted(list_revisions(db, project_id), key=lambda r: r.number, reverse=True)
     methods = model.get("methods") or []
     return {
-        "project": project,
-        "model": model,
-        "deleted": project.deleted,
-        "nav": nav_items(project_id, "overview"),
+        **project_context(project, "overview"),
         "site_map": build_site_map(model),
         "units": model.get("units") or [],
         "zone_overrides": zone_overrides(model),
@@ -53,7 +50,6 @@ def overview_context(
         "existing": model.get("existing") or [],
         "existing_mix": existing_by_method(model),
         "layouts": layout_rows(model),
-        "currency": model.get("currency") or "",
         "revisions": revisions,
         "notice": notice,
     }
@@ -67,20 +63,21 @@ def answer(
     notice: dict | None = None,
     status_code: int = 200,
 ) -> Response:
-    if not is_htmx(request) and request.method == "POST" and status_code < 400:
-        return RedirectResponse(f"/projects/{project_id}", status_code=303)
-    return render_page_or_fragment(
+    return render_action(
         request,
         "overview.html",
         "_overview.html",
-        overview_context(db, project_id, notice),
+        lambda: overview_context(db, project_id, notice),
+        redirect_to=f"/projects/{project_id}",
         status_code=status_code,
     )
 
 
 @router.get("/projects/{project_id}")
 def overview_page(request: Request, project_id: int, db: Db) -> Response:
-    return answer(request, db, project_id)
+    return render_page_or_fragment(
+        request, "overview.html", "_overview.html", overview_context(db, project_id)
+    )
 
 
 @router.post("/projects/{project_id}/undo")

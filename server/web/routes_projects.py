@@ -10,7 +10,7 @@ from typing import Annotated, Any
 
 import sqlite_utils
 from fastapi import APIRouter, File, Request, UploadFile
-from starlette.responses import RedirectResponse, Response
+from starlette.responses import Response
 
 from server.errors import InputError
 from server.model_file import parse_model_text
@@ -24,7 +24,7 @@ from server.store import (
 )
 from server.web.deps import Db
 from server.web.downloads import model_file_response
-from server.web.templating import is_htmx, render_page_or_fragment
+from server.web.templating import render_action, render_page_or_fragment
 
 router = APIRouter(include_in_schema=False)
 
@@ -45,14 +45,12 @@ def projects_context(db: sqlite_utils.Database, **extra: Any) -> dict[str, Any]:
 def answer(
     request: Request, db: sqlite_utils.Database, *, status_code: int = 200, **extra: Any
 ) -> Response:
-    """The list page or its fragment; a plain successful form post is redirected back."""
-    if not is_htmx(request) and request.method == "POST" and status_code < 400:
-        return RedirectResponse("/", status_code=303)
-    return render_page_or_fragment(
+    return render_action(
         request,
         "projects.html",
         "_projects.html",
-        projects_context(db, **extra),
+        lambda: projects_context(db, **extra),
+        redirect_to="/",
         status_code=status_code,
     )
 
@@ -75,7 +73,7 @@ def parse_model_upload(content: bytes) -> dict[str, Any]:
 
 @router.get("/")
 def projects_page(request: Request, db: Db) -> Response:
-    return answer(request, db)
+    return render_page_or_fragment(request, "projects.html", "_projects.html", projects_context(db))
 
 
 @router.post("/projects/import")

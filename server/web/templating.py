@@ -8,7 +8,7 @@ first load and an htmx swap produce the same markup.
 from __future__ import annotations
 
 import math
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
 from datetime import datetime
 from pathlib import Path
 from typing import Any
@@ -16,7 +16,7 @@ from typing import Any
 import jinja2
 from fastapi import Request
 from fastapi.templating import Jinja2Templates
-from starlette.responses import Response
+from starlette.responses import RedirectResponse, Response
 
 REPO_ROOT = Path(__file__).resolve().parents[2]
 TEMPLATES_DIR = REPO_ROOT / "templates"
@@ -149,3 +149,25 @@ def render_page_or_fragment(
     """The fragment for an htmx swap, else the whole page (which includes the fragment)."""
     name = fragment if is_htmx(request) else page
     return render(request, name, context, status_code=status_code)
+
+
+def render_action(
+    request: Request,
+    page: str,
+    fragment: str,
+    build_context: Callable[[], Mapping[str, Any]],
+    *,
+    redirect_to: str,
+    status_code: int = 200,
+) -> Response:
+    """Answer a form action (a POST).
+
+    htmx gets the refreshed fragment (with whatever notice the context carries); a plain form
+    post that succeeded is redirected to ``redirect_to`` (post/redirect/get); one that failed
+    gets the whole page with its message and the error status.
+    """
+    if not is_htmx(request) and status_code < 400:
+        return RedirectResponse(redirect_to, status_code=303)
+    return render_page_or_fragment(
+        request, page, fragment, build_context(), status_code=status_code
+    )

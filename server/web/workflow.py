@@ -7,6 +7,7 @@ exists. A step without a path shows in the bar as plain text, never as a link th
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import Any
 
 
 @dataclass(frozen=True)
@@ -50,3 +51,19 @@ def nav_items(project_id: int, current_key: str) -> list[NavItem]:
         )
         for step in WORKFLOW_STEPS
     ]
+
+
+def project_context(project: Any, step_key: str) -> dict[str, Any]:
+    """What every project page's template needs: the project, its model and the nav bar.
+
+    ``project`` is a server.store.StoredProject. ``deleted`` projects are read-only: pages
+    should hide their edit controls (the store refuses changes anyway).
+    """
+    model = project.model
+    return {
+        "project": project,
+        "model": model,
+        "deleted": project.deleted,
+        "currency": model.get("currency") or "",
+        "nav": nav_items(project.id, step_key),
+    }

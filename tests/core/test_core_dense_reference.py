@@ -127,3 +127,35 @@ def test_projected_coordinates_lose_no_precision(tiny_with_extras):
     p1 = ProjectAnalysis(to_core(moved_model)).at_points(pts + [512000.0, 6190000.0])
     for field in ("mean_m", "std_m", "p05_m", "p95_m"):
         np.testing.assert_allclose(getattr(p1, field), getattr(p0, field), atol=TOL)
+
+
+def test_benchmark_case_s_matches_dense_reference():
+    """The L-shaped synthetic case S of benchmarks/make_case.py (four boundaries, a zone, an
+    area, refusal on Bedrock and on Sand and gravel) with a mixed layout added."""
+    import importlib.util
+    from pathlib import Path
+
+    path = Path(__file__).resolve().parents[2] / "benchmarks" / "make_case.py"
+    spec = importlib.util.spec_from_file_location("make_case", path)
+    make_case = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(make_case)
+    model = make_case.make("S", 3)
+    model["layouts"].append(
+        {
+            "name": "Mixed",
+            "probes": [
+                {"id": "C1", "method": "CPT", "x": 70.0, "y": 40.0},
+                {"id": "C2", "method": "CPT", "x": 150.0, "y": 60.0},
+                {"id": "D1", "method": "DMT", "x": 40.0, "y": 120.0},
+                {"id": "B1", "method": "BH", "x": 110.0, "y": 20.0},
+            ],
+        }
+    )
+    ref = Dense(model).evaluate()
+    got = evaluation_json(evaluate_project(to_core(model)))
+    _compare_metrics(got["baseline"]["boundaries"], ref["baseline"]["boundaries"])
+    for lay, rl in zip(got["layouts"], ref["layouts"], strict=True):
+        _compare_metrics(lay["boundaries"], rl["boundaries"])
+        for key in ("cost", "metres", "duration_days", "information_gain_bits"):
+            assert lay[key] == pytest.approx(rl[key], rel=1e-9, abs=TOL), (lay["name"], key)
+        assert [p["observes"] for p in lay["probes"]] == [p["observes"] for p in rl["probes"]]

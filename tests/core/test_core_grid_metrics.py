@@ -68,8 +68,12 @@ def test_grid_weight_is_the_heaviest_area_else_one():
     from server.core.model import AreaOfInterest
 
     outline = Polygon((np.array([[0, 0], [10, 0], [10, 10], [0, 10], [0, 0]], float),))
-    light = AreaOfInterest("light", Polygon((np.array([[0, 0], [6, 0], [6, 10], [0, 0]], float),)), 0.5)
-    heavy = AreaOfInterest("heavy", Polygon((np.array([[4, 0], [10, 0], [10, 10], [4, 0]], float),)), 4)
+    light = AreaOfInterest(
+        "light", Polygon((np.array([[0, 0], [6, 0], [6, 10], [0, 0]], float),)), 0.5
+    )
+    heavy = AreaOfInterest(
+        "heavy", Polygon((np.array([[4, 0], [10, 0], [10, 10], [4, 0]], float),)), 4
+    )
     grid = evaluation_grid(Site(outline, 2.0, (light, heavy)), (5.0, 5.0))
     xy = grid.xy + 5.0
     w = dict(zip(map(tuple, xy), grid.weight, strict=True))

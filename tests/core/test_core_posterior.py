@@ -225,9 +225,7 @@ def readings(draw, ground, min_size=0, max_size=8, exact=None):
     return Observations.build(np.array(xy, float).reshape(-1, 2), bnd, tau, val)
 
 
-SETTINGS = settings(
-    max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow]
-)
+SETTINGS = settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 
 
 @SETTINGS

@@ -156,7 +156,9 @@ def test_moments_match_scipy_stats(a, b, c):
     refs = {
         "uniform": stats.uniform(loc=a, scale=c - a),
         "triangular": stats.triang((b - a) / (c - a), loc=a, scale=c - a),
-        "pert": stats.beta(1 + 4 * (b - a) / (c - a), 1 + 4 * (c - b) / (c - a), loc=a, scale=c - a),
+        "pert": stats.beta(
+            1 + 4 * (b - a) / (c - a), 1 + 4 * (c - b) / (c - a), loc=a, scale=c - a
+        ),
     }
     for shape, ref in refs.items():
         mean, std = thickness_moments(ThicknessRange(a, b, c, shape))

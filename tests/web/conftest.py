@@ -11,9 +11,9 @@ from pathlib import Path
 
 import pytest
 from fastapi.testclient import TestClient
+from web_helpers import BASE_URL
 
 from server.web.app import create_app
-from web_helpers import BASE_URL
 
 DATA = Path(__file__).resolve().parents[1] / "data"
 

@@ -285,7 +285,9 @@ def test_undo_from_the_overview_swaps_the_main_fragment(client, demo_model):
 
 def test_undo_without_htmx_redirects_to_the_overview(client):
     rename_via_api(client, 1, "Another name")
-    answer = client.post("/projects/1/undo", data={"expected_revision": "2"}, follow_redirects=False)
+    answer = client.post(
+        "/projects/1/undo", data={"expected_revision": "2"}, follow_redirects=False
+    )
     assert answer.status_code == 303
     assert answer.headers["location"] == "/projects/1"
 
