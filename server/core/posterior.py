@@ -206,12 +206,12 @@ class PosteriorState:
         ``L10 = (L00^-1 K_0p)^T`` and ``L11 = chol(K_pp + R_p - L10 L10^T)``; the mean is
         unchanged and the variance only falls.
         """
-        f_new = unit_fields(self.ground, planned.xy, self.origin)
-        k_pp = _observation_covariance(self.ground, planned, f_new)
         m0, m1 = self.n_observations, planned.size
         if m1 == 0:
             return self
-        scale = float(np.max(np.diag(k_pp))) if m1 else 1.0
+        f_new = unit_fields(self.ground, planned.xy, self.origin)
+        k_pp = _observation_covariance(self.ground, planned, f_new)
+        scale = float(np.max(np.diag(k_pp)))  # jitter relative to the unconditioned scale
         if m0:
             k_0p = np.vstack(
                 [

@@ -123,21 +123,23 @@ class SecurityMiddleware:
             return
 
         length = headers.get("content-length")
-        if length is not None and length.isdigit() and int(length) > self.max_body_bytes:
-            await send_error(send_with_headers, scope, 413, self.too_large_text())
-            return
-
+        declared_too_large = (
+            length is not None and length.isdigit() and int(length) > self.max_body_bytes
+        )
         received = 0
         started = False
 
+        # BodyTooLarge is an HTTPException: it passes FastAPI's body parsing unchanged and
+        # reaches the app's error handlers, which answer 413 in the requester's usual form
+        # (JSON, flash fragment or page); caught below if it escapes them.
         async def receive_capped() -> Message:
             nonlocal received
+            if declared_too_large:
+                raise BodyTooLarge(self.too_large_text())  # before reading a byte of it
             message = await receive()
             if message["type"] == "http.request":
                 received += len(message.get("body", b""))
                 if received > self.max_body_bytes:
-                    # An HTTPException passes through FastAPI's body parsing unchanged and
-                    # reaches the app's handler, which answers 413 in the usual error form.
                     raise BodyTooLarge(self.too_large_text())
             return message
 
@@ -155,8 +157,9 @@ class SecurityMiddleware:
             await send_error(send_with_headers, scope, 413, exc.detail)
 
     def too_large_text(self) -> str:
-        limit_mb = self.max_body_bytes / (1024 * 1024)
-        return f"request body is larger than the {limit_mb:g} MB limit"
+        limit = self.max_body_bytes
+        shown = f"{limit / 1048576:g} MB" if limit >= 1048576 else f"{limit} byte"
+        return f"request body is larger than the {shown} limit"
 
     def check_request(self, scope: Scope, headers: Headers) -> tuple[int, str] | None:
         """(status, message) when the request must be refused, else None."""

@@ -110,6 +110,15 @@ def test_body_over_the_cap_is_refused(db_path, tiny_model):
             "/projects/import", files={"model_file": ("m.json", b"x" * 5000, "application/json")}
         )
         assert answer.status_code == 413
+        assert "1000 byte limit" in answer.text
+        # From the page (htmx), the message goes to the flash area, not into the list.
+        answer = small.post(
+            "/projects/import",
+            files={"model_file": ("m.json", b"x" * 5000, "application/json")},
+            headers={"HX-Request": "true"},
+        )
+        assert answer.status_code == 413
+        assert answer.headers["hx-retarget"] == "#flash"
         assert project_count(small) == 0
 
 
