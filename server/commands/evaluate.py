@@ -2,7 +2,9 @@
 
 With ``--json`` it prints exactly the document of MODEL-FILE.md ("CLI output contract"):
 ``{"baseline": <metrics>, "layouts": [<metrics> + name, cost, metres, duration_days,
-information_gain_bits, gain_per_cost, pareto, probes]}``. Without it, readable tables.
+information_gain_bits, gain_per_cost, pareto, probes]}``, plus an optional ``"notice"`` when
+the evaluation grid was coarsened (too many cells); the notice is also printed on stderr.
+Without ``--json``, readable tables.
 """
 
 from __future__ import annotations
@@ -96,11 +98,16 @@ def layout_json(result, boundary_names: tuple[str, ...]) -> dict:
 
 
 def evaluation_json(evaluation) -> dict:
+    """The ``--json`` document; ``notice`` only when the grid was coarsened."""
     names = evaluation.boundary_names
-    return {
+    out = {
         "baseline": metrics_json(evaluation.baseline.boundaries),
         "layouts": [layout_json(r, names) for r in evaluation.layouts],
     }
+    notice = getattr(evaluation, "grid_notice", None)
+    if notice:
+        out["notice"] = notice
+    return out
 
 
 def _boundary_table(boundaries: dict) -> str:
@@ -181,6 +188,8 @@ def run(args: argparse.Namespace) -> int:
         evaluation = evaluate_project(project)
     except EmptyGridError as exc:
         raise InputError("grid_spacing_m", str(exc)) from None
+    if evaluation.grid_notice:
+        sys.stderr.write(f"notice: {evaluation.grid_notice}\n")
     if args.json:
         sys.stdout.write(json.dumps(evaluation_json(evaluation), allow_nan=False) + "\n")
     else:

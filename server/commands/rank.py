@@ -1,11 +1,179 @@
-"""`probewise rank`: not written yet."""
+"""`probewise rank MODEL [--budgets N,N] [--guidance METHOD:SPACING ...] [--json]`.
+
+Ranks every option side by side: the model's hand-made layouts, guidance grids (one method
+on a regular grid, ``--guidance CPT:25``) and optimised layouts at the given budgets (default:
+the cost of each hand-made layout), all evaluated on the same grid. Prints a table sorted by
+cost with duration, information gain, gain per cost and the Pareto flag, or with ``--json``
+``{"options": [{"name", "kind", "n_probes", "cost", "metres", "duration_days",
+"information_gain_bits", "gain_per_cost", "pareto"}], "budgets": [...]}``.
+"""
+
+from __future__ import annotations
 
 import argparse
+import json
+import sys
+from dataclasses import replace
+
+from server.commands.evaluate import CAUTION, format_table, load_project
+from server.commands.optimise import (
+    ProgressBar,
+    add_optimiser_arguments,
+    optimiser_input_error,
+    optimiser_options,
+    parse_positive,
+    unique_layout_name,
+)
+from server.errors import InputError
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    pass
+    parser.add_argument("model", help="model file (JSON, schema probewise/1)")
+    parser.add_argument(
+        "--budgets",
+        metavar="N,N",
+        help="budgets to optimise for (default: the cost of each hand-made layout)",
+    )
+    parser.add_argument(
+        "--guidance",
+        action="append",
+        metavar="METHOD:SPACING",
+        help="add a guidance grid of METHOD at SPACING m (repeatable), e.g. BH:40",
+    )
+    add_optimiser_arguments(parser)
+    parser.add_argument("--json", action="store_true", help="print JSON for a machine to read")
+
+
+def parse_budgets(text: str | None) -> list[float] | None:
+    if text is None:
+        return None
+    parts = [p.strip() for p in text.split(",") if p.strip()]
+    if not parts:
+        raise InputError("--budgets", "give at least one budget, e.g. --budgets 20000,40000")
+    return sorted({parse_positive(p, "--budgets") for p in parts})
+
+
+def guidance_layouts(items: list[str] | None, project, taken: set[str]):
+    """Layouts of ``METHOD:SPACING`` items; InputError naming --guidance when bad."""
+    from server.core.options import guidance_grid_layout
+
+    out = []
+    for item in items or []:
+        method, sep, spacing = item.rpartition(":")
+        if not sep or not method.strip():
+            raise InputError("--guidance", f"expected METHOD:SPACING (e.g. BH:40), got {item!r}")
+        value = parse_positive(spacing, "--guidance", "spacing in m")
+        try:
+            layout = guidance_grid_layout(project, method.strip(), value)
+        except ValueError as exc:
+            raise InputError("--guidance", f"{item}: {exc}") from None
+        layout = replace(layout, name=unique_layout_name(layout.name, taken))
+        taken.add(layout.name)
+        out.append(layout)
+    return out
+
+
+def ranking_json(ranked, budgets) -> dict:
+    return {
+        "options": [
+            {
+                "name": o.name,
+                "kind": o.kind,
+                "n_probes": o.n_probes,
+                "cost": o.cost,
+                "metres": o.metres,
+                "duration_days": o.duration_days,
+                "information_gain_bits": o.information_gain_bits,
+                "gain_per_cost": o.gain_per_cost,
+                "pareto": o.pareto,
+            }
+            for o in ranked
+        ],
+        "budgets": list(budgets),
+    }
+
+
+def ranking_text(ranked, currency: str) -> str:
+    cur = f" ({currency})" if currency else ""
+    rows = [
+        [
+            o.name,
+            o.kind,
+            str(o.n_probes),
+            f"{o.cost:,.0f}",
+            f"{o.duration_days:,.1f}",
+            f"{o.information_gain_bits:.3f}",
+            "-" if o.gain_per_cost is None else f"{1000 * o.gain_per_cost:.4f}",
+            "yes" if o.pareto else "no",
+        ]
+        for o in ranked
+    ]
+    headers = [
+        "Option",
+        "Kind",
+        "Probes",
+        f"Cost{cur}",
+        "Days",
+        "Gain (bits)",
+        f"Bits per 1000 {currency}".rstrip(),
+        "Pareto",
+    ]
+    return "\n".join(
+        [
+            "Options ranked by cost (Pareto: no other option gains as much for less)",
+            format_table(headers, rows, left=2),
+            "",
+            CAUTION,
+        ]
+    )
 
 
 def run(args: argparse.Namespace) -> int:
-    raise SystemExit("probewise: this command is not available yet")
+    from server.core.grid import EmptyGridError
+    from server.core.optimise import OptimiseError, optimise, prepare_optimisation
+    from server.core.options import rank_options
+
+    _, project = load_project(args.model)
+    budgets = parse_budgets(args.budgets)
+    hand = list(project.layouts)
+    taken = {lay.name for lay in hand}
+    guidance = guidance_layouts(args.guidance, project, taken)
+    kinds = {lay.name: "hand" for lay in hand} | {lay.name: "guidance" for lay in guidance}
+    bar = ProgressBar(sys.stderr.isatty())
+    known = {}
+    optimised = []
+    try:
+        options = optimiser_options(args, project, 1.0)
+        setup = None
+        if budgets is None or budgets:
+            setup = prepare_optimisation(project, options, bar)
+        if budgets is None:  # the cost of each hand-made layout
+            budgets = sorted({setup.problem.layout_cost(lay) for lay in hand})
+        if not budgets and not hand and not guidance:
+            raise InputError(
+                "--budgets", "the model has no layouts to rank; give --budgets or --guidance"
+            )
+        for n, budget in enumerate(budgets):
+
+            def progress(fraction, message, n=n, budget=budget):
+                bar((n + fraction) / len(budgets), f"budget {budget:g}: {message}")
+
+            name = unique_layout_name(f"Optimised for {budget:g}", taken)
+            taken.add(name)
+            out = optimise(
+                project, replace(options, budget=budget), progress, name=name, setup=setup
+            )
+            optimised.append(out.layout)
+            kinds[name] = "optimised"
+            known[name] = out.result
+        evaluator = setup.evaluator if setup is not None else None
+        ranked = rank_options(project, hand + guidance + optimised, kinds, evaluator, known)
+    except (OptimiseError, EmptyGridError) as exc:
+        raise optimiser_input_error(exc) from None
+    finally:
+        bar.close()
+    if args.json:
+        sys.stdout.write(json.dumps(ranking_json(ranked, budgets), allow_nan=False) + "\n")
+    else:
+        sys.stdout.write(ranking_text(ranked, project.currency) + "\n")
+    return 0

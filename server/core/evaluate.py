@@ -24,7 +24,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from server.core.analysis import ProjectAnalysis
-from server.core.grid import EvaluationGrid, evaluation_grid
+from server.core.grid import MAX_GRID_CELLS, EvaluationGrid, evaluation_grid_capped
 from server.core.model import GroundModel, Layout, Method, Project
 from server.core.planning import ProbePlan
 from server.core.posterior import Prediction
@@ -100,6 +100,7 @@ class Evaluation:
     boundary_names: tuple[str, ...]
     baseline: StateResult
     layouts: tuple[LayoutResult, ...]
+    grid_notice: str | None = None  # set when the grid was coarsened (see grid.py)
 
 
 def weighted_mean(values: np.ndarray, weight: np.ndarray) -> np.ndarray:
@@ -185,12 +186,23 @@ def pareto_flags(costs: Sequence[float], gains: Sequence[float]) -> list[bool]:
 
 
 class GridEvaluator:
-    """Evaluates layouts on a project's grid, reusing the baseline solve for every layout."""
+    """Evaluates layouts on a project's grid, reusing the baseline solve for every layout.
 
-    def __init__(self, project: Project, analysis: ProjectAnalysis | None = None):
+    A grid finer than ``max_cells`` is coarsened by a whole factor; ``grid_notice`` then
+    says so (None otherwise).
+    """
+
+    def __init__(
+        self,
+        project: Project,
+        analysis: ProjectAnalysis | None = None,
+        max_cells: int = MAX_GRID_CELLS,
+    ):
         self.analysis = analysis if analysis is not None else ProjectAnalysis(project)
         self.ground = project.ground
-        self.grid = evaluation_grid(project.site, self.analysis.origin)
+        self.grid, self.grid_notice = evaluation_grid_capped(
+            project.site, self.analysis.origin, max_cells
+        )
         self.base_pred = self.analysis.baseline.predict(self.grid.xy)
         base_post = grid_posterior(self.analysis, self.base_pred)
         self.baseline = StateResult(summarise(self.ground, self.grid, base_post), base_post)
@@ -234,9 +246,16 @@ def evaluate_project(project: Project, layouts: Sequence[Layout] | None = None) 
     Returns
     -------
     Evaluation
-        Per-layout metrics, plans, costs, Pareto flags, and per-cell arrays for maps.
+        Per-layout metrics, plans, costs, Pareto flags, per-cell arrays for maps and the
+        grid notice (None unless the grid was coarsened).
     """
     evaluator = GridEvaluator(project)
     chosen = project.layouts if layouts is None else layouts
     results = with_pareto([evaluator.evaluate_layout(layout) for layout in chosen])
-    return Evaluation(evaluator.grid, project.ground.boundary_names, evaluator.baseline, results)
+    return Evaluation(
+        evaluator.grid,
+        project.ground.boundary_names,
+        evaluator.baseline,
+        results,
+        evaluator.grid_notice,
+    )

@@ -28,7 +28,7 @@ import itertools
 import math
 import time
 from collections.abc import Callable, Sequence
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 
 import numpy as np
 from scipy.linalg import solve_triangular
@@ -40,20 +40,31 @@ from server.core.evaluate import GridEvaluator, LayoutResult, layout_cost
 from server.core.field import UnitFields, unit_fields
 from server.core.geometry import points_in_polygon
 from server.core.greedy_kernel import Q_MIN, kernel_for, plan_runs
-from server.core.grid import EvaluationGrid, evaluation_grid
+from server.core.grid import EvaluationGrid, evaluation_grid_capped
 from server.core.model import Layout, PlannedProbe, Project
-from server.core.planning import planned_observations, plan_probes
+from server.core.planning import plan_probes, planned_observations
 
 MIN_GAIN_BITS = 1e-9  # a candidate that buys less than this is not worth a pick
 FINALISTS = 4  # layouts re-evaluated on the full grid before choosing
+# Each candidate location holds a row of covariances with every target and is planned per
+# method: more than this makes a run take minutes for no better answer.
+MAX_CANDIDATE_LOCATIONS = 5000
 
 
-class OptimiseCancelled(Exception):
+class OptimiseCancelled(Exception):  # noqa: N818 - a signal, not an error
     """Raised inside :func:`optimise` when the caller asks it to stop."""
 
 
 class OptimiseError(ValueError):
-    """The optimiser cannot run: no candidate, or nothing fits the budget (message says)."""
+    """The optimiser cannot run: no candidate, or nothing fits the budget (message says).
+
+    ``field`` names the option or model part at fault: ``budget``, ``methods``,
+    ``candidate_spacing_m``, ``min_spacing_m`` or ``boundaries_of_interest``.
+    """
+
+    def __init__(self, message: str, field: str = "budget"):
+        super().__init__(message)
+        self.field = field
 
 
 @dataclass(frozen=True)
@@ -194,13 +205,33 @@ def nice_spacing_m(raw_m: float) -> float:
 
 def optimisation_grid(project: Project, origin, max_cells: int) -> EvaluationGrid:
     """The evaluation grid, coarsened by a whole factor until it has at most ``max_cells``."""
-    grid = evaluation_grid(project.site, origin)
-    factor = 1
-    while grid.n_cells > max_cells:
-        factor = max(factor + 1, int(math.ceil(factor * math.sqrt(grid.n_cells / max_cells))))
-        site = replace(project.site, grid_spacing_m=project.site.grid_spacing_m * factor)
-        grid = evaluation_grid(site, origin)
-    return grid
+    return evaluation_grid_capped(project.site, origin, max_cells)[0]
+
+
+def check_candidate_count(area_m2: float, spacing_m: float, count: int | None = None) -> None:
+    """Refuse a candidate grid of more than ``MAX_CANDIDATE_LOCATIONS`` locations.
+
+    Called with the site area before the grid is built (``count`` None: estimated, refused
+    only when well over, so an absurd spacing never allocates its grid) and with the count
+    after.
+    """
+    if not (spacing_m > 0 and math.isfinite(spacing_m)):
+        raise OptimiseError(
+            f"--candidate-spacing must be a positive number of metres, not {spacing_m}"
+        )
+    estimate = area_m2 / spacing_m**2
+    over = (
+        count > MAX_CANDIDATE_LOCATIONS
+        if count is not None
+        else (estimate > 2 * MAX_CANDIDATE_LOCATIONS)
+    )
+    if over:
+        shown = f"{count:,}" if count is not None else f"about {estimate:,.0f}"
+        finest = nice_spacing_m(math.sqrt(area_m2 / MAX_CANDIDATE_LOCATIONS))
+        raise OptimiseError(
+            f"--candidate-spacing {spacing_m:g} m gives {shown} candidate locations, over the "
+            f"limit of {MAX_CANDIDATE_LOCATIONS:,}; use {finest:g} m or more"
+        )
 
 
 def candidate_locations(project: Project, origin, spacing_m: float) -> np.ndarray:
@@ -497,9 +528,18 @@ class GreedyProblem:
         state.flush()
         state.apply(chol, cov_cand, state.M[l, obs, :])
 
+    def layout_cost(self, layout: Layout) -> float:
+        """Cost of a hand-made layout, mobilisation included (as ``evaluate`` reports it)."""
+        plans = plan_probes(
+            self.ground, self.analysis.methods, self.analysis.baseline, layout.probes
+        )
+        return layout_cost(plans, self.analysis.methods)[0]
+
     def apply_layout(self, state: GreedyState, layout: Layout) -> tuple[float, float]:
         """Condition ``state`` on a hand-made layout's readings; return (cost, gain bits)."""
-        plans = plan_probes(self.ground, self.analysis.methods, self.analysis.baseline, layout.probes)
+        plans = plan_probes(
+            self.ground, self.analysis.methods, self.analysis.baseline, layout.probes
+        )
         cost = layout_cost(plans, self.analysis.methods)[0]
         obs = planned_observations(plans, self.analysis.methods, self.analysis.origin)
         if obs.size == 0:
@@ -525,8 +565,11 @@ class GreedyProblem:
         cum = np.cumsum(terms, axis=0)  # (B, m, C)
         cov_slots = np.zeros((obs.size, len(t.slot_cell)))
         sb, sc = t.slot_bnd[real], t.slot_cell[real]
-        cov_slots[:, real] = cum[np.minimum(obs.boundary[:, None], sb[None, :]),
-                                 np.arange(obs.size)[:, None], sc[None, :]]
+        cov_slots[:, real] = cum[
+            np.minimum(obs.boundary[:, None], sb[None, :]),
+            np.arange(obs.size)[:, None],
+            sc[None, :],
+        ]
         if pred_t.white:
             white_t = np.concatenate(pred_t.white, axis=0)
             cov_slots[:, real] -= w_o.T @ white_t[:, sb, sc]
@@ -611,8 +654,9 @@ def greedy_run(
     return tuple(picks)
 
 
-def method_mixes(method_ids: Sequence[str], mobilisation: dict[str, float], budget: float,
-                 max_size: int) -> list[tuple[str, ...]]:
+def method_mixes(
+    method_ids: Sequence[str], mobilisation: dict[str, float], budget: float, max_size: int
+) -> list[tuple[str, ...]]:
     """Every mix of at most ``max_size`` methods whose mobilisation fits the budget."""
     mixes = []
     for size in range(1, min(max_size, len(method_ids)) + 1):
@@ -622,8 +666,9 @@ def method_mixes(method_ids: Sequence[str], mobilisation: dict[str, float], budg
     return mixes
 
 
-def layout_from_run(problem: GreedyProblem, run: GreedyRun, n_picks: int, start: Layout | None,
-                    name: str) -> Layout:
+def layout_from_run(
+    problem: GreedyProblem, run: GreedyRun, n_picks: int, start: Layout | None, name: str
+) -> Layout:
     """The layout of the first ``n_picks`` picks of a run (after its start layout)."""
     cand = problem.cand
     probes = list(start.probes) if start is not None else []
@@ -653,12 +698,95 @@ def upper_envelope(points: Sequence[tuple[float, float]]) -> tuple[tuple[float, 
     return tuple(out)
 
 
+@dataclass(eq=False)
+class OptimiseSetup:
+    """What one optimisation builds before any greedy run, reusable across budgets.
+
+    Built by :func:`prepare_optimisation`; pass it to :func:`optimise` to run several
+    budgets (e.g. for a ranking) without planning candidates and covariances again.
+    """
+
+    project: Project
+    options: OptimiseOptions
+    analysis: ProjectAnalysis
+    grid: EvaluationGrid
+    candidate_spacing_m: float
+    min_spacing_m: float
+    problem: GreedyProblem
+    mobilisation: dict[str, float]
+    _evaluator: GridEvaluator | None = None
+
+    @property
+    def candidates(self) -> Candidates:
+        return self.problem.cand
+
+    @property
+    def evaluator(self) -> GridEvaluator:
+        """Evaluator on the project's full evaluation grid (built on first use)."""
+        if self._evaluator is None:
+            self._evaluator = GridEvaluator(self.project, self.analysis)
+        return self._evaluator
+
+
+def prepare_optimisation(
+    project: Project, options: OptimiseOptions, progress: ProgressFn | None = None
+) -> OptimiseSetup:
+    """Check the options, plan the candidates and build the greedy problem.
+
+    ``options.budget`` is not used here. Raises OptimiseError (see :func:`optimise`).
+    """
+    report = progress or (lambda f, m: None)
+    analysis = ProjectAnalysis(project)
+    methods = analysis.methods
+    allowed_ids = tuple(dict.fromkeys(options.methods)) if options.methods else tuple(methods)
+    unknown = [m for m in allowed_ids if m not in methods]
+    if unknown:
+        raise OptimiseError(
+            f"no method with id {unknown[0]!r}; methods are {', '.join(methods)}", "methods"
+        )
+    for value, label in (
+        (options.candidate_spacing_m, "candidate_spacing_m"),
+        (options.min_spacing_m, "min_spacing_m"),
+    ):
+        if value is not None and not (math.isfinite(value) and value > 0):
+            raise OptimiseError(f"must be a positive number of metres, not {value:g}", label)
+    grid = optimisation_grid(project, analysis.origin, options.max_cells)
+    spacing = options.candidate_spacing_m
+    if spacing is None:
+        area = grid.n_cells * grid.cell_area_m2
+        spacing = nice_spacing_m(max(math.sqrt(area / options.target_locations), 1e-3))
+    min_spacing = options.min_spacing_m if options.min_spacing_m is not None else spacing
+    check_candidate_count(grid.n_cells * grid.cell_area_m2, spacing)
+    xy = candidate_locations(project, analysis.origin, spacing)
+    check_candidate_count(grid.n_cells * grid.cell_area_m2, spacing, len(xy))
+    if len(xy) == 0:
+        raise OptimiseError(
+            "no candidate location: the site (less exclusions) is smaller than the candidate "
+            "spacing; use a finer --candidate-spacing",
+            "candidate_spacing_m",
+        )
+    report(0.02, f"planning {len(xy)} locations x {len(allowed_ids)} methods")
+    cand = build_candidates(analysis, xy, allowed_ids)
+    if not cand.valid.any():
+        raise OptimiseError(
+            "no allowed method can read any boundary anywhere on the site", "methods"
+        )
+    targets = build_targets(analysis, grid)
+    report(0.05, "building the covariance of candidates and targets")
+    problem = GreedyProblem(analysis, cand, targets)
+    mob = {m: methods[m].mobilisation for m in allowed_ids}
+    return OptimiseSetup(
+        project, options, analysis, grid, float(spacing), float(min_spacing), problem, mob
+    )
+
+
 def optimise(
     project: Project,
     options: OptimiseOptions,
     progress: ProgressFn | None = None,
     should_stop: Callable[[], bool] | None = None,
     name: str | None = None,
+    setup: OptimiseSetup | None = None,
 ) -> OptimiseResult:
     """Propose the layout that buys the most information within ``options.budget``.
 
@@ -667,11 +795,14 @@ def optimise(
     project : Project
     options : OptimiseOptions
     progress : callable(fraction, message), optional
-        Told how far the search is (0..1).
+        Told how far the search is (0..1, never decreasing, 1 at the end).
     should_stop : callable() -> bool, optional
         Polled between picks; when it returns True the search raises OptimiseCancelled.
     name : str, optional
-        Name of the returned layout.
+        Name of the returned layout; default ``"Optimised for <budget>"``.
+    setup : OptimiseSetup, optional
+        From :func:`prepare_optimisation` with the same project and options but the budget;
+        saves planning again when several budgets are optimised.
 
     Returns
     -------
@@ -680,39 +811,25 @@ def optimise(
     Raises
     ------
     OptimiseError
-        No usable candidate or nothing fits the budget.
+        Bad options, no usable candidate, or nothing fits the budget; ``field`` says which.
     OptimiseCancelled
     """
     t_start = time.perf_counter()
-    report = progress or (lambda f, m: None)
-    analysis = ProjectAnalysis(project)
-    methods = analysis.methods
-    allowed_ids = tuple(options.methods) if options.methods else tuple(methods)
-    unknown = [m for m in allowed_ids if m not in methods]
-    if unknown:
-        raise OptimiseError(f"no method with id {unknown[0]!r}; methods are {', '.join(methods)}")
-    if not (options.budget > 0 and math.isfinite(options.budget)):
-        raise OptimiseError("the budget must be a positive number")
-    grid = optimisation_grid(project, analysis.origin, options.max_cells)
-    spacing = options.candidate_spacing_m
-    if spacing is None:
-        area = grid.n_cells * grid.cell_area_m2
-        spacing = nice_spacing_m(max(math.sqrt(area / options.target_locations), 1e-3))
-    min_spacing = options.min_spacing_m if options.min_spacing_m is not None else spacing
-    xy = candidate_locations(project, analysis.origin, spacing)
-    if len(xy) == 0:
-        raise OptimiseError(
-            "no candidate location: the site (less exclusions) is smaller than the candidate "
-            "spacing; use a finer --candidate-spacing"
-        )
-    report(0.02, f"planning {len(xy)} locations x {len(allowed_ids)} methods")
-    cand = build_candidates(analysis, xy, allowed_ids)
-    if not cand.valid.any():
-        raise OptimiseError("no allowed method can read any boundary anywhere on the site")
-    targets = build_targets(analysis, grid)
-    report(0.05, "building the covariance of candidates and targets")
-    problem = GreedyProblem(analysis, cand, targets)
-    mob = {m: methods[m].mobilisation for m in allowed_ids}
+    done = [0.0]
+
+    def report(fraction: float, message: str) -> None:
+        done[0] = max(done[0], min(fraction, 1.0))  # never backwards
+        if progress is not None:
+            progress(done[0], message)
+
+    if not (math.isfinite(options.budget) and options.budget > 0):
+        raise OptimiseError("the budget must be a positive number", "budget")
+    if setup is None:
+        setup = prepare_optimisation(project, options, report)
+    analysis, problem, mob = setup.analysis, setup.problem, setup.mobilisation
+    cand = problem.cand
+    allowed_ids = cand.method_ids
+    min_spacing = setup.min_spacing_m
 
     jobs: list[tuple[tuple[str, ...], Layout | None]] = [
         (mix, None)
@@ -724,8 +841,11 @@ def optimise(
             if layout.probes and set(used) <= set(allowed_ids):
                 jobs.append((used, layout))
     if not jobs:
+        cheapest = min(mob.values())
         raise OptimiseError(
-            f"the budget {options.budget:g} does not cover the mobilisation of any method"
+            f"{options.budget:g} does not cover the mobilisation of any allowed method "
+            f"(the cheapest is {cheapest:g})",
+            "budget",
         )
 
     runs: list[GreedyRun] = []
@@ -737,9 +857,10 @@ def optimise(
         start_cost = start_gain = 0.0
         taken = None
         if start is not None:
-            start_cost, start_gain = problem.apply_layout(state, start)
+            start_cost = problem.layout_cost(start)
             if start_cost > options.budget:
                 continue
+            start_cost, start_gain = problem.apply_layout(state, start)
             taken = analysis.to_local(np.array([(p.x, p.y) for p in start.probes]))
             left = options.budget - start_cost
         else:
@@ -750,7 +871,7 @@ def optimise(
         def on_pick(n, n_job=n_job, label=label):
             if should_stop is not None and should_stop():
                 raise OptimiseCancelled()
-            report(0.05 + 0.85 * (n_job + min(n, 50) / 50) / len(jobs), f"{label}: {n} picks")
+            report(0.05 + 0.85 * (n_job + min(n, 50) / 51) / len(jobs), f"{label}: {n} picks")
 
         picks = greedy_run(problem, state, allowed, left, min_spacing, taken, on_pick=on_pick)
         starts[len(runs)] = start
@@ -764,10 +885,21 @@ def optimise(
             if cost <= options.budget + 1e-9 and (n > 0 or run.start is not None):
                 prefixes.append((gain, -cost, r_idx, n))
     if not prefixes:
-        raise OptimiseError(f"nothing fits the budget {options.budget:g}")
+        cheapest = min(mob.values())
+        if options.budget <= cheapest:
+            raise OptimiseError(
+                f"{options.budget:g} does not cover the mobilisation of any allowed method "
+                f"(the cheapest is {cheapest:g})",
+                "budget",
+            )
+        raise OptimiseError(
+            f"nothing fits a budget of {options.budget:g}: no allowed probe costs that little "
+            "after mobilisation",
+            "budget",
+        )
     curve = upper_envelope([(-c, g) for g, c, _, _ in prefixes])
     report(0.92, "re-evaluating the best layouts on the full grid")
-    evaluator = GridEvaluator(project, analysis)
+    evaluator = setup.evaluator
     finalists = sorted(prefixes, reverse=True)[:FINALISTS]
     # the best prefix of each warm start keeps the guarantee against hand-made layouts
     for r_idx, run in enumerate(runs):
@@ -778,13 +910,15 @@ def optimise(
     title = name or f"Optimised for {options.budget:g}"
     best = None
     for _, _, r_idx, n in dict.fromkeys(finalists):
+        if should_stop is not None and should_stop():
+            raise OptimiseCancelled()
         layout = layout_from_run(problem, runs[r_idx], n, starts[r_idx], title)
         result = evaluator.evaluate_layout(layout)
         key = (result.information_gain_bits, -result.cost)
         if result.cost <= options.budget + 1e-6 and (best is None or key > best[0]):
             best = (key, layout, result)
     if best is None:  # pragma: no cover - prefixes were costed the same way
-        raise OptimiseError(f"nothing fits the budget {options.budget:g}")
+        raise OptimiseError(f"nothing fits a budget of {options.budget:g}", "budget")
     report(1.0, "done")
     return OptimiseResult(
         layout=best[1],
@@ -792,9 +926,9 @@ def optimise(
         curve=curve,
         runs=tuple(runs),
         candidates=cand,
-        optimisation_cells=grid.n_cells,
-        optimisation_spacing_m=grid.spacing_m,
-        candidate_spacing_m=float(spacing),
-        min_spacing_m=float(min_spacing),
+        optimisation_cells=setup.grid.n_cells,
+        optimisation_spacing_m=setup.grid.spacing_m,
+        candidate_spacing_m=setup.candidate_spacing_m,
+        min_spacing_m=setup.min_spacing_m,
         seconds=time.perf_counter() - t_start,
     )

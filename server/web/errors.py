@@ -50,6 +50,9 @@ STATUS_TITLES = {
 }
 
 
+BODY_PARSE_DETAIL = "There was an error parsing the body"  # fastapi.routing's own text
+
+
 def wants_json(request: Request) -> bool:
     return request.url.path.startswith("/api")
 
@@ -86,12 +89,26 @@ PLAIN_PROBLEMS = {
 }
 
 
+# Bounds on a number, with the limit from the error's context.
+BOUND_PROBLEMS = {
+    "greater_than": ("gt", "must be above {}"),
+    "greater_than_equal": ("ge", "must be at least {}"),
+    "less_than": ("lt", "must be below {}"),
+    "less_than_equal": ("le", "must be at most {}"),
+}
+
+
 def field_problems_of(exc: RequestValidationError) -> list[dict[str, str]]:
     problems = []
     for error in exc.errors():
         loc = error.get("loc", ())
         kind = error.get("type", "")
         problem = PLAIN_PROBLEMS.get(kind) or str(error.get("msg", "invalid value"))
+        if kind in BOUND_PROBLEMS:
+            key, words = BOUND_PROBLEMS[kind]
+            limit = (error.get("ctx") or {}).get(key)
+            if limit is not None:
+                problem = words.format(limit)
         if kind == "json_invalid":
             # loc ends in the character offset; name the body, say where
             detail = (error.get("ctx") or {}).get("error", "")
@@ -133,6 +150,13 @@ def error_response(
 def install_error_handlers(app: FastAPI) -> None:
     @app.exception_handler(StarletteHTTPException)
     async def on_http_error(request: Request, exc: StarletteHTTPException) -> Response:
+        if exc.status_code == 400 and exc.detail == BODY_PARSE_DETAIL:
+            # FastAPI's word for a body it cannot decode (not UTF-8, a broken form): say
+            # which field, in the same form as any other invalid body.
+            problem = "could not be read: it is not UTF-8 text in the declared content type"
+            problems = [{"field": "body", "problem": problem}]
+            status = 422 if wants_json(request) else 400
+            return error_response(request, status, f"body: {problem}", field_problems=problems)
         message = exc.detail if isinstance(exc.detail, str) else STATUS_TITLES.get(exc.status_code)
         if exc.status_code == 404 and message == "Not Found":
             message = f"nothing at {request.url.path}"
@@ -158,6 +182,34 @@ def install_error_handlers(app: FastAPI) -> None:
     async def on_store_error(request: Request, exc: StoreError) -> Response:
         status = next((STORE_STATUS[cls] for cls in type(exc).__mro__ if cls in STORE_STATUS), 400)
         return error_response(request, status, exc.message)
+
+    @app.exception_handler(UnicodeEncodeError)
+    async def on_unencodable_text(request: Request, exc: UnicodeEncodeError) -> Response:
+        # JSON may spell a lone UTF-16 surrogate ("\\ud800"): Python keeps it in a str, but
+        # it is not Unicode text and SQLite refuses to store it (the transaction rolls back).
+        bad = exc.object[exc.start : exc.end] if isinstance(exc.object, str) else ""
+        shown = bad.encode("unicode_escape").decode("ascii") if bad else "a character"
+        problem = (
+            f"holds {shown}, a lone surrogate that is not valid Unicode text; remove it and "
+            "send again"
+        )
+        status = 422 if wants_json(request) else 400
+        return error_response(
+            request,
+            status,
+            f"the submitted text {problem}",
+            field_problems=[{"field": "body", "problem": problem}],
+        )
+
+    @app.exception_handler(OverflowError)
+    async def on_overflow(request: Request, exc: OverflowError) -> Response:
+        # A whole number in the URL or a form beyond SQLite's 64-bit integers names nothing
+        # that can exist; any other overflow is a fault of ours.
+        if "SQLite INTEGER" in str(exc):
+            return error_response(
+                request, 404, f"nothing at {request.url.path}: a number in it is out of range"
+            )
+        return await on_unexpected(request, exc)
 
     @app.exception_handler(Exception)
     async def on_unexpected(request: Request, exc: Exception) -> Response:

@@ -2,6 +2,9 @@
 
 Errors: ``{"detail": "message"}``, or ``{"detail": [{"field", "problem"}]}`` for bad input
 (422). A stale ``expected_revision`` gives 409 and changes nothing.
+
+``GET /api/projects/{id}/evaluation`` answers the document of ``probewise evaluate --json``
+(MODEL-FILE.md), computed once per project revision (server/web/evaluation_cache.py).
 """
 
 from __future__ import annotations
@@ -10,9 +13,12 @@ from typing import Annotated, Any
 
 import sqlite_utils
 from fastapi import APIRouter, Body, Query
+from fastapi import Path as PathParam
 from pydantic import BaseModel, Field
-from starlette.responses import Response
+from starlette.responses import JSONResponse, Response
 
+from server.commands.evaluate import evaluation_json
+from server.core.evaluate import Evaluation
 from server.errors import InputError
 from server.store import (
     create_project,
@@ -27,8 +33,9 @@ from server.store import (
 )
 from server.web.deps import Db
 from server.web.downloads import model_file_response
+from server.web.evaluation_cache import project_results
 
-router = APIRouter(prefix="/api", tags=["projects"])
+SQLITE_MAX_INTEGER = 2**63 - 1  # a larger id cannot even be looked up
 
 
 class ErrorOut(BaseModel):
@@ -42,6 +49,21 @@ class FieldProblem(BaseModel):
 
 class FieldErrorsOut(BaseModel):
     detail: list[FieldProblem]
+
+
+# Every operation may answer these: bad input field by field (the app's own error form, not
+# FastAPI's default), and the local-server guards (server/web/security.py).
+COMMON_RESPONSES: dict[int | str, dict[str, Any]] = {
+    422: {"model": FieldErrorsOut, "description": "invalid input, field by field"},
+    400: {"model": ErrorOut, "description": "bad request, e.g. a Host header not this server's"},
+    403: {"model": ErrorOut, "description": "cross-origin change refused"},
+    413: {"model": ErrorOut, "description": "request body over the size limit"},
+}
+router = APIRouter(prefix="/api", tags=["projects"], responses=COMMON_RESPONSES)
+
+ProjectId = Annotated[
+    int, PathParam(ge=1, le=SQLITE_MAX_INTEGER, description="the project's id (from the list)")
+]
 
 
 class ProjectSummaryOut(BaseModel):
@@ -85,6 +107,47 @@ class ProjectUpdateIn(BaseModel):
 
 class UndoIn(BaseModel):
     expected_revision: int | None = None
+
+
+class BoundaryMetricsOut(BaseModel):
+    std_mean_m: float
+    width90_mean_m: float
+    uncertain_volume_m3: float
+    confident_fraction: float | None = Field(
+        description="null for a boundary that is not of interest (it has no tolerance)"
+    )
+
+
+class StateMetricsOut(BaseModel):
+    boundaries: dict[str, BoundaryMetricsOut] = Field(description="by unit name, top down")
+
+
+class PlannedProbeOut(BaseModel):
+    id: str
+    method: str
+    x: float
+    y: float
+    depth_m: float
+    observes: list[str] = Field(description="units whose base the probe reads")
+
+
+class LayoutEvaluationOut(StateMetricsOut):
+    name: str
+    cost: float
+    metres: float
+    duration_days: float
+    information_gain_bits: float
+    gain_per_cost: float | None = Field(description="null when the layout costs nothing")
+    pareto: bool
+    probes: list[PlannedProbeOut]
+
+
+class EvaluationOut(BaseModel):
+    baseline: StateMetricsOut
+    layouts: list[LayoutEvaluationOut]
+    notice: str | None = Field(
+        default=None, description="present when the evaluation grid was coarsened"
+    )
 
 
 NOT_FOUND = {404: {"model": ErrorOut, "description": "no such project"}}
@@ -144,7 +207,7 @@ def api_create_project(
 
 
 @router.get("/projects/{project_id}", response_model=ProjectOut, responses={**NOT_FOUND})
-def api_get_project(project_id: int, db: Db) -> ProjectOut:
+def api_get_project(project_id: ProjectId, db: Db) -> ProjectOut:
     return project_out(db, project_id)
 
 
@@ -153,7 +216,7 @@ def api_get_project(project_id: int, db: Db) -> ProjectOut:
     response_model=RevisionStateOut,
     responses={**NOT_FOUND, **STALE, **INVALID},
 )
-def api_save_project(project_id: int, body: ProjectUpdateIn, db: Db) -> RevisionStateOut:
+def api_save_project(project_id: ProjectId, body: ProjectUpdateIn, db: Db) -> RevisionStateOut:
     get_project(db, project_id)  # 404 before 422 when the project does not exist
     try:
         revision = save_project(
@@ -174,7 +237,7 @@ def api_save_project(project_id: int, body: ProjectUpdateIn, db: Db) -> Revision
     responses={**NOT_FOUND, **STALE},
 )
 def api_undo(
-    project_id: int,
+    project_id: ProjectId,
     db: Db,
     body: UndoIn | None = None,
 ) -> RevisionStateOut:
@@ -189,12 +252,12 @@ def api_undo(
     response_model=RevisionStateOut,
     responses={**NOT_FOUND},
 )
-def api_duplicate(project_id: int, db: Db) -> Any:
+def api_duplicate(project_id: ProjectId, db: Db) -> Any:
     return state_out(db, duplicate_project(db, project_id))
 
 
 @router.delete("/projects/{project_id}", response_model=DeletedStateOut, responses={**NOT_FOUND})
-def api_delete(project_id: int, db: Db) -> DeletedStateOut:
+def api_delete(project_id: ProjectId, db: Db) -> DeletedStateOut:
     delete_project(db, project_id)
     return DeletedStateOut(id=project_id, deleted=True)
 
@@ -202,7 +265,7 @@ def api_delete(project_id: int, db: Db) -> DeletedStateOut:
 @router.post(
     "/projects/{project_id}/restore", response_model=DeletedStateOut, responses={**NOT_FOUND}
 )
-def api_restore(project_id: int, db: Db) -> DeletedStateOut:
+def api_restore(project_id: ProjectId, db: Db) -> DeletedStateOut:
     restore_project(db, project_id)
     return DeletedStateOut(id=project_id, deleted=False)
 
@@ -215,7 +278,7 @@ def api_restore(project_id: int, db: Db) -> DeletedStateOut:
     },
     response_class=Response,
 )
-def api_export(project_id: int, db: Db) -> Response:
+def api_export(project_id: ProjectId, db: Db) -> Response:
     return model_file_response(db, project_id)
 
 
@@ -224,7 +287,7 @@ def api_export(project_id: int, db: Db) -> Response:
     response_model=list[RevisionOut],
     responses={**NOT_FOUND},
 )
-def api_revisions(project_id: int, db: Db) -> list[RevisionOut]:
+def api_revisions(project_id: ProjectId, db: Db) -> list[RevisionOut]:
     get_project(db, project_id)
     return [
         RevisionOut(
@@ -232,3 +295,30 @@ def api_revisions(project_id: int, db: Db) -> list[RevisionOut]:
         )
         for r in list_revisions(db, project_id)
     ]
+
+
+@router.get(
+    "/projects/{project_id}/evaluation",
+    responses={
+        200: {"model": EvaluationOut, "description": "as `probewise evaluate --json`"},
+        **NOT_FOUND,
+        **INVALID,
+    },
+    response_class=JSONResponse,
+)
+def api_evaluation(project_id: ProjectId, db: Db) -> JSONResponse:
+    """Baseline and every layout's cost, duration and information gain (current revision)."""
+    entry = project_results(db, project_id)
+
+    def build() -> dict[str, Any]:
+        evaluator = entry.evaluator  # InputError (422) when the grid is empty
+        evaluation = Evaluation(
+            evaluator.grid,
+            entry.project.ground.boundary_names,
+            evaluator.baseline,
+            entry.results(),
+            evaluator.grid_notice,
+        )
+        return evaluation_json(evaluation)
+
+    return JSONResponse(entry.memo(("api-evaluation",), build))

@@ -123,6 +123,7 @@ class SecurityMiddleware:
             return
 
         length = headers.get("content-length")
+        too_large_text = self.too_large_text(headers.get("content-type", ""))
         declared_too_large = (
             length is not None and length.isdigit() and int(length) > self.max_body_bytes
         )
@@ -135,12 +136,12 @@ class SecurityMiddleware:
         async def receive_capped() -> Message:
             nonlocal received
             if declared_too_large:
-                raise BodyTooLarge(self.too_large_text())  # before reading a byte of it
+                raise BodyTooLarge(too_large_text)  # before reading a byte of it
             message = await receive()
             if message["type"] == "http.request":
                 received += len(message.get("body", b""))
                 if received > self.max_body_bytes:
-                    raise BodyTooLarge(self.too_large_text())
+                    raise BodyTooLarge(too_large_text)
             return message
 
         async def send_tracking(message: Message) -> None:
@@ -156,9 +157,12 @@ class SecurityMiddleware:
                 raise
             await send_error(send_with_headers, scope, 413, exc.detail)
 
-    def too_large_text(self) -> str:
+    def too_large_text(self, content_type: str = "") -> str:
+        """The 413 message; a file upload (multipart form) is named as such."""
         limit = self.max_body_bytes
         shown = f"{limit / 1048576:g} MB" if limit >= 1048576 else f"{limit} byte"
+        if content_type.lower().startswith("multipart/"):
+            return f"the uploaded file is larger than the {shown} limit for uploads"
         return f"request body is larger than the {shown} limit"
 
     def check_request(self, scope: Scope, headers: Headers) -> tuple[int, str] | None:

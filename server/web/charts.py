@@ -1,0 +1,150 @@
+"""Small server-side charts (matplotlib, Agg, SVG): a unit's thickness distribution.
+
+matplotlib is imported inside the drawing function so the app starts fast; figures are built
+with the object API (no pyplot state), under a lock because the routes run in threads. The
+density comes from scipy.stats (PERT as a scaled beta, triangular, uniform) and the mean and
+standard deviation from server.core.priors.thickness_moments, the numbers the model uses.
+"""
+
+from __future__ import annotations
+
+import io
+import math
+import threading
+from collections import OrderedDict
+from functools import lru_cache
+
+import numpy as np
+
+from server.core.model import ThicknessRange
+from server.core.priors import thickness_moments
+
+PERT_LAMBDA = 4.0
+# Palette of static/css/probewise.css: ink, teal, clay and their soft tints.
+INK = "#22303a"
+INK_SOFT = "#55636d"
+TEAL = "#2b7a80"
+TEAL_SOFT = "#dcefef"
+CLAY = "#a9561f"
+RULE = "#dcd6c8"
+
+_draw_lock = threading.Lock()
+
+
+def thickness_distribution(rng: ThicknessRange):
+    """The scipy.stats frozen distribution of a thickness prior (PERT = beta on [min, max])."""
+    from scipy import stats
+
+    a, b, c = float(rng.min_m), float(rng.likely_m), float(rng.max_m)
+    span = c - a
+    if rng.shape == "uniform":
+        return stats.uniform(loc=a, scale=span)
+    if rng.shape == "triangular":
+        return stats.triang((b - a) / span, loc=a, scale=span)
+    if rng.shape == "pert":
+        alpha = 1.0 + PERT_LAMBDA * (b - a) / span
+        beta = 1.0 + PERT_LAMBDA * (c - b) / span
+        return stats.beta(alpha, beta, loc=a, scale=span)
+    raise ValueError(f"unknown thickness shape {rng.shape!r}")
+
+
+def thickness_density(rng: ThicknessRange, n: int = 201) -> tuple[np.ndarray, np.ndarray]:
+    """Thickness values (m) across [min, max] and the prior density there, shapes (n,)."""
+    x = np.linspace(float(rng.min_m), float(rng.max_m), n)
+    pdf = thickness_distribution(rng).pdf(x)
+    return x, np.where(np.isfinite(pdf), pdf, 0.0)
+
+
+def _fmt(value: float) -> str:
+    return f"{value:.2f}".rstrip("0").rstrip(".")
+
+
+@lru_cache(maxsize=256)
+def thickness_chart_svg(shape: str, min_m: float, likely_m: float, max_m: float) -> bytes:
+    """A small SVG of the thickness density with min/likely/max marked and mean ± std shaded."""
+    from matplotlib import rc_context
+    from matplotlib.figure import Figure
+
+    rng = ThicknessRange(min_m, likely_m, max_m, shape)
+    mean, std = thickness_moments(rng)
+    x, pdf = thickness_density(rng)
+    top = float(pdf.max()) if pdf.size and math.isfinite(pdf.max()) and pdf.max() > 0 else 1.0
+    settings = {
+        "svg.fonttype": "none",  # text stays text: small files, page font
+        "svg.hashsalt": "probewise",  # stable ids: the same chart gives the same bytes
+        "font.size": 7.5,
+        "font.family": "sans-serif",
+        "axes.edgecolor": RULE,
+        "axes.labelcolor": INK_SOFT,
+        "xtick.color": INK_SOFT,
+        "xtick.labelcolor": INK_SOFT,
+    }
+    with _draw_lock, rc_context(settings):
+        fig = Figure(figsize=(3.3, 1.45), dpi=72)
+        ax = fig.add_axes((0.05, 0.27, 0.9, 0.6))
+        span = max_m - min_m
+        ax.axvspan(mean - std, mean + std, color=CLAY, alpha=0.12, lw=0)
+        ax.fill_between(x, pdf, color=TEAL_SOFT, lw=0)
+        ax.plot(x, pdf, color=TEAL, lw=1.4)
+        ax.axvline(mean, color=CLAY, lw=1.2)
+        for value, name in ((min_m, "min"), (likely_m, "likely"), (max_m, "max")):
+            ax.plot([value, value], [0, top * 0.06], color=INK, lw=1.0)
+            ax.annotate(
+                name,
+                (value, 0),
+                xytext=(0, -1),
+                textcoords="offset points",
+                ha="center",
+                va="top",
+                fontsize=6.5,
+                color=INK_SOFT,
+            )
+        ax.text(
+            0.5,
+            1.04,
+            f"mean {_fmt(mean)} m, std {_fmt(std)} m (shaded: mean \u00b1 std)",
+            transform=ax.transAxes,
+            ha="center",
+            va="bottom",
+            fontsize=6.8,
+            color=CLAY,
+        )
+        ax.set_xlim(min_m - 0.04 * span, max_m + 0.04 * span)
+        ax.set_ylim(0, top * 1.08)
+        ax.set_yticks([])
+        ax.tick_params(axis="x", length=2, pad=8)
+        ax.set_xlabel("thickness (m)", labelpad=1)
+        for side in ("top", "right", "left"):
+            ax.spines[side].set_visible(False)
+        fig.patch.set_alpha(0.0)
+        ax.patch.set_alpha(0.0)
+        buffer = io.BytesIO()
+        fig.savefig(buffer, format="svg", metadata={"Date": None, "Creator": "probewise"})
+    return buffer.getvalue()
+
+
+class ChartCache:
+    """Chart bytes by (project id, revision, unit index): revisions never change, so an entry
+    never goes stale; the oldest entries leave first."""
+
+    def __init__(self, size: int = 512):
+        self.size = size
+        self._items: OrderedDict[tuple, bytes] = OrderedDict()
+        self._lock = threading.Lock()
+
+    def get(self, key: tuple) -> bytes | None:
+        with self._lock:
+            value = self._items.get(key)
+            if value is not None:
+                self._items.move_to_end(key)
+            return value
+
+    def put(self, key: tuple, value: bytes) -> None:
+        with self._lock:
+            self._items[key] = value
+            self._items.move_to_end(key)
+            while len(self._items) > self.size:
+                self._items.popitem(last=False)
+
+
+thickness_charts = ChartCache()

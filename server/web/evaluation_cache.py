@@ -1,0 +1,199 @@
+"""Core results shared by the decision pages (Options, Compare, Schedule), per project revision.
+
+A revision never changes once stored, so everything computed from it (the core Project, the
+baseline on the evaluation grid, each layout's LayoutResult, figures drawn from them) can be
+kept and reused until the project moves on. The cache holds a few revisions (LRU), each
+computed lazily under its own lock: two requests that need the same numbers wait for one
+computation instead of doing it twice, while other projects are served meanwhile.
+"""
+
+from __future__ import annotations
+
+import threading
+from collections import OrderedDict
+from collections.abc import Callable, Sequence
+from typing import Any, TypeVar
+
+import sqlite_utils
+
+from server.core.evaluate import GridEvaluator, LayoutResult, with_pareto
+from server.core.grid import EmptyGridError
+from server.core.model import Layout, Project
+from server.core.options import KINDS, RankedOption, rank_options
+from server.errors import InputError
+from server.store import StoredProject, get_project
+from server.to_core import to_core
+
+MAX_ENTRIES = 4  # project revisions kept
+MAX_MEMO = 96  # figures and other derived values kept per revision
+
+T = TypeVar("T")
+
+KIND_LABELS = {"hand": "Drawn by hand", "guidance": "Guidance grid", "optimised": "Optimiser"}
+# A layout's optional "origin" field says where it came from (extra fields are allowed).
+ORIGIN_KINDS = {"optimiser": "optimised", "optimized": "optimised"}
+
+
+def layout_kind(layout: dict[str, Any]) -> str:
+    """Where a model-file layout came from: its "origin" field, else guessed from its name."""
+    origin = str(layout.get("origin") or "").strip().lower()
+    origin = ORIGIN_KINDS.get(origin, origin)
+    if origin in KINDS:
+        return origin
+    name = str(layout.get("name", "")).lower()
+    if name.startswith("guidance"):
+        return "guidance"
+    if name.startswith("optimised") or name.startswith("optimized"):
+        return "optimised"
+    return "hand"
+
+
+class ProjectResults:
+    """The core's view of one stored revision, computed on first use.
+
+    Attributes
+    ----------
+    project_id, revision : int
+    model : dict
+        The validated model-file document of that revision (do not change it).
+    project : Project
+        ``to_core(model)``.
+    """
+
+    def __init__(self, stored: StoredProject):
+        self.project_id = stored.id
+        self.revision = stored.revision
+        self.model = stored.model
+        self.project: Project = to_core(stored.model)
+        self._lock = threading.RLock()
+        self._evaluator: GridEvaluator | None = None
+        self._results: dict[str, LayoutResult] = {}
+        self._ranked: tuple[LayoutResult, ...] | None = None
+        self._ranking: list[RankedOption] | None = None
+        self._memo: OrderedDict[tuple, Any] = OrderedDict()
+
+    @property
+    def evaluator(self) -> GridEvaluator:
+        """The baseline solved on the evaluation grid (InputError when the grid is empty)."""
+        with self._lock:
+            if self._evaluator is None:
+                try:
+                    self._evaluator = GridEvaluator(self.project)
+                except EmptyGridError as exc:
+                    raise InputError("grid_spacing_m", str(exc)) from None
+            return self._evaluator
+
+    @property
+    def layout_names(self) -> list[str]:
+        return [layout.name for layout in self.project.layouts]
+
+    def core_layout(self, name: str) -> Layout:
+        for layout in self.project.layouts:
+            if layout.name == name:
+                return layout
+        raise InputError("layout", f"there is no layout named {name!r}")
+
+    def layout_result(self, name: str) -> LayoutResult:
+        """One layout's numbers (its ``pareto`` flag is provisional; see ``results``)."""
+        with self._lock:
+            if name not in self._results:
+                self._results[name] = self.evaluator.evaluate_layout(self.core_layout(name))
+            return self._results[name]
+
+    def results(self) -> tuple[LayoutResult, ...]:
+        """Every layout's numbers, in the model's order, with Pareto flags set among them."""
+        with self._lock:
+            if self._ranked is None:
+                self._ranked = with_pareto([self.layout_result(n) for n in self.layout_names])
+            return self._ranked
+
+    def result_named(self, name: str) -> LayoutResult:
+        """A layout's numbers with its Pareto flag set against the other layouts."""
+        for result in self.results():
+            if result.name == name:
+                return result
+        raise InputError("layout", f"there is no layout named {name!r}")
+
+    def kinds(self) -> dict[str, str]:
+        """Kind of every layout for the ranking: "hand", "guidance" or "optimised"."""
+        return {
+            layout["name"]: layout_kind(layout) for layout in self.model.get("layouts") or []
+        }
+
+    def ranking(self) -> list[RankedOption]:
+        """Every layout ranked (sorted by cost; Pareto flags over all of them)."""
+        with self._lock:
+            if self._ranking is None:
+                known = {r.name: r for r in self.results()}
+                self._ranking = rank_options(
+                    self.project,
+                    self.project.layouts,
+                    self.kinds(),
+                    evaluator=self.evaluator,
+                    known=known,
+                )
+            return self._ranking
+
+    def default_layout(self) -> str | None:
+        """The option a page shows first: the Pareto-efficient one that buys the most
+        information per unit cost, else the first layout; None without layouts."""
+        names = self.layout_names
+        if not names:
+            return None
+        efficient = [o for o in self.ranking() if o.pareto and o.gain_per_cost is not None]
+        if efficient:
+            return max(efficient, key=lambda o: o.gain_per_cost).name
+        return names[0]
+
+    def memo(self, key: Sequence[Any], compute: Callable[[], T]) -> T:
+        """A value derived from this revision (a figure, a table), computed once per key."""
+        key = tuple(key)
+        with self._lock:
+            if key in self._memo:
+                self._memo.move_to_end(key)
+                return self._memo[key]
+        value = compute()  # outside the lock: figures of one revision may draw side by side
+        with self._lock:
+            self._memo[key] = value
+            self._memo.move_to_end(key)
+            while len(self._memo) > MAX_MEMO:
+                self._memo.popitem(last=False)
+        return value
+
+
+_cache: OrderedDict[tuple, ProjectResults] = OrderedDict()
+_cache_lock = threading.Lock()
+
+
+def cache_key(db: sqlite_utils.Database, stored: StoredProject) -> tuple:
+    # The connection identifies the database (tests open many); updated_at guards against a
+    # recycled id() of a closed connection.
+    return (id(db), stored.id, stored.revision, stored.updated_at)
+
+
+def results_of(db: sqlite_utils.Database, stored: StoredProject) -> ProjectResults:
+    """The shared results of a stored project's current revision."""
+    key = cache_key(db, stored)
+    with _cache_lock:
+        entry = _cache.get(key)
+        if entry is not None:
+            _cache.move_to_end(key)
+            return entry
+    entry = ProjectResults(stored)  # to_core is cheap; the heavy parts are lazy
+    with _cache_lock:
+        entry = _cache.setdefault(key, entry)
+        _cache.move_to_end(key)
+        while len(_cache) > MAX_ENTRIES:
+            _cache.popitem(last=False)
+    return entry
+
+
+def project_results(db: sqlite_utils.Database, project_id: int) -> ProjectResults:
+    """Read the project's current revision and return its shared results."""
+    return results_of(db, get_project(db, project_id))
+
+
+def clear() -> None:
+    """Forget everything (tests)."""
+    with _cache_lock:
+        _cache.clear()

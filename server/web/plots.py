@@ -1,0 +1,508 @@
+"""Figures of the decision pages, drawn with matplotlib (object API, Agg; no pyplot state).
+
+- ``cost_gain_chart``: cost against information gain of every option, the Pareto front and
+  the optimiser's cost-gain curves (SVG);
+- ``uncertainty_maps``: one boundary's posterior std (or P5-P95 width) on the evaluation grid,
+  before and after an option, on one colour scale (PNG);
+- ``site_plan``: the site with an option's probes, for the schedule (PNG);
+- ``depth_section``: P5/P50/P95 of every boundary along a line, before and after (PNG).
+
+Inputs are plain numbers and GeoJSON-like geometry, so the figures do not depend on how the
+core computes them. Drawing is serialised by a lock: matplotlib's font and text caches are
+shared between threads.
+"""
+
+from __future__ import annotations
+
+import io
+import threading
+from collections.abc import Sequence
+from dataclasses import dataclass, field
+from typing import Any
+
+import matplotlib
+import numpy as np
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
+from matplotlib.patches import PathPatch
+from matplotlib.path import Path as MplPath
+from matplotlib.ticker import FuncFormatter
+
+from server.web.site_map import polygon_rings
+
+matplotlib.rcParams.update(
+    {
+        "svg.fonttype": "none",  # text stays text: searchable and sharp when printed
+        "svg.hashsalt": "probewise",  # stable ids: the same figure gives the same bytes
+        "font.size": 9,
+        "axes.titlesize": 10,
+        "axes.labelsize": 9,
+        "font.family": "DejaVu Sans",
+    }
+)
+
+_draw_lock = threading.Lock()
+
+INK = "#22303a"
+INK_SOFT = "#55636d"
+RULE = "#dcd6c8"
+SITE_FILL = "#efe8d8"
+SITE_EDGE = "#6b5a43"
+AREA_EDGE = "#a9561f"
+ZONE_EDGE = "#2b7a80"
+EXCLUSION_EDGE = "#a33526"
+PARETO = "#a9561f"
+CURVE = "#2b7a80"
+CHOSEN = "#1f6fd1"
+MAP_CMAP = "YlOrBr"  # light = well known, dark = uncertain; prints in grey too
+
+KIND_STYLE = {
+    # kind: (marker, face colour)
+    "borehole": ("o", "#22303a"),
+    "cpt": ("v", "#2b7a80"),
+    "dmt": ("D", "#4f7a3a"),
+    "trial_pit": ("s", "#a9561f"),
+    "other": ("o", "#ffffff"),
+}
+BOUNDARY_COLOURS = ("#a9561f", "#2b7a80", "#4f7a3a", "#7a4f9a", "#a33526", "#3a5f9a", "#8a7a2a")
+
+
+@dataclass(frozen=True)
+class ChartPoint:
+    name: str
+    cost: float
+    gain_bits: float
+    pareto: bool
+    chosen: bool = False
+
+
+@dataclass(frozen=True)
+class ChartCurve:
+    label: str
+    points: tuple[tuple[float, float], ...]  # (cost, gain bits)
+
+
+@dataclass(frozen=True)
+class MapProbePoint:
+    id: str
+    x: float
+    y: float
+    kind: str
+    existing: bool = False
+
+
+@dataclass(frozen=True)
+class SiteShapes:
+    """Polygons of the site for drawing: lists of rings ``[(x, y), ...]`` per feature."""
+
+    outline: list[list[tuple[float, float]]]
+    zones: list[list[list[tuple[float, float]]]] = field(default_factory=list)
+    areas: list[list[list[tuple[float, float]]]] = field(default_factory=list)
+    exclusions: list[list[list[tuple[float, float]]]] = field(default_factory=list)
+
+    @classmethod
+    def of_model(cls, model: dict[str, Any]) -> SiteShapes:
+        def rings_of(key: str) -> list:
+            return [polygon_rings(item.get("geometry")) for item in model.get(key) or []]
+
+        return cls(
+            outline=polygon_rings(model.get("site")),
+            zones=rings_of("zones"),
+            areas=rings_of("areas_of_interest"),
+            exclusions=rings_of("exclusions"),
+        )
+
+    def bounds(self) -> tuple[float, float, float, float]:
+        pts = np.array([p for ring in self.outline for p in ring], dtype=float).reshape(-1, 2)
+        if not len(pts):
+            return 0.0, 0.0, 1.0, 1.0
+        return float(pts[:, 0].min()), float(pts[:, 1].min()), float(pts[:, 0].max()), float(
+            pts[:, 1].max()
+        )
+
+
+# ------------------------------------------------------------------------------ helpers
+
+
+def _to_bytes(fig: Figure, fmt: str, dpi: int = 150) -> bytes:
+    FigureCanvasAgg(fig)
+    buffer = io.BytesIO()
+    metadata = {"Software": None} if fmt == "png" else {"Date": None, "Creator": None}
+    fig.savefig(buffer, format=fmt, dpi=dpi, metadata=metadata)
+    return buffer.getvalue()
+
+
+def _money_axis(value: float, _pos: Any = None) -> str:
+    return f"{value:,.0f}"
+
+
+def _rings_path(rings: Sequence[Sequence[tuple[float, float]]]) -> MplPath | None:
+    vertices, codes = [], []
+    for ring in rings:
+        if len(ring) < 3:
+            continue
+        vertices.extend(ring)
+        vertices.append(ring[0])
+        codes.extend([MplPath.MOVETO] + [MplPath.LINETO] * (len(ring) - 1) + [MplPath.CLOSEPOLY])
+    if not vertices:
+        return None
+    return MplPath(np.asarray(vertices, dtype=float), codes)
+
+
+def _draw_polygon(ax, rings, **style) -> None:
+    path = _rings_path(rings)
+    if path is not None:
+        ax.add_patch(PathPatch(path, **style))
+
+
+def _draw_site(ax, shapes: SiteShapes, *, filled: bool) -> None:
+    _draw_polygon(
+        ax,
+        shapes.outline,
+        facecolor=SITE_FILL if filled else "none",
+        edgecolor=SITE_EDGE,
+        linewidth=1.4,
+        zorder=3 if not filled else 1,
+    )
+    for rings in shapes.zones:
+        _draw_polygon(
+            ax, rings, facecolor="none", edgecolor=ZONE_EDGE, linewidth=0.9, linestyle="--",
+            zorder=3,
+        )
+    for rings in shapes.areas:
+        _draw_polygon(ax, rings, facecolor="none", edgecolor=AREA_EDGE, linewidth=1.0, zorder=3)
+    for rings in shapes.exclusions:
+        _draw_polygon(
+            ax, rings, facecolor="none", edgecolor=EXCLUSION_EDGE, hatch="////", linewidth=1.0,
+            zorder=3,
+        )
+
+
+def _draw_probes(ax, probes: Sequence[MapProbePoint], *, labels: bool, size: float = 28) -> None:
+    for existing in (True, False):
+        group = [p for p in probes if p.existing == existing]
+        for kind in sorted({p.kind for p in group}):
+            mine = [p for p in group if p.kind == kind]
+            marker, face = KIND_STYLE.get(kind, KIND_STYLE["other"])
+            ax.scatter(
+                [p.x for p in mine],
+                [p.y for p in mine],
+                s=size * (0.7 if existing else 1.0),
+                marker=marker,
+                facecolors="#9aa3a9" if existing else face,
+                edgecolors=INK,
+                linewidths=0.7,
+                zorder=5,
+            )
+        if labels:
+            for p in group:
+                ax.annotate(
+                    p.id,
+                    (p.x, p.y),
+                    xytext=(4, 3),
+                    textcoords="offset points",
+                    fontsize=6.5,
+                    color=INK_SOFT if existing else INK,
+                    zorder=6,
+                )
+
+
+def _frame_map(ax, bounds, crs: str | None) -> None:
+    min_x, min_y, max_x, max_y = bounds
+    pad = 0.04 * max(max_x - min_x, max_y - min_y, 1.0)
+    ax.set_xlim(min_x - pad, max_x + pad)
+    ax.set_ylim(min_y - pad, max_y + pad)
+    ax.set_aspect("equal")
+    ax.xaxis.set_major_formatter(FuncFormatter(lambda v, _p: f"{v:.0f}"))
+    ax.yaxis.set_major_formatter(FuncFormatter(lambda v, _p: f"{v:.0f}"))
+    ax.tick_params(labelsize=7, colors=INK_SOFT)
+    for label in ax.get_xticklabels():
+        label.set_rotation(0)
+    ax.set_xlabel(f"Easting (m), {crs}" if crs else "x (m), local site grid", fontsize=7.5)
+    ax.set_ylabel("Northing (m)" if crs else "y (m)", fontsize=7.5)
+    ax.locator_params(axis="x", nbins=5)
+    ax.locator_params(axis="y", nbins=5)
+
+
+def _map_figure_size(bounds, n_panels: int, width_in: float) -> tuple[float, float]:
+    min_x, min_y, max_x, max_y = bounds
+    aspect = max(max_y - min_y, 1.0) / max(max_x - min_x, 1.0)
+    panel_w = width_in / n_panels
+    panel_h = min(max(panel_w * aspect, 1.6), 6.5)
+    return width_in, panel_h + 1.5
+
+
+# ------------------------------------------------------------------------------ figures
+
+
+def cost_gain_chart(
+    points: Sequence[ChartPoint],
+    curves: Sequence[ChartCurve] = (),
+    *,
+    currency: str = "",
+) -> bytes:
+    """Cost against information gain of each option, with the Pareto front: SVG bytes."""
+    with _draw_lock:
+        fig = Figure(figsize=(7.2, 4.2), layout="constrained")
+        ax = fig.add_subplot()
+        ax.grid(True, color=RULE, linewidth=0.6)
+        ax.set_axisbelow(True)
+        for n, curve in enumerate(curves):
+            if len(curve.points) < 2:
+                continue
+            xs, ys = zip(*sorted(curve.points), strict=True)
+            ax.step(
+                (0.0, *xs),
+                (0.0, *ys),
+                where="post",
+                color=CURVE,
+                linewidth=1.1,
+                alpha=0.9 if n == 0 else 0.45,
+                label="Optimiser's cost-gain curve" if n == 0 else None,
+                zorder=2,
+            )
+        front = sorted((p for p in points if p.pareto), key=lambda p: p.cost)
+        if front:
+            ax.plot(
+                [0.0] + [p.cost for p in front],
+                [0.0] + [p.gain_bits for p in front],
+                color=PARETO,
+                linewidth=1.6,
+                linestyle="--",
+                label="Pareto front",
+                zorder=3,
+            )
+        ax.scatter([0], [0], marker="x", color=INK_SOFT, s=30, zorder=4)
+        ax.annotate(
+            "existing information only",
+            (0, 0),
+            xytext=(6, 5),
+            textcoords="offset points",
+            fontsize=7,
+            color=INK_SOFT,
+        )
+        for p in points:
+            ax.scatter(
+                [p.cost],
+                [p.gain_bits],
+                s=70 if p.chosen else 42,
+                marker="o",
+                facecolors=PARETO if p.pareto else "#ffffff",
+                edgecolors=CHOSEN if p.chosen else INK,
+                linewidths=2.2 if p.chosen else 1.0,
+                zorder=5,
+            )
+            label = p.name if len(p.name) <= 34 else p.name[:32] + "\u2026"
+            ax.annotate(
+                label,
+                (p.cost, p.gain_bits),
+                xytext=(7, -3),
+                textcoords="offset points",
+                fontsize=7.5,
+                color=INK,
+                fontweight="bold" if p.chosen else "normal",
+                zorder=6,
+            )
+        # legend entries for the point styles
+        ax.scatter([], [], s=42, facecolors=PARETO, edgecolors=INK, label="Pareto-efficient option")
+        ax.scatter([], [], s=42, facecolors="#ffffff", edgecolors=INK, label="Dominated option")
+        if any(p.chosen for p in points):
+            ax.scatter(
+                [], [], s=70, facecolors="none", edgecolors=CHOSEN, linewidths=2.2,
+                label="Chosen option",
+            )
+        ax.set_xlabel(f"Cost ({currency})" if currency else "Cost")
+        ax.set_ylabel("Information gain (bits)")
+        ax.xaxis.set_major_formatter(FuncFormatter(_money_axis))
+        ax.set_xlim(left=0)
+        ax.set_ylim(bottom=0)
+        ax.margins(x=0.12, y=0.1)
+        ax.legend(loc="lower right", fontsize=7.5, frameon=True, framealpha=0.9)
+        return _to_bytes(fig, "svg")
+
+
+@dataclass(frozen=True)
+class GridRaster:
+    """Where the evaluation grid's cells sit: ``index (n, 2)`` = (row from the bottom, column
+    from the left) on a ``shape`` = (rows, cols) raster whose lower-left corner is
+    ``corner`` (project coordinates) and cells ``spacing_m`` wide."""
+
+    index: np.ndarray
+    shape: tuple[int, int]
+    corner: tuple[float, float]
+    spacing_m: float
+
+    def image(self, values: np.ndarray) -> np.ndarray:
+        out = np.full(self.shape, np.nan)
+        out[self.index[:, 0], self.index[:, 1]] = values
+        return out
+
+    @property
+    def extent(self) -> tuple[float, float, float, float]:
+        rows, cols = self.shape
+        x0, y0 = self.corner
+        return x0, x0 + cols * self.spacing_m, y0, y0 + rows * self.spacing_m
+
+
+def uncertainty_maps(
+    raster: GridRaster,
+    panels: Sequence[tuple[str, np.ndarray, Sequence[MapProbePoint]]],
+    shapes: SiteShapes,
+    *,
+    title: str,
+    quantity_label: str,
+    crs: str | None,
+    width_in: float = 9.0,
+) -> bytes:
+    """Side-by-side maps of one quantity (m) on one colour scale: PNG bytes.
+
+    ``panels``: (panel title, values per grid cell ``(n,)``, probes to draw).
+    """
+    bounds = shapes.bounds()
+    with _draw_lock:
+        fig = Figure(figsize=_map_figure_size(bounds, len(panels), width_in), layout="constrained")
+        axes = fig.subplots(1, len(panels), squeeze=False)[0]
+        top = max((float(np.nanmax(v)) for _, v, _ in panels if np.isfinite(v).any()), default=1.0)
+        top = top if top > 0 else 1.0
+        image = None
+        for ax, (panel_title, values, probes) in zip(axes, panels, strict=True):
+            _draw_site(ax, shapes, filled=False)
+            image = ax.imshow(
+                raster.image(values),
+                origin="lower",
+                extent=raster.extent,
+                cmap=MAP_CMAP,
+                vmin=0.0,
+                vmax=top,
+                interpolation="nearest",
+                zorder=1,
+            )
+            _draw_probes(ax, probes, labels=False, size=18)
+            _frame_map(ax, bounds, crs)
+            ax.set_title(panel_title, fontsize=9)
+        if image is not None:
+            bar = fig.colorbar(image, ax=list(axes), orientation="horizontal", shrink=0.5,
+                               aspect=40, pad=0.02)
+            bar.set_label(quantity_label, fontsize=8)
+            bar.ax.tick_params(labelsize=7)
+        fig.suptitle(title, fontsize=10, fontweight="bold")
+        return _to_bytes(fig, "png", dpi=130)
+
+
+def site_plan(
+    shapes: SiteShapes,
+    probes: Sequence[MapProbePoint],
+    *,
+    title: str,
+    crs: str | None,
+    kind_labels: dict[str, str],
+    width_in: float = 7.5,
+) -> bytes:
+    """The site with existing and planned probes, labelled: PNG bytes."""
+    bounds = shapes.bounds()
+    with _draw_lock:
+        fig = Figure(figsize=_map_figure_size(bounds, 1, width_in), layout="constrained")
+        ax = fig.add_subplot()
+        _draw_site(ax, shapes, filled=True)
+        _draw_probes(ax, probes, labels=True, size=30)
+        _frame_map(ax, bounds, crs)
+        ax.set_title(title, fontsize=10, fontweight="bold")
+        handles = []
+        for kind in sorted({p.kind for p in probes if not p.existing}):
+            marker, face = KIND_STYLE.get(kind, KIND_STYLE["other"])
+            handles.append(
+                ax.scatter([], [], marker=marker, facecolors=face, edgecolors=INK, s=30,
+                           label=f"Planned: {kind_labels.get(kind, kind)}")
+            )
+        if any(p.existing for p in probes):
+            handles.append(
+                ax.scatter([], [], marker="o", facecolors="#9aa3a9", edgecolors=INK, s=20,
+                           label="Existing probe")
+            )
+        if shapes.exclusions:
+            handles.append(
+                PathPatch(MplPath([(0, 0), (1, 0), (1, 1)]), facecolor="none",
+                          edgecolor=EXCLUSION_EDGE, hatch="////", label="Exclusion (no probes)")
+            )
+        if shapes.areas:
+            handles.append(
+                PathPatch(MplPath([(0, 0), (1, 0), (1, 1)]), facecolor="none",
+                          edgecolor=AREA_EDGE, label="Area of interest")
+            )
+        if handles:
+            fig.legend(handles=handles, loc="outside lower center", ncols=min(len(handles), 4),
+                       fontsize=7, frameon=False)
+        return _to_bytes(fig, "png", dpi=150)
+
+
+@dataclass(frozen=True)
+class SectionBand:
+    """P5/P50/P95 (m) of one boundary at the section's sample points, ``(n,)`` each."""
+
+    name: str
+    p05_m: np.ndarray
+    p50_m: np.ndarray
+    p95_m: np.ndarray
+
+
+@dataclass(frozen=True)
+class SectionProbe:
+    id: str
+    distance_m: float
+    depth_m: float
+    kind: str
+    existing: bool
+
+
+def depth_section(
+    distance_m: np.ndarray,
+    panels: Sequence[tuple[str, Sequence[SectionBand], Sequence[SectionProbe]]],
+    *,
+    title: str,
+    width_in: float = 9.0,
+) -> bytes:
+    """P5-P95 bands and P50 lines of every boundary along a line, one panel per state: PNG.
+
+    Depth is positive down (the axis is inverted); every panel has the same depth axis.
+    """
+    deepest = 0.0
+    for _, bands, probes in panels:
+        for band in bands:
+            deepest = max(deepest, float(np.nanmax(band.p95_m)))
+        for probe in probes:
+            deepest = max(deepest, probe.depth_m)
+    deepest = deepest * 1.05 + 0.5
+    with _draw_lock:
+        fig = Figure(figsize=(width_in, 2.6 * len(panels) + 0.9), layout="constrained")
+        axes = fig.subplots(len(panels), 1, squeeze=False, sharex=True)[:, 0]
+        for ax, (panel_title, bands, probes) in zip(axes, panels, strict=True):
+            ax.grid(True, color=RULE, linewidth=0.5)
+            ax.set_axisbelow(True)
+            for n, band in enumerate(bands):
+                colour = BOUNDARY_COLOURS[n % len(BOUNDARY_COLOURS)]
+                ax.fill_between(distance_m, band.p05_m, band.p95_m, color=colour, alpha=0.28,
+                                linewidth=0, label=f"Base of {band.name}: P5\u2013P95")
+                ax.plot(distance_m, band.p50_m, color=colour, linewidth=1.3,
+                        label=f"Base of {band.name}: P50")
+            for probe in probes:
+                marker, face = KIND_STYLE.get(probe.kind, KIND_STYLE["other"])
+                ax.plot([probe.distance_m, probe.distance_m], [0, probe.depth_m],
+                        color=INK_SOFT if probe.existing else INK, linewidth=1.6 if not
+                        probe.existing else 1.0, linestyle=":" if probe.existing else "-",
+                        zorder=5)
+                ax.scatter([probe.distance_m], [0], marker=marker,
+                           facecolors="#9aa3a9" if probe.existing else face, edgecolors=INK,
+                           s=26, zorder=6, clip_on=False)
+                ax.annotate(probe.id, (probe.distance_m, 0), xytext=(0, 5),
+                            textcoords="offset points", ha="center", fontsize=6.5,
+                            color=INK_SOFT if probe.existing else INK, annotation_clip=False)
+            ax.set_ylim(deepest, 0)
+            ax.set_xlim(float(distance_m[0]), float(distance_m[-1]))
+            ax.set_ylabel("Depth below ground (m)")
+            ax.set_title(panel_title, fontsize=9, loc="left", pad=14)
+        axes[-1].set_xlabel("Distance along the section (m)")
+        handles, labels = axes[0].get_legend_handles_labels()
+        fig.legend(handles, labels, loc="outside lower center", ncols=2, fontsize=7,
+                   frameon=False)
+        fig.suptitle(title, fontsize=10, fontweight="bold")
+        return _to_bytes(fig, "png", dpi=130)

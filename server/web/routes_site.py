@@ -1,0 +1,664 @@
+"""The Site page: project settings (name, CRS, grid spacing), the outline, zones, areas of
+interest and exclusions, entered as coordinates or imported from a GIS file, on a map.
+
+Geometry as text: one "x, y" pair per line (commas, semicolons, tabs or spaces between the
+two numbers); the ring is closed automatically. A blank line starts a hole in the polygon
+above it; for the site outline, a line "---" starts a further polygon (a MultiPolygon).
+
+``build_map_data(model)`` is what static/js/sitemap.js draws; GET /projects/{id}/site.json
+serves it for any page (the Options map reuses it).
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from typing import Any
+
+import sqlite_utils
+from fastapi import APIRouter, Request
+from starlette.responses import JSONResponse, Response
+
+from server import geo_io
+from server.core.grid import MAX_GRID_CELLS as CORE_MAX_GRID_CELLS
+from server.errors import InputError
+from server.store import StoredProject, get_project
+from server.web.deps import Db
+from server.web.edits import (
+    EditPage,
+    EditResult,
+    FormReader,
+    PostedForm,
+    expected_revision_of,
+    item_at,
+    run_edit,
+)
+from server.web.site_map import feature_bounds
+from server.web.templating import is_htmx, render
+
+router = APIRouter(include_in_schema=False)
+
+# URL role -> (model key, words for one, words for many, map tag prefix)
+ROLES: dict[str, tuple[str, str, str, str]] = {
+    "zones": ("zones", "zone", "zones", "Z"),
+    "areas": ("areas_of_interest", "area of interest", "areas of interest", "A"),
+    "exclusions": ("exclusions", "exclusion", "exclusions", "X"),
+}
+IMPORT_ROLES = (
+    ("site", "Site outline"),
+    ("zones", "Zones"),
+    ("areas", "Areas of interest"),
+    ("exclusions", "Exclusions"),
+)
+MAX_TEXT_POSITIONS = 20_000
+MULTI_SEPARATOR = "---"
+
+
+# ---------------------------------------------------------------- geometry as text
+
+
+def _position_text(position: list[float]) -> str:
+    def exact(value: float) -> str:
+        text = repr(float(value))
+        return text[:-2] if text.endswith(".0") else text
+
+    return f"{exact(position[0])}, {exact(position[1])}"
+
+
+def polygon_text(geometry: dict | None) -> str:
+    """A GeoJSON Polygon/MultiPolygon as editable lines (closing positions left out)."""
+    if not geometry:
+        return ""
+    kind = geometry.get("type")
+    polygons = (
+        [geometry.get("coordinates") or []]
+        if kind == "Polygon"
+        else geometry.get("coordinates") or []
+    )
+    blocks = []
+    for rings in polygons:
+        ring_texts = []
+        for ring in rings:
+            points = ring[:-1] if len(ring) > 1 and ring[0] == ring[-1] else ring
+            ring_texts.append("\n".join(_position_text(p) for p in points))
+        blocks.append("\n\n".join(ring_texts))
+    return f"\n{MULTI_SEPARATOR}\n".join(blocks)
+
+
+def parse_polygon_text(text: str, path: str, *, allow_multi: bool = False) -> dict:
+    """Lines of "x, y" -> a GeoJSON Polygon (or MultiPolygon); InputError names the line."""
+    polygons: list[list[list[list[float]]]] = [[[]]]
+    count = 0
+    for number, raw in enumerate(text.splitlines(), start=1):
+        line = raw.strip()
+        if line == MULTI_SEPARATOR:
+            if not allow_multi:
+                raise InputError(path, f"line {number}: only the site outline may have parts")
+            polygons.append([[]])
+            continue
+        if not line:
+            if polygons[-1][-1]:
+                polygons[-1].append([])  # a blank line after a ring: a hole follows
+            continue
+        parts = [p for p in re.split(r"[,;\t ]+", line) if p]
+        if len(parts) != 2:
+            raise InputError(path, f"line {number}: '{line[:40]}' is not one 'x, y' pair")
+        values = []
+        for part in parts:
+            try:
+                value = float(part)
+            except ValueError:
+                raise InputError(path, f"line {number}: '{part[:20]}' is not a number") from None
+            if not math.isfinite(value):
+                raise InputError(path, f"line {number}: '{part[:20]}' is not a finite number")
+            values.append(value)
+        count += 1
+        if count > MAX_TEXT_POSITIONS:
+            raise InputError(path, f"has more than {MAX_TEXT_POSITIONS} positions")
+        polygons[-1][-1].append(values)
+    out = []
+    for rings in polygons:
+        rings = [r for r in rings if r]
+        if not rings:
+            continue
+        closed = []
+        for r, ring in enumerate(rings):
+            if len(ring) > 1 and ring[0] == ring[-1]:
+                ring = ring[:-1]
+            what = "the outline" if r == 0 else f"hole {r}"
+            if len({tuple(p) for p in ring}) < 3:
+                raise InputError(path, f"{what} needs at least 3 different points")
+            closed.append([*ring, ring[0]])
+        out.append(closed)
+    if not out:
+        raise InputError(path, "is empty: give at least 3 'x, y' lines")
+    if len(out) == 1:
+        return {"type": "Polygon", "coordinates": out[0]}
+    return {"type": "MultiPolygon", "coordinates": out}
+
+
+# ---------------------------------------------------------------- derived figures
+
+
+def area_m2(geometry: dict | None) -> float | None:
+    """Plan area of a polygon (m2), None when it cannot be computed."""
+    from shapely.geometry import shape
+
+    try:
+        return float(shape(geometry).area) if geometry else None
+    except Exception:  # noqa: BLE001 - an invalid geometry shown back to the user
+        return None
+
+
+def grid_cell_count(site: dict | None, spacing_m: Any) -> int | None:
+    """Cell centres of the evaluation grid inside the site (aligned as server/core/grid.py:
+    first centre half a spacing in from the lower-left corner of the bounding box)."""
+    import numpy as np
+    import shapely
+    from shapely.geometry import shape
+
+    try:
+        spacing = float(spacing_m)
+        outline = shape(site)
+    except Exception:  # noqa: BLE001 - shown back after a refused edit
+        return None
+    if not (spacing > 0 and math.isfinite(spacing)) or outline.is_empty:
+        return None
+    min_x, min_y, max_x, max_y = outline.bounds
+    nx = max(math.ceil((max_x - min_x) / spacing), 1)
+    ny = max(math.ceil((max_y - min_y) / spacing), 1)
+    if nx * ny > 4_000_000:
+        return round(outline.area / spacing**2)
+    xs = min_x + (np.arange(nx) + 0.5) * spacing
+    ys = min_y + (np.arange(ny) + 0.5) * spacing
+    gx, gy = np.meshgrid(xs, ys)
+    return int(shapely.contains_xy(outline, gx.ravel(), gy.ravel()).sum())
+
+
+def vertex_count(geometry: dict | None) -> int:
+    if not geometry:
+        return 0
+    kind = geometry.get("type")
+    polygons = [geometry["coordinates"]] if kind == "Polygon" else geometry.get("coordinates", [])
+    return sum(max(len(ring) - 1, 0) for rings in polygons for ring in rings)
+
+
+# ---------------------------------------------------------------- map data (sitemap.js)
+
+
+def build_map_data(model: dict, *, include_layouts: bool = True) -> dict[str, Any]:
+    """Everything static/js/sitemap.js draws, in project coordinates (metres).
+
+    ``origin``: a round point at the lower left of everything, subtracted on the map to keep
+    numbers small. Probes carry their method's kind for the symbol.
+    """
+    methods = {
+        m["id"]: {"name": m.get("name", m["id"]), "kind": m.get("kind", "other")}
+        for m in model.get("methods") or []
+    }
+
+    def kind_of(method_id: str) -> str:
+        return methods.get(method_id, {}).get("kind", "other")
+
+    def features(key: str, tag: str) -> list[dict[str, Any]]:
+        out = []
+        for n, item in enumerate(model.get(key) or [], start=1):
+            entry = {"tag": f"{tag}{n}", "name": item.get("name", ""), "geometry": item["geometry"]}
+            if "weight" in item:
+                entry["weight"] = item["weight"]
+            out.append(entry)
+        return out
+
+    min_x, min_y, max_x, max_y = feature_bounds(model)
+    layouts = []
+    if include_layouts:
+        for layout in model.get("layouts") or []:
+            probes = [
+                {
+                    "id": p["id"],
+                    "method": p["method"],
+                    "kind": kind_of(p["method"]),
+                    "x": p["x"],
+                    "y": p["y"],
+                    "depth_m": p.get("depth_m"),
+                }
+                for p in layout.get("probes") or []
+            ]
+            layouts.append({"name": layout["name"], "probes": probes})
+    return {
+        "crs": model.get("crs"),
+        "origin": [math.floor(min_x), math.floor(min_y)],
+        "bounds": [min_x, min_y, max_x, max_y],
+        "site": model.get("site"),
+        "zones": features("zones", "Z"),
+        "areas": features("areas_of_interest", "A"),
+        "exclusions": features("exclusions", "X"),
+        "existing": [
+            {
+                "id": p["id"],
+                "method": p["method"],
+                "kind": kind_of(p["method"]),
+                "x": p["x"],
+                "y": p["y"],
+                "final_depth_m": p.get("final_depth_m"),
+            }
+            for p in model.get("existing") or []
+        ],
+        "layouts": layouts,
+        "methods": methods,
+    }
+
+
+# ---------------------------------------------------------------- the page
+
+
+def _feature_rows(model: dict, role: str) -> list[dict[str, Any]]:
+    key, _one, _many, tag = ROLES[role]
+    rows = []
+    for n, item in enumerate(model.get(key) or []):
+        rows.append(
+            {
+                "index": n,
+                "tag": f"{tag}{n + 1}",
+                "item": item,
+                "area_m2": area_m2(item.get("geometry")),
+                "text": polygon_text(item.get("geometry"))
+                if isinstance(item.get("geometry"), dict)
+                else "",
+                "n_overrides": len(item.get("units") or {}) if role == "zones" else 0,
+            }
+        )
+    return rows
+
+
+def site_extra(
+    db: sqlite_utils.Database, project: StoredProject, model: dict, result: EditResult | None
+) -> dict[str, Any]:
+    stored = project.model
+    site = model.get("site") if isinstance(model.get("site"), dict) else stored.get("site")
+    cells = grid_cell_count(stored.get("site"), stored.get("grid_spacing_m"))
+    return {
+        "map_data": build_map_data(stored, include_layouts=False),
+        "site_area_m2": area_m2(stored.get("site")),
+        "site_vertices": vertex_count(stored.get("site")),
+        "site_text": polygon_text(site) if isinstance(site, dict) else "",
+        "n_cells": cells,
+        "core_max_cells": CORE_MAX_GRID_CELLS,
+        "roles": ROLES,
+        "feature_rows": {role: _feature_rows(model, role) for role in ROLES},
+        "import_roles": IMPORT_ROLES,
+        "preview": None,
+    }
+
+
+PAGE = EditPage(
+    step="site",
+    title="Site",
+    slug="site",
+    page="site.html",
+    fragment="_site.html",
+    fragment_id="site",
+    extra=site_extra,
+)
+PAGE.add_undo_route(router)
+OWN = ("name", "crs", "grid_spacing_m", "site", "zones", "areas_of_interest", "exclusions")
+
+
+@router.get("/projects/{project_id}/site")
+def site_page(request: Request, project_id: int, db: Db) -> Response:
+    return PAGE.show(request, db, project_id)
+
+
+@router.get("/projects/{project_id}/site.json")
+def site_json(project_id: int, db: Db) -> JSONResponse:
+    """Outline, zones, areas, exclusions, existing probes and layouts for a map."""
+    return JSONResponse(build_map_data(get_project(db, project_id).model))
+
+
+# ---------------------------------------------------------------- settings and outline
+
+
+def reproject_model(model: dict, source: str, target: str) -> None:
+    """Move every coordinate of the model from CRS ``source`` to ``target`` (in place)."""
+    from pyproj import Transformer
+
+    transformer = Transformer.from_crs(source, target, always_xy=True)
+
+    def move(coords: Any) -> Any:
+        if coords and isinstance(coords[0], int | float):
+            x, y = transformer.transform(coords[0], coords[1])
+            if not (math.isfinite(x) and math.isfinite(y)):
+                raise InputError("crs", f"cannot move ({coords[0]}, {coords[1]}) into {target}")
+            return [x, y]
+        return [move(c) for c in coords]
+
+    if model.get("site"):
+        model["site"]["coordinates"] = move(model["site"]["coordinates"])
+    for key in ("zones", "areas_of_interest", "exclusions", "bounds"):
+        for item in model.get(key) or []:
+            if item.get("geometry"):
+                item["geometry"]["coordinates"] = move(item["geometry"]["coordinates"])
+    probes = list(model.get("existing") or [])
+    for layout in model.get("layouts") or []:
+        probes += layout.get("probes") or []
+    for probe in probes:
+        probe["x"], probe["y"] = move([probe["x"], probe["y"]])
+
+
+@router.post("/projects/{project_id}/site/settings")
+def save_settings(request: Request, project_id: int, form: PostedForm, db: Db) -> Response:
+    reader = FormReader(form)
+
+    def edit(model: dict) -> str:
+        changes = []
+        name = reader.text("name", "name")
+        if name and name != model.get("name"):
+            model["name"] = name
+            changes.append(f"renamed the project to {name}")
+        crs_text = reader.text("crs", "crs", required=False) or None
+        old_crs = model.get("crs")
+        if crs_text != old_crs:
+            if crs_text and old_crs and reader.raw("crs_change") == "reproject":
+                from server.model_file import validate_all
+
+                problems = [p for p in validate_all({**model, "crs": crs_text}) if p.field == "crs"]
+                if problems:
+                    raise problems[0]
+                reproject_model(model, old_crs, crs_text)
+                changes.append(f"reprojected from {old_crs} to {crs_text}")
+            else:
+                changes.append(f"set the coordinate system to {crs_text or 'a local site grid'}")
+            model["crs"] = crs_text
+        spacing = reader.number("grid_spacing_m", "grid_spacing_m")
+        if spacing != model.get("grid_spacing_m"):
+            model["grid_spacing_m"] = spacing
+            if isinstance(spacing, float):
+                changes.append(f"set the grid spacing to {spacing:g} m")
+        text = "; ".join(changes) or "Saved project settings"
+        return text[0].upper() + text[1:]
+
+    return PAGE.edit(request, db, project_id, form, edit, reader=reader, own=OWN)
+
+
+@router.post("/projects/{project_id}/site/outline")
+def save_outline(request: Request, project_id: int, form: PostedForm, db: Db) -> Response:
+    reader = FormReader(form)
+
+    def edit(model: dict) -> str:
+        try:
+            model["site"] = parse_polygon_text(
+                reader.raw("geometry_text"), "site", allow_multi=True
+            )
+        except InputError as exc:  # the text is shown back from the draft
+            reader.problems.append(exc)
+        return "Changed the site outline"
+
+    return PAGE.edit(request, db, project_id, form, edit, reader=reader, own=OWN, fallback="site")
+
+
+# ---------------------------------------------------------------- zones, areas, exclusions
+
+
+def _role(role: str) -> tuple[str, str, str, str]:
+    if role not in ROLES:
+        from fastapi import HTTPException
+
+        raise HTTPException(404, f"no such part of the site: {role}")
+    return ROLES[role]
+
+
+def _read_feature(reader: FormReader, role: str, path: str, item: dict) -> str:
+    """Name, weight (areas) and geometry from the form into ``item``; returns the name."""
+    name = reader.text("name", f"{path}.name")
+    item["name"] = name
+    if role == "areas":
+        item["weight"] = reader.number("weight", f"{path}.weight")
+    try:
+        item["geometry"] = parse_polygon_text(reader.raw("geometry_text"), f"{path}.geometry")
+    except InputError as exc:  # the text is shown back from the draft
+        reader.problems.append(exc)
+        item.setdefault("geometry", {"type": "Polygon", "coordinates": []})
+    return name
+
+
+@router.post("/projects/{project_id}/site/{role}/add")
+def add_feature(
+    request: Request, project_id: int, role: str, form: PostedForm, db: Db
+) -> Response:
+    key, one, _many, _tag = _role(role)
+    reader = FormReader(form)
+
+    def edit(model: dict) -> str:
+        items = model.setdefault(key, [])
+        path = f"{key}[{len(items)}]"
+        item: dict[str, Any] = {"units": {}} if role == "zones" else {}
+        name = _read_feature(reader, role, path, item)
+        items.append(item)
+        return f"Added {one} {name}"
+
+    def remap(field: str) -> str:
+        return re.sub(rf"^{key}\[\d+\]", f"new_{role}", field)
+
+    return PAGE.edit(
+        request,
+        db,
+        project_id,
+        form,
+        edit,
+        reader=reader,
+        own=(f"new_{role}",),
+        fallback=f"new_{role}",
+        remap=remap,
+        keep_input=False,
+    )
+
+
+@router.post("/projects/{project_id}/site/{role}/{index:int}")
+def save_feature(
+    request: Request, project_id: int, role: str, index: int, form: PostedForm, db: Db
+) -> Response:
+    key, one, _many, _tag = _role(role)
+    reader = FormReader(form)
+
+    def edit(model: dict) -> str:
+        items = model.get(key) or []
+        item = item_at(items, index, f"{key}[{index}]", one)
+        old = dict(item)
+        name = _read_feature(reader, role, f"{key}[{index}]", item)
+        if old.get("geometry") != item.get("geometry"):
+            return f"Changed the outline of {one} {name}"
+        if old.get("name") != name:
+            return f"Renamed {one} {old.get('name')} to {name}"
+        return f"Changed {one} {name}"
+
+    return PAGE.edit(
+        request, db, project_id, form, edit, reader=reader, own=OWN, fallback=f"{key}[{index}]"
+    )
+
+
+@router.post("/projects/{project_id}/site/{role}/{index:int}/remove")
+def remove_feature(
+    request: Request, project_id: int, role: str, index: int, form: PostedForm, db: Db
+) -> Response:
+    key, one, _many, _tag = _role(role)
+
+    def edit(model: dict) -> str:
+        items = model.get(key) or []
+        item = item_at(items, index, f"{key}[{index}]", one)
+        del items[index]
+        return f"Removed {one} {item.get('name', index + 1)}"
+
+    return PAGE.edit(
+        request, db, project_id, form, edit, own=OWN, fallback=f"{key}[{index}]", keep_input=False
+    )
+
+
+# ---------------------------------------------------------------- GIS import
+
+CLI_WORDING = (
+    ("use the repair option (--repair)", "tick \u201cRepair invalid polygons\u201d"),
+    ("(--repair)", "(tick \u201cRepair invalid polygons\u201d)"),
+    ("choose one (--layer)", "choose one under \u201cLayer\u201d"),
+    ("(--source-crs)", "in \u201cCRS of the file\u201d"),
+    ("(--as-local)", "(tick \u201cCoordinates are site-grid metres\u201d)"),
+    ("--as-local", "\u201cCoordinates are site-grid metres\u201d"),
+)
+
+
+def web_wording(problem: str) -> str:
+    """geo_io speaks to the command line; name the form's fields instead."""
+    for cli, web in CLI_WORDING:
+        problem = problem.replace(cli, web)
+    return problem
+
+
+def gis_preview(data: bytes, filename: str, reader: FormReader, model: dict) -> dict[str, Any]:
+    """What an import would take from the file: layers, columns, features, warnings.
+
+    Raises InputError for a file that cannot be used as it stands (the message says why).
+    """
+    import pyogrio
+
+    layers = geo_io.list_layers(data, filename=filename)
+    if not layers:
+        raise InputError("gis_file", f"{filename} holds no layer with geometry")
+    layer = reader.raw("layer").strip() or None
+    if layer not in layers:
+        layer = layers[0] if len(layers) == 1 else None
+    preview: dict[str, Any] = {
+        "filename": filename,
+        "layers": layers,
+        "layer": layer,
+        "columns": [],
+        "features": [],
+        "outside": [],
+        "problem": None,
+        "ready": False,
+    }
+    if layer is None:
+        preview["problem"] = f"{filename} has {len(layers)} layers; choose one and preview again."
+        return preview
+    # Attribute columns of the chosen layer, read through geo_io's safe unpacking.
+    with geo_io._dataset(data, filename) as (path, kind):  # noqa: SLF001 - shared safe reader
+        layer_path = geo_io._layers_of(path, kind, filename)[layer]  # noqa: SLF001
+        info = pyogrio.read_info(layer_path, layer=None if kind == "zip" else layer)
+    preview["columns"] = [str(c) for c in info.get("fields", [])]
+    features = geo_io.read_polygons(data, **_read_options(reader, filename, layer, model))
+    preview["features"] = [
+        {"name": f["name"], "weight": f.get("weight"), "area_m2": area_m2(f["geometry"])}
+        for f in features
+    ]
+    if reader.raw("role") != "site":
+        preview["outside"] = geo_io.features_outside_site(model, features)
+    preview["ready"] = True
+    return preview
+
+
+def _read_options(reader: FormReader, filename: str, layer: str | None, model: dict) -> dict:
+    role = reader.raw("role")
+    return {
+        "filename": filename,
+        "layer": layer,
+        "target_crs": model.get("crs"),
+        "source_crs_override": reader.raw("source_crs").strip() or None,
+        "name_column": reader.raw("name_column").strip() or None,
+        "weight_column": (reader.raw("weight_column").strip() or None) if role == "areas" else None,
+        "repair": reader.flag("repair"),
+        "assume_local": reader.flag("as_local"),
+    }
+
+
+def _gis_upload(reader: FormReader) -> tuple[bytes, str]:
+    upload = reader.file("gis_file")
+    if upload is None:
+        raise InputError("gis_file", "choose a GeoJSON, GeoPackage or zipped Shapefile first")
+    data = upload.file.read()
+    return data, upload.filename or "upload"
+
+
+def _import_answer(
+    request: Request,
+    db: sqlite_utils.Database,
+    project: StoredProject,
+    reader: FormReader,
+    preview: dict | None,
+    error: InputError | None,
+) -> Response:
+    """The preview area alone (htmx) or, without htmx, the page holding it."""
+    status = 422 if error else 200
+    context = PAGE.context(db, project, None)
+    context["preview"] = preview
+    context["import_error"] = error and {"field": error.field, "problem": web_wording(error.problem)}
+    context["import_form"] = reader.values()
+    if is_htmx(request):
+        headers = {"HX-Retarget": "#site-import-preview", "HX-Reswap": "outerHTML"}
+        return render(
+            request, "_site_import_preview.html", context, status_code=status, headers=headers
+        )
+    return render(request, "site.html", context, status_code=status)
+
+
+@router.post("/projects/{project_id}/site/import/preview")
+def preview_gis(request: Request, project_id: int, form: PostedForm, db: Db) -> Response:
+    project = get_project(db, project_id)
+    reader = FormReader(form)
+    try:
+        data, filename = _gis_upload(reader)
+        preview = gis_preview(data, filename, reader, project.model)
+    except InputError as exc:
+        return _import_answer(request, db, project, reader, None, exc)
+    return _import_answer(request, db, project, reader, preview, None)
+
+
+@router.post("/projects/{project_id}/site/import")
+def import_gis(request: Request, project_id: int, form: PostedForm, db: Db) -> Response:
+    project = get_project(db, project_id)
+    reader = FormReader(form)
+    role = reader.raw("role")
+    mode = "replace" if reader.raw("mode") == "replace" or role == "site" else "append"
+    notes: list[str] = []
+    try:
+        if role not in dict(IMPORT_ROLES):
+            raise InputError("role", "choose what the polygons are: site, zones, areas, exclusions")
+        data, filename = _gis_upload(reader)
+        layer = reader.raw("layer").strip() or None
+        features = geo_io.read_polygons(data, **_read_options(reader, filename, layer, project.model))
+        imported = geo_io.apply_polygons(project.model, role, features, mode)
+        if role != "site":
+            outside = geo_io.features_outside_site(project.model, features)
+            if outside:
+                notes.append(
+                    f"{len(outside)} of them lie wholly outside the site: {', '.join(outside[:10])}"
+                )
+    except InputError as exc:
+        return _import_answer(request, db, project, reader, None, exc)
+
+    what = dict(IMPORT_ROLES)[role].lower()
+    message = (
+        f"Imported the site outline from {filename}"
+        if role == "site"
+        else f"Imported {len(features)} {what} from {filename}"
+        + (" (replacing the old ones)" if mode == "replace" else "")
+    )
+
+    def edit(model: dict) -> str:
+        model.clear()
+        model.update(imported)
+        return message
+
+    result = run_edit(
+        db,
+        project_id,
+        expected_revision_of(form),
+        edit,
+        own=OWN,
+        fallback="gis_file",
+        page_url=PAGE.url(project_id),
+    )
+    if result.saved and notes:
+        result.notice = {"kind": "warning", "text": f"{result.notice['text']} Note: {notes[0]}."}
+    if result.refused and result.status_code == 422:
+        first = result.errors.problems[0]
+        error = InputError("gis_file", f"{first.label}: {first.problem}")
+        return _import_answer(request, db, project, reader, None, error)
+    return PAGE.answer(request, db, result)
