@@ -160,9 +160,14 @@ def run(args: argparse.Namespace) -> int:
 
             name = unique_layout_name(f"Optimised for {budget:g}", taken)
             taken.add(name)
-            out = optimise(
-                project, replace(options, budget=budget), progress, name=name, setup=setup
-            )
+            try:
+                out = optimise(
+                    project, replace(options, budget=budget), progress, name=name, setup=setup
+                )
+            except OptimiseError as exc:
+                if exc.field != "budget":
+                    raise
+                raise InputError("--budgets", str(exc)) from None
             optimised.append(out.layout)
             kinds[name] = "optimised"
             known[name] = out.result

@@ -11,7 +11,16 @@ processes (Krause, Singh and Guestrin, JMLR 9, 2008).
 Exact incremental updates: the posterior covariance ``M`` between every candidate
 location-boundary and every target (a cell of the optimisation grid and a boundary of
 interest) is kept and updated by a rank-k step after each pick; a candidate is scored from
-its rows of ``M`` without re-solving anything (``server.core.greedy_kernel``).
+its rows of ``M`` without re-solving anything. The compiled kernel
+(``server.core.greedy_kernel``) finds the best candidate in about one pass over ``M``: an
+upper bound per location (an envelope probe reading every boundary with the best precision)
+and exact scores only for the few candidates whose bound per cost can still win, so the pick
+is the one full scoring would make. ``server.core.optimise_reference`` is the brute-force
+check.
+
+Several budgets can share one :func:`prepare_optimisation` (candidates, covariances), as the
+ranking of options does. Long runs report progress through a callback and poll a
+``should_stop`` callback between picks (the web's progress bar and cancel button).
 
 Mobilisation makes a method's first probe look expensive, so mixes are handled explicitly:
 one greedy run per mix of methods (every subset of the allowed methods of at most
@@ -39,7 +48,7 @@ from server.core.covariance import boundary_covariance
 from server.core.evaluate import GridEvaluator, LayoutResult, layout_cost
 from server.core.field import UnitFields, unit_fields
 from server.core.geometry import points_in_polygon
-from server.core.greedy_kernel import Q_MIN, kernel_for, plan_runs
+from server.core.greedy_kernel import BOUND_SLACK, FOLD, Q_MIN, kernel_for, plan_runs
 from server.core.grid import EvaluationGrid, evaluation_grid_capped
 from server.core.model import Layout, PlannedProbe, Project
 from server.core.planning import plan_probes, planned_observations
@@ -215,22 +224,21 @@ def check_candidate_count(area_m2: float, spacing_m: float, count: int | None = 
     only when well over, so an absurd spacing never allocates its grid) and with the count
     after.
     """
+    field = "candidate_spacing_m"
     if not (spacing_m > 0 and math.isfinite(spacing_m)):
-        raise OptimiseError(
-            f"--candidate-spacing must be a positive number of metres, not {spacing_m}"
-        )
+        raise OptimiseError(f"must be a positive number of metres, not {spacing_m:g}", field)
     estimate = area_m2 / spacing_m**2
-    over = (
-        count > MAX_CANDIDATE_LOCATIONS
-        if count is not None
-        else (estimate > 2 * MAX_CANDIDATE_LOCATIONS)
-    )
+    if count is not None:
+        over = count > MAX_CANDIDATE_LOCATIONS
+    else:
+        over = estimate > 2 * MAX_CANDIDATE_LOCATIONS
     if over:
         shown = f"{count:,}" if count is not None else f"about {estimate:,.0f}"
         finest = nice_spacing_m(math.sqrt(area_m2 / MAX_CANDIDATE_LOCATIONS))
         raise OptimiseError(
-            f"--candidate-spacing {spacing_m:g} m gives {shown} candidate locations, over the "
-            f"limit of {MAX_CANDIDATE_LOCATIONS:,}; use {finest:g} m or more"
+            f"a candidate spacing of {spacing_m:g} m gives {shown} candidate locations, over "
+            f"the limit of {MAX_CANDIDATE_LOCATIONS:,}; use {finest:g} m or more",
+            field,
         )
 
 
@@ -348,17 +356,19 @@ def _unit_correlations(ground, xy_a: np.ndarray, xy_b: np.ndarray, fa, fb) -> li
 class GreedyState:
     """Posterior quantities the greedy search keeps up to date (see module docstring).
 
-    ``M (L, B, S)``: covariance of each candidate location-boundary with each target slot;
-    ``P (L, B, B)``: covariance among the boundaries at each location; ``V (S,)``: target
-    variances (1 on pad slots); ``F (R, L, B)``: whitened covariance of every reading so far
-    with the candidate location-boundaries, so that the covariance of a new pick with every
-    candidate is ``prior - F^T F[:, pick]``.
+    ``M (B, L, S)``: covariance of each candidate location-boundary with each target slot,
+    boundary-major so that the kernel gets one array per boundary; ``P (L, B, B)``: covariance
+    among the boundaries at each location; ``V (S,)``: target variances (1 on pad slots);
+    ``F (R, L, B)``: whitened covariance of every reading so far with the candidate
+    location-boundaries, so that the covariance of a new pick with every candidate is
+    ``prior - F^T F[:, pick]``; ``G (L, B, B)``, ``H (B, S)``: the pending rank-k update
+    ``M[b, l] -= G[l, b] @ H`` of the last pick (applied by the kernel while it scores).
     """
 
     def __init__(self, M, P, V, F, n_rows):
         self.M, self.P, self.V, self.F, self.n_rows = M, P, V, F, n_rows
-        B, S = M.shape[1], M.shape[2]
-        self.G = np.zeros((M.shape[0], B, B))
+        B, L, S = M.shape
+        self.G = np.zeros((L, B, B))
         self.H = np.zeros((B, S))
         self.pending = False
 
@@ -370,17 +380,21 @@ class GreedyState:
     def flush(self) -> None:
         """Apply a pending update to ``M`` (the kernel normally does it while scoring)."""
         if self.pending:
-            self.M -= np.einsum("lbq,qs->lbs", self.G, self.H)
+            self.M -= np.einsum("lbq,qs->bls", self.G, self.H)
             self.pending = False
 
-    def _append_rows(self, rows: np.ndarray) -> None:
-        need = self.n_rows + rows.shape[0]
+    def reserve_rows(self, count: int) -> None:
+        """Make room in ``F`` for ``count`` more readings."""
+        need = self.n_rows + count
         if need > self.F.shape[0]:
             grown = np.zeros((max(need, 2 * self.F.shape[0]), *self.F.shape[1:]))
             grown[: self.n_rows] = self.F[: self.n_rows]
             self.F = grown
-        self.F[self.n_rows : need] = rows
-        self.n_rows = need
+
+    def _append_rows(self, rows: np.ndarray) -> None:
+        self.reserve_rows(rows.shape[0])
+        self.F[self.n_rows : self.n_rows + rows.shape[0]] = rows
+        self.n_rows += rows.shape[0]
 
     def apply(self, chol: np.ndarray, cov_cand: np.ndarray, cov_slots: np.ndarray) -> None:
         """Condition on a block of ``m`` readings.
@@ -408,7 +422,7 @@ class GreedyState:
             self.H[:m] = h
             self.pending = True
         else:  # a large block (a hand-made layout): apply at once
-            self.M -= np.einsum("lbq,qs->lbs", g, h)
+            self.M -= np.einsum("lbq,qs->bls", g, h)
 
 
 class GreedyProblem:
@@ -422,22 +436,26 @@ class GreedyProblem:
         self.B = self.ground.n_boundaries
         self.cand_fields = unit_fields(self.ground, cand.local, analysis.origin)
         self.base_state = self._initial_state()
+        self.observes = cand.observes  # (L, J, B) bool, computed once
+        self.noise = np.where(self.observes, cand.noise_var, 0.0)  # (L, J, B), 0 unobserved
+        self.group_start = targets.run_start // FOLD
+        self.group_stop = targets.run_stop // FOLD
         self.kernel = kernel_for(self.B)
 
     def _prior_cand_slots(self) -> np.ndarray:
-        """Prior covariance of candidate location-boundaries with target slots ``(L, B, S)``."""
+        """Prior covariance of candidate location-boundaries with target slots ``(B, L, S)``."""
         t = self.targets
         terms = _unit_correlations(
             self.ground, self.cand.local, t.cells, self.cand_fields, t.fields
         )
         cum = np.cumsum(np.stack(terms), axis=0)  # (B, L, C): sum over units 0..i
         L, S = len(self.cand.local), len(t.slot_cell)
-        out = np.zeros((L, self.B, S))
+        out = np.zeros((self.B, L, S))
         real = t.slot_cell >= 0
         for b in range(self.B):
             for k in np.unique(t.slot_bnd[real]):
-                sel = real & (t.slot_bnd == k)
-                out[:, b, sel] = cum[min(b, k)][:, t.slot_cell[sel]]
+                sel = np.flatnonzero(real & (t.slot_bnd == k))
+                out[b][:, sel] = cum[min(b, k)][:, t.slot_cell[sel]]
         return out
 
     def _initial_state(self) -> GreedyState:
@@ -458,7 +476,7 @@ class GreedyProblem:
             white_t = np.concatenate(pred_t.white, axis=0)  # (m, B, C)
             slots = np.zeros((white_t.shape[0], len(t.slot_cell)))
             slots[:, real] = white_t[:, t.slot_bnd[real], t.slot_cell[real]]
-            M -= np.einsum("mbl,ms->lbs", white_c, slots)
+            M -= np.einsum("mbl,ms->bls", white_c, slots)
             P -= np.einsum("mbl,mcl->lbc", white_c, white_c)
             F = np.ascontiguousarray(np.moveaxis(white_c, 2, 1))  # (m, L, B)
         else:
@@ -468,41 +486,49 @@ class GreedyProblem:
         return GreedyState(np.ascontiguousarray(M), P, V, F_store, F.shape[0])
 
     # -- scoring -------------------------------------------------------------------------
-    def whitening(self, state: GreedyState, active: np.ndarray) -> np.ndarray:
-        """``(L, J, B, B)`` lower-triangular operators ``chol(P_O + noise)^-1`` padded with
-        zero rows and columns where a candidate does not read a boundary."""
-        obs = self.cand.observes  # (L, J, B)
-        noise = np.where(obs, self.cand.noise_var, 0.0)
-        L, J, B = obs.shape
-        both = obs[..., :, None] & obs[..., None, :]
-        S = np.where(both, state.P[:, None, :, :], 0.0)
-        S = S + np.eye(B) * np.where(obs, noise, 1.0)[..., None, :]
-        S[~active] = np.eye(B)
-        low = np.linalg.cholesky(S)
-        white = np.linalg.solve(low, np.broadcast_to(np.eye(B), low.shape))
-        white *= obs[..., :, None]
-        white *= obs[..., None, :]
-        return white
-
-    def score(self, state: GreedyState, active: np.ndarray) -> np.ndarray:
-        """Information gain (bits) of every candidate: ``(L, J)``; 0 where inactive."""
+    def _search(self, state: GreedyState, active: np.ndarray, score_all: bool):
         V = state.V
         inv_v = np.where(V > 0, 1.0 / np.maximum(V, 1e-300), 0.0)
-        gain = self.kernel(
-            state.M,
+        gain = np.full(active.shape, -1.0)
+        best, _ = self.kernel.search(
+            *state.M,  # one array per boundary
             inv_v,
-            self.targets.run_start,
-            self.targets.run_stop,
+            self.group_start,
+            self.group_stop,
             self.targets.run_omega,
-            self.whitening(state, active),
-            active,
+            state.P,
+            self.noise,
+            self.observes,
+            np.ascontiguousarray(active),
+            self.cand.cost,
             state.G,
             state.H,
             state.pending,
             Q_MIN,
+            MIN_GAIN_BITS,
+            BOUND_SLACK,
+            score_all,
+            gain,
         )
-        state.pending = False
-        return gain
+        state.pending = False  # the kernel applied it to every row still read
+        return int(best), gain
+
+    def score(self, state: GreedyState, active: np.ndarray) -> np.ndarray:
+        """Information gain (bits) of every candidate: ``(L, J)``; -1 where inactive.
+
+        Scores every active candidate (for checks); the greedy search uses
+        :meth:`best_candidate`, which finds the same best one without scoring them all.
+        """
+        return self._search(state, active, True)[1]
+
+    def best_candidate(self, state: GreedyState, active: np.ndarray):
+        """The active candidate with the most gain per cost: ``(l, j, gain_bits)``, or None
+        when none gains more than ``MIN_GAIN_BITS``. Ties go to the lowest ``l * J + j``."""
+        best, gain = self._search(state, active, False)
+        if best < 0:
+            return None
+        l, j = divmod(best, active.shape[1])
+        return l, j, float(gain[l, j])
 
     # -- updates -------------------------------------------------------------------------
     def _prior_cand_point(self, xy_local: np.ndarray, bnds: np.ndarray) -> np.ndarray:
@@ -517,16 +543,31 @@ class GreedyProblem:
         return cum[idx, :, np.arange(len(bnds))[None, :]].transpose(2, 0, 1)
 
     def apply_pick(self, state: GreedyState, l: int, j: int) -> None:
-        """Condition ``state`` on candidate ``(l, j)``'s readings."""
-        obs = np.flatnonzero(self.cand.observes[l, j])
-        noise = self.cand.noise_var[l, j, obs]
-        cov_cand = self._prior_cand_point(self.cand.local[[l] * len(obs)], obs)
-        R = state.n_rows
-        cov_cand -= np.einsum("rlb,ro->lbo", state.F[:R], state.F[:R, l][:, obs])
-        S = state.P[l][np.ix_(obs, obs)] + np.diag(noise)
-        chol = np.linalg.cholesky(S)
+        """Condition ``state`` on candidate ``(l, j)``'s readings (exact rank-m update)."""
+        obs = np.flatnonzero(self.observes[l, j])
         state.flush()
-        state.apply(chol, cov_cand, state.M[l, obs, :])
+        state.reserve_rows(len(obs))
+        here = self.cand_fields.take(np.array([l]))
+        terms = np.stack(
+            _unit_correlations(
+                self.ground, self.cand.local, self.cand.local[l : l + 1], self.cand_fields, here
+            )
+        )[:, :, 0].copy()  # (B units, L)
+        self.kernel.condition_on_pick(
+            state.F,
+            state.n_rows,
+            l,
+            obs,
+            self.cand.noise_var[l, j, obs],
+            terms,
+            state.P,
+            state.M[obs, l, :],
+            state.V,
+            state.G,
+            state.H,
+        )
+        state.n_rows += len(obs)
+        state.pending = True
 
     def layout_cost(self, layout: Layout) -> float:
         """Cost of a hand-made layout, mobilisation included (as ``evaluate`` reports it)."""
@@ -639,13 +680,11 @@ def greedy_run(
         active &= dist_ok[:, None] & (cand.cost <= budget_left + 1e-9)
         if not active.any():
             break
-        gain = problem.score(state, active)
-        ratio = np.where(active & (gain > MIN_GAIN_BITS), gain / np.maximum(cand.cost, 1e-9), -1)
-        best = int(np.argmax(ratio))
-        if ratio.flat[best] <= 0:
+        found = problem.best_candidate(state, active)
+        if found is None:
             break
-        l, j = divmod(best, ratio.shape[1])
-        picks.append(Pick(l, j, float(cand.cost[l, j]), float(gain[l, j])))
+        l, j, gain = found
+        picks.append(Pick(l, j, float(cand.cost[l, j]), gain))
         budget_left -= cand.cost[l, j]
         problem.apply_pick(state, l, j)
         dist_ok &= np.hypot(*(cand.local - cand.local[l]).T) >= min_spacing_m

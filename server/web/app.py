@@ -16,7 +16,19 @@ from fastapi import FastAPI
 from fastapi.staticfiles import StaticFiles
 
 from server.store import mark_interrupted_jobs, seed_demo_if_empty
-from server.web import routes_api, routes_overview, routes_projects
+from server.web import (
+    routes_api,
+    routes_compare,
+    routes_existing,
+    routes_ground,
+    routes_jobs,
+    routes_methods,
+    routes_options,
+    routes_overview,
+    routes_projects,
+    routes_schedule,
+    routes_site,
+)
 from server.web.deps import database_of
 from server.web.errors import install_error_handlers
 from server.web.security import MAX_BODY_BYTES, SecurityMiddleware, allowed_hosts_for
@@ -25,7 +37,19 @@ from server.web.templating import REPO_ROOT, STATIC_DIR
 log = logging.getLogger(__name__)
 
 DEMO_PROJECT_PATH = REPO_ROOT / "seed_data" / "demo-project.json"
-ROUTERS = (routes_projects.router, routes_overview.router, routes_api.router)
+ROUTERS = (
+    routes_projects.router,
+    routes_overview.router,
+    routes_api.router,
+    routes_site.router,
+    routes_ground.router,
+    routes_existing.router,
+    routes_methods.router,
+    routes_options.router,
+    routes_compare.router,
+    routes_schedule.router,
+    routes_jobs.router,
+)
 
 
 def create_app(

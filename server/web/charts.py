@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import io
 import math
+import re
 import threading
 from collections import OrderedDict
 from functools import lru_cache
@@ -72,55 +73,74 @@ def thickness_chart_svg(shape: str, min_m: float, likely_m: float, max_m: float)
     settings = {
         "svg.fonttype": "none",  # text stays text: small files, page font
         "svg.hashsalt": "probewise",  # stable ids: the same chart gives the same bytes
-        "font.size": 7.5,
+        "font.size": 9,
         "font.family": "sans-serif",
         "axes.edgecolor": RULE,
         "axes.labelcolor": INK_SOFT,
         "xtick.color": INK_SOFT,
         "xtick.labelcolor": INK_SOFT,
     }
+    # Ticks at min, likely and max (coincident ones share a label).
+    ticks: list[tuple[float, str]] = []
+    for value, name in ((min_m, "min"), (likely_m, "likely"), (max_m, "max")):
+        if ticks and abs(ticks[-1][0] - value) < 1e-9:
+            ticks[-1] = (value, f"{ticks[-1][1].split(chr(10))[0]} = {name}\n{_fmt(value)}")
+        else:
+            ticks.append((value, f"{name}\n{_fmt(value)}"))
     with _draw_lock, rc_context(settings):
-        fig = Figure(figsize=(3.3, 1.45), dpi=72)
-        ax = fig.add_axes((0.05, 0.27, 0.9, 0.6))
+        fig = Figure(figsize=(3.4, 1.55), dpi=72)
+        ax = fig.add_axes((0.06, 0.36, 0.88, 0.6))
         span = max_m - min_m
-        ax.axvspan(mean - std, mean + std, color=CLAY, alpha=0.12, lw=0)
+        ax.axvspan(mean - std, mean + std, color=CLAY, alpha=0.13, lw=0)
         ax.fill_between(x, pdf, color=TEAL_SOFT, lw=0)
-        ax.plot(x, pdf, color=TEAL, lw=1.4)
-        ax.axvline(mean, color=CLAY, lw=1.2)
-        for value, name in ((min_m, "min"), (likely_m, "likely"), (max_m, "max")):
-            ax.plot([value, value], [0, top * 0.06], color=INK, lw=1.0)
-            ax.annotate(
-                name,
-                (value, 0),
-                xytext=(0, -1),
-                textcoords="offset points",
-                ha="center",
-                va="top",
-                fontsize=6.5,
-                color=INK_SOFT,
-            )
+        ax.plot(x, pdf, color=TEAL, lw=1.6)
+        ax.axvline(mean, color=CLAY, lw=1.3)
         ax.text(
-            0.5,
-            1.04,
-            f"mean {_fmt(mean)} m, std {_fmt(std)} m (shaded: mean \u00b1 std)",
-            transform=ax.transAxes,
-            ha="center",
-            va="bottom",
-            fontsize=6.8,
+            mean + 0.02 * span,
+            top * 1.06,
+            "mean \u00b1 std",
+            ha="left",
+            va="top",
+            fontsize=8,
             color=CLAY,
         )
-        ax.set_xlim(min_m - 0.04 * span, max_m + 0.04 * span)
+        ax.set_xticks([t[0] for t in ticks], [t[1] for t in ticks])
+        ax.set_xlim(min_m - 0.06 * span, max_m + 0.06 * span)
         ax.set_ylim(0, top * 1.08)
         ax.set_yticks([])
-        ax.tick_params(axis="x", length=2, pad=8)
-        ax.set_xlabel("thickness (m)", labelpad=1)
+        ax.tick_params(axis="x", length=3, pad=2, labelsize=9)
         for side in ("top", "right", "left"):
             ax.spines[side].set_visible(False)
         fig.patch.set_alpha(0.0)
         ax.patch.set_alpha(0.0)
         buffer = io.BytesIO()
         fig.savefig(buffer, format="svg", metadata={"Date": None, "Creator": "probewise"})
-    return buffer.getvalue()
+    return styles_as_attributes(buffer.getvalue().decode("utf-8")).encode("utf-8")
+
+
+_STYLE_ATTR = re.compile(r'\sstyle="([^"]*)"')
+_STYLE_ELEMENT = re.compile(r"<style[^>]*>\*\{([^}]*)\}</style>\s*")
+
+
+def styles_as_attributes(svg: str) -> str:
+    """matplotlib's inline CSS as SVG presentation attributes, which a strict
+    Content-Security-Policy (no inline styles) allows when the image is opened on its own."""
+
+    def attributes(declarations: str) -> str:
+        out = []
+        for declaration in declarations.split(";"):
+            name, _, value = declaration.partition(":")
+            if name.strip() and value.strip():
+                out.append(f' {name.strip()}="{value.strip()}"')
+        return "".join(out)
+
+    defaults = ""
+    match = _STYLE_ELEMENT.search(svg)
+    if match:  # "*{stroke-linejoin: round; ...}": inherited from the root group instead
+        defaults = attributes(match.group(1))
+        svg = svg[: match.start()] + svg[match.end() :]
+    svg = _STYLE_ATTR.sub(lambda m: attributes(m.group(1)), svg)
+    return svg.replace('<g id="figure_1">', f'<g id="figure_1"{defaults}>', 1)
 
 
 class ChartCache:

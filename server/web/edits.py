@@ -268,7 +268,25 @@ def describe_field(model: dict, path: str) -> str:
             probes = items[index].get("probes", []) if index < len(items) else []
             head += ", " + _quoted(probes, int(inner.group(1)), "id", "probe")
             rest = inner.group(2)
-    return f"{head}, {rest}" if rest else head
+    return f"{head}, {_rest_in_words(rest)}" if rest else head
+
+
+_REST_WORDS = (
+    (r"^observed\.(.+)$", r"observed base of \1"),
+    (r"^precision_m\.(.+)$", r"precision for the base of \1"),
+    (r"^units\.(.+)\.thickness_m(.*)$", r"thickness of \1\2"),
+    (r"^thickness_m\b", "thickness"),
+    (r"^correlation\.range_m$", "correlation range"),
+    (r"^cannot_penetrate\[\d+\]$", "cannot penetrate"),
+    (r"^final_depth_m$", "final depth"),
+    (r"^tolerance_m$", "tolerance"),
+)
+
+
+def _rest_in_words(rest: str) -> str:
+    for pattern, words in _REST_WORDS:
+        rest = re.sub(pattern, words, rest)
+    return rest.replace("_m.", " ").replace(".", " ")
 
 
 def field_errors(
@@ -583,9 +601,15 @@ class EditPage:
         edit: Callable[[dict], str],
         *,
         reader: FormReader | None = None,
+        more: Mapping[str, Any] | None = None,
+        more_when_refused: Mapping[str, Any] | None = None,
         **options: Any,
     ):
-        """Run ``edit`` on the project (see run_edit) and answer with this page."""
+        """Run ``edit`` on the project (see run_edit) and answer with this page.
+
+        ``more``: extra template context; ``more_when_refused``: extra context only when the
+        edit was refused (a row that stays open for editing).
+        """
         result = run_edit(
             db,
             project_id,
@@ -595,7 +619,10 @@ class EditPage:
             page_url=self.url(project_id),
             **options,
         )
-        return self.answer(request, db, result)
+        extra = dict(more or {})
+        if result.refused and result.status_code == 422:
+            extra.update(more_when_refused or {})
+        return self.answer(request, db, result, **extra)
 
     def add_undo_route(self, router: Any) -> None:
         """POST /projects/{id}/<slug>/undo: undo the last change and show this page again."""

@@ -53,6 +53,17 @@ STATUS_TITLES = {
 BODY_PARSE_DETAIL = "There was an error parsing the body"  # fastapi.routing's own text
 
 
+def body_parse_problem(cause: BaseException | None) -> str:
+    """Why a request body could not be decoded, from the error FastAPI chained."""
+    if isinstance(cause, UnicodeDecodeError):
+        return f"is not UTF-8 text (byte {cause.start})"
+    if isinstance(cause, RecursionError):
+        return "is nested too deeply"
+    if isinstance(cause, ValueError) and "digits" in str(cause):
+        return "holds a number with too many digits"
+    return "could not be read in its declared content type"
+
+
 def wants_json(request: Request) -> bool:
     return request.url.path.startswith("/api")
 
@@ -153,7 +164,7 @@ def install_error_handlers(app: FastAPI) -> None:
         if exc.status_code == 400 and exc.detail == BODY_PARSE_DETAIL:
             # FastAPI's word for a body it cannot decode (not UTF-8, a broken form): say
             # which field, in the same form as any other invalid body.
-            problem = "could not be read: it is not UTF-8 text in the declared content type"
+            problem = body_parse_problem(exc.__cause__)
             problems = [{"field": "body", "problem": problem}]
             status = 422 if wants_json(request) else 400
             return error_response(request, status, f"body: {problem}", field_problems=problems)

@@ -116,9 +116,7 @@ class ProjectResults:
 
     def kinds(self) -> dict[str, str]:
         """Kind of every layout for the ranking: "hand", "guidance" or "optimised"."""
-        return {
-            layout["name"]: layout_kind(layout) for layout in self.model.get("layouts") or []
-        }
+        return {layout["name"]: layout_kind(layout) for layout in self.model.get("layouts") or []}
 
     def ranking(self) -> list[RankedOption]:
         """Every layout ranked (sorted by cost; Pareto flags over all of them)."""

@@ -102,11 +102,16 @@ def justification(
             f"{metres_text(chosen.width_m)}"
         )
         if main.confident is not None and chosen.confident is not None:
-            text += (
-                f" and lifts the share of the site where that band is within twice its "
-                f"tolerance ({metres_text(2 * main.tolerance_m)}) from "
-                f"{percent_text(main.confident)} to {percent_text(chosen.confident)}"
+            before, after = percent_text(main.confident), percent_text(chosen.confident)
+            where = (
+                f"the share of the site where that band is within twice its tolerance "
+                f"({metres_text(2 * main.tolerance_m)})"
             )
+            if before == after:
+                text += f", while {where} stays at {after}"
+            else:
+                verb = "lifts" if chosen.confident > main.confident else "lowers"
+                text += f" and {verb} {where} from {before} to {after}"
         sentences.append(
             text + f"; over all boundaries of interest it gains {bits_text(chosen.gain_bits)}."
         )
@@ -156,3 +161,31 @@ def justification(
         unit = f"1,000 {currency}".strip()
         sentences.append(f"That is {per_k:.3f} bits per {unit} spent.")
     return sentences
+
+
+# ---------------------------------------------------------------- template filters
+
+
+def format_money_whole(value: object) -> str:
+    """An estimate in whole currency units with thousands separators; a dash when absent."""
+    if value is None or value == "":
+        return "\u2014"
+    number = float(value)  # type: ignore[arg-type]
+    return f"{number:,.0f}" if math.isfinite(number) else "\u2014"
+
+
+def format_percent(value: object) -> str:
+    """A share 0..1 as a whole percentage; a dash when absent (boundary not of interest)."""
+    if value is None or value == "":
+        return "\u2014"
+    return f"{100 * float(value):.0f}%"  # type: ignore[arg-type]
+
+
+def register_template_filters() -> None:
+    from server.web.templating import templates
+
+    templates.env.filters.setdefault("money0", format_money_whole)
+    templates.env.filters.setdefault("percent", format_percent)
+
+
+register_template_filters()

@@ -116,8 +116,11 @@ class SiteShapes:
         pts = np.array([p for ring in self.outline for p in ring], dtype=float).reshape(-1, 2)
         if not len(pts):
             return 0.0, 0.0, 1.0, 1.0
-        return float(pts[:, 0].min()), float(pts[:, 1].min()), float(pts[:, 0].max()), float(
-            pts[:, 1].max()
+        return (
+            float(pts[:, 0].min()),
+            float(pts[:, 1].min()),
+            float(pts[:, 0].max()),
+            float(pts[:, 1].max()),
         )
 
 
@@ -128,7 +131,9 @@ def _to_bytes(fig: Figure, fmt: str, dpi: int = 150) -> bytes:
     FigureCanvasAgg(fig)
     buffer = io.BytesIO()
     metadata = {"Software": None} if fmt == "png" else {"Date": None, "Creator": None}
-    fig.savefig(buffer, format=fmt, dpi=dpi, metadata=metadata)
+    fig.savefig(
+        buffer, format=fmt, dpi=dpi, metadata=metadata, bbox_inches="tight", pad_inches=0.06
+    )
     return buffer.getvalue()
 
 
@@ -166,14 +171,24 @@ def _draw_site(ax, shapes: SiteShapes, *, filled: bool) -> None:
     )
     for rings in shapes.zones:
         _draw_polygon(
-            ax, rings, facecolor="none", edgecolor=ZONE_EDGE, linewidth=0.9, linestyle="--",
+            ax,
+            rings,
+            facecolor="none",
+            edgecolor=ZONE_EDGE,
+            linewidth=0.9,
+            linestyle="--",
             zorder=3,
         )
     for rings in shapes.areas:
         _draw_polygon(ax, rings, facecolor="none", edgecolor=AREA_EDGE, linewidth=1.0, zorder=3)
     for rings in shapes.exclusions:
         _draw_polygon(
-            ax, rings, facecolor="none", edgecolor=EXCLUSION_EDGE, hatch="////", linewidth=1.0,
+            ax,
+            rings,
+            facecolor="none",
+            edgecolor=EXCLUSION_EDGE,
+            hatch="////",
+            linewidth=1.0,
             zorder=3,
         )
 
@@ -308,7 +323,12 @@ def cost_gain_chart(
         ax.scatter([], [], s=42, facecolors="#ffffff", edgecolors=INK, label="Dominated option")
         if any(p.chosen for p in points):
             ax.scatter(
-                [], [], s=70, facecolors="none", edgecolors=CHOSEN, linewidths=2.2,
+                [],
+                [],
+                s=70,
+                facecolors="none",
+                edgecolors=CHOSEN,
+                linewidths=2.2,
                 label="Chosen option",
             )
         ax.set_xlabel(f"Cost ({currency})" if currency else "Cost")
@@ -381,8 +401,9 @@ def uncertainty_maps(
             _frame_map(ax, bounds, crs)
             ax.set_title(panel_title, fontsize=9)
         if image is not None:
-            bar = fig.colorbar(image, ax=list(axes), orientation="horizontal", shrink=0.5,
-                               aspect=40, pad=0.02)
+            bar = fig.colorbar(
+                image, ax=list(axes), orientation="horizontal", shrink=0.5, aspect=40, pad=0.02
+            )
             bar.set_label(quantity_label, fontsize=8)
             bar.ax.tick_params(labelsize=7)
         fig.suptitle(title, fontsize=10, fontweight="bold")
@@ -411,27 +432,55 @@ def site_plan(
         for kind in sorted({p.kind for p in probes if not p.existing}):
             marker, face = KIND_STYLE.get(kind, KIND_STYLE["other"])
             handles.append(
-                ax.scatter([], [], marker=marker, facecolors=face, edgecolors=INK, s=30,
-                           label=f"Planned: {kind_labels.get(kind, kind)}")
+                ax.scatter(
+                    [],
+                    [],
+                    marker=marker,
+                    facecolors=face,
+                    edgecolors=INK,
+                    s=30,
+                    label=f"Planned: {kind_labels.get(kind, kind)}",
+                )
             )
         if any(p.existing for p in probes):
             handles.append(
-                ax.scatter([], [], marker="o", facecolors="#9aa3a9", edgecolors=INK, s=20,
-                           label="Existing probe")
+                ax.scatter(
+                    [],
+                    [],
+                    marker="o",
+                    facecolors="#9aa3a9",
+                    edgecolors=INK,
+                    s=20,
+                    label="Existing probe",
+                )
             )
         if shapes.exclusions:
             handles.append(
-                PathPatch(MplPath([(0, 0), (1, 0), (1, 1)]), facecolor="none",
-                          edgecolor=EXCLUSION_EDGE, hatch="////", label="Exclusion (no probes)")
+                PathPatch(
+                    MplPath([(0, 0), (1, 0), (1, 1)]),
+                    facecolor="none",
+                    edgecolor=EXCLUSION_EDGE,
+                    hatch="////",
+                    label="Exclusion (no probes)",
+                )
             )
         if shapes.areas:
             handles.append(
-                PathPatch(MplPath([(0, 0), (1, 0), (1, 1)]), facecolor="none",
-                          edgecolor=AREA_EDGE, label="Area of interest")
+                PathPatch(
+                    MplPath([(0, 0), (1, 0), (1, 1)]),
+                    facecolor="none",
+                    edgecolor=AREA_EDGE,
+                    label="Area of interest",
+                )
             )
         if handles:
-            fig.legend(handles=handles, loc="outside lower center", ncols=min(len(handles), 4),
-                       fontsize=7, frameon=False)
+            fig.legend(
+                handles=handles,
+                loc="outside lower center",
+                ncols=min(len(handles), 4),
+                fontsize=7,
+                frameon=False,
+            )
         return _to_bytes(fig, "png", dpi=150)
 
 
@@ -480,29 +529,63 @@ def depth_section(
             ax.set_axisbelow(True)
             for n, band in enumerate(bands):
                 colour = BOUNDARY_COLOURS[n % len(BOUNDARY_COLOURS)]
-                ax.fill_between(distance_m, band.p05_m, band.p95_m, color=colour, alpha=0.28,
-                                linewidth=0, label=f"Base of {band.name}: P5\u2013P95")
-                ax.plot(distance_m, band.p50_m, color=colour, linewidth=1.3,
-                        label=f"Base of {band.name}: P50")
-            for probe in probes:
+                ax.fill_between(
+                    distance_m,
+                    band.p05_m,
+                    band.p95_m,
+                    color=colour,
+                    alpha=0.28,
+                    linewidth=0,
+                    label=f"Base of {band.name}: P5\u2013P95",
+                )
+                ax.plot(
+                    distance_m,
+                    band.p50_m,
+                    color=colour,
+                    linewidth=1.3,
+                    label=f"Base of {band.name}: P50",
+                )
+            span = float(distance_m[-1] - distance_m[0]) or 1.0
+            last_label = -np.inf
+            for probe in sorted(probes, key=lambda p: p.distance_m):
                 marker, face = KIND_STYLE.get(probe.kind, KIND_STYLE["other"])
-                ax.plot([probe.distance_m, probe.distance_m], [0, probe.depth_m],
-                        color=INK_SOFT if probe.existing else INK, linewidth=1.6 if not
-                        probe.existing else 1.0, linestyle=":" if probe.existing else "-",
-                        zorder=5)
-                ax.scatter([probe.distance_m], [0], marker=marker,
-                           facecolors="#9aa3a9" if probe.existing else face, edgecolors=INK,
-                           s=26, zorder=6, clip_on=False)
-                ax.annotate(probe.id, (probe.distance_m, 0), xytext=(0, 5),
-                            textcoords="offset points", ha="center", fontsize=6.5,
-                            color=INK_SOFT if probe.existing else INK, annotation_clip=False)
+                ax.plot(
+                    [probe.distance_m, probe.distance_m],
+                    [0, probe.depth_m],
+                    color=INK_SOFT if probe.existing else INK,
+                    linewidth=1.6 if not probe.existing else 1.0,
+                    linestyle=":" if probe.existing else "-",
+                    zorder=5,
+                )
+                ax.scatter(
+                    [probe.distance_m],
+                    [0],
+                    marker=marker,
+                    facecolors="#9aa3a9" if probe.existing else face,
+                    edgecolors=INK,
+                    s=26,
+                    zorder=6,
+                    clip_on=False,
+                )
+                if probe.distance_m - last_label < 0.035 * span:
+                    continue  # too close to the last label to read; the symbol stays
+                last_label = probe.distance_m
+                ax.annotate(
+                    probe.id,
+                    (probe.distance_m, 0),
+                    xytext=(0, 5),
+                    textcoords="offset points",
+                    ha="center",
+                    fontsize=6.5,
+                    color=INK_SOFT if probe.existing else INK,
+                    annotation_clip=False,
+                )
             ax.set_ylim(deepest, 0)
             ax.set_xlim(float(distance_m[0]), float(distance_m[-1]))
             ax.set_ylabel("Depth below ground (m)")
             ax.set_title(panel_title, fontsize=9, loc="left", pad=14)
         axes[-1].set_xlabel("Distance along the section (m)")
         handles, labels = axes[0].get_legend_handles_labels()
-        fig.legend(handles, labels, loc="outside lower center", ncols=2, fontsize=7,
-                   frameon=False)
+        fig.legend(handles, labels, loc="outside lower center", ncols=2, fontsize=7, frameon=False)
         fig.suptitle(title, fontsize=10, fontweight="bold")
         return _to_bytes(fig, "png", dpi=130)

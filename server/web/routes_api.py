@@ -62,7 +62,13 @@ COMMON_RESPONSES: dict[int | str, dict[str, Any]] = {
 router = APIRouter(prefix="/api", tags=["projects"], responses=COMMON_RESPONSES)
 
 ProjectId = Annotated[
-    int, PathParam(ge=1, le=SQLITE_MAX_INTEGER, description="the project's id (from the list)")
+    int,
+    PathParam(
+        ge=1,
+        le=SQLITE_MAX_INTEGER,
+        description="the project's id (from the list)",
+        examples=[1],
+    ),
 ]
 
 

@@ -14,16 +14,18 @@ it runs (a test checks that the overview answers meanwhile).
 
 from __future__ import annotations
 
+import contextlib
 import copy
 import logging
 import math
+import re
 import threading
 import time
 from typing import Any
 
 import sqlite_utils
 from fastapi import APIRouter, Request
-from starlette.responses import Response
+from starlette.responses import RedirectResponse, Response
 
 from server.core.optimise import OptimiseCancelled, OptimiseError, OptimiseOptions, optimise
 from server.errors import InputError
@@ -42,8 +44,8 @@ from server.store import (
 from server.store.errors import JobNotFound, StoreError
 from server.to_core import to_core
 from server.web.deps import Db
-from server.web.edits import FormReader, PostedForm
-from server.web.templating import render
+from server.web.edits import FormReader, PostedForm, parse_number
+from server.web.templating import is_htmx, render
 
 log = logging.getLogger(__name__)
 
@@ -203,10 +205,8 @@ def run_optimiser_job(db: sqlite_utils.Database, job_id: int, project_id: int) -
 
 
 def finish(db: sqlite_utils.Database, job_id: int, status: str, message: str) -> None:
-    try:
+    with contextlib.suppress(StoreError):  # already ended (a queued job cancelled at once)
         update_job(db, job_id, status=status, message=message)
-    except StoreError:  # already ended (a queued job cancelled at once)
-        pass
 
 
 def start_optimiser(
@@ -236,8 +236,17 @@ def start_optimiser(
 # ---------------------------------------------------------------- routes
 
 
+def read_amount(text: str) -> float | None:
+    """A money amount as typed: "30000", "30,000", "30 000" or "30000.50"; None if not one."""
+    cleaned = text.strip().replace("\u00a0", "").replace(" ", "")
+    if re.fullmatch(r"\d{1,3}(,\d{3})+(\.\d+)?", cleaned):
+        cleaned = cleaned.replace(",", "")
+    return parse_number(cleaned) if cleaned else None
+
+
 def job_response(
     request: Request,
+    db: sqlite_utils.Database,
     project_id: int,
     job: Job | None,
     *,
@@ -245,6 +254,10 @@ def job_response(
     notice: dict | None = None,
     status_code: int = 200,
 ) -> Response:
+    """The progress fragment for htmx; a plain form post goes back to the Options page."""
+    if request.method == "POST" and not is_htmx(request) and status_code < 400:
+        return RedirectResponse(f"/projects/{project_id}/options", status_code=303)
+    currency = get_project(db, project_id).model.get("currency") or ""
     return render(
         request,
         "_options_job.html",
@@ -253,37 +266,41 @@ def job_response(
             "job": job,
             "job_watching": watching,
             "job_notice": notice,
-            "currency": "",
+            "currency": currency,
         },
         status_code=status_code,
     )
 
 
 @router.post("/projects/{project_id}/optimise")
-def start_optimiser_route(
-    request: Request, project_id: int, db: Db, form: PostedForm
-) -> Response:
+def start_optimiser_route(request: Request, project_id: int, db: Db, form: PostedForm) -> Response:
     reader = FormReader(form)
     project = get_project(db, project_id)
     if project.deleted:
         notice = {"kind": "error", "text": "This project is deleted (read only)."}
-        return job_response(request, project_id, None, notice=notice, status_code=409)
+        return job_response(request, db, project_id, None, notice=notice, status_code=409)
     method_ids = [m["id"] for m in project.model.get("methods") or []]
-    budget = reader.number("budget", "budget")
+    budget = read_amount(reader.raw("budget"))
     chosen = [m for m in reader.all("methods") if m]
     name = reader.text("name", "name", required=False, max_len=120)
     problem = None
     if reader.problems:
         problem = reader.problems[0]
-    elif not (isinstance(budget, float) and math.isfinite(budget) and budget > 0):
-        problem = InputError("budget", "must be a positive amount")
+    elif budget is None or not (math.isfinite(budget) and budget > 0):
+        problem = InputError("budget", "must be a positive amount, e.g. 30000")
+    elif not chosen:
+        problem = InputError("methods", "choose at least one method")
     elif any(m not in method_ids for m in chosen):
         bad = next(m for m in chosen if m not in method_ids)
         problem = InputError("methods", f"there is no method {bad!r}")
     if problem is not None:
         notice = {"kind": "error", "text": f"Not started: {problem.field}: {problem.problem}."}
         return job_response(
-            request, project_id, latest_optimiser_job(db, project_id), notice=notice,
+            request,
+            db,
+            project_id,
+            latest_optimiser_job(db, project_id),
+            notice=notice,
             status_code=422,
         )
     methods = chosen if set(chosen) != set(method_ids) else []
@@ -292,10 +309,15 @@ def start_optimiser_route(
     except InputError as exc:
         notice = {"kind": "error", "text": f"Not started: {exc.problem}."}
         return job_response(
-            request, project_id, latest_optimiser_job(db, project_id), notice=notice,
-            status_code=409, watching=running_job_of(project_id) is not None,
+            request,
+            db,
+            project_id,
+            latest_optimiser_job(db, project_id),
+            notice=notice,
+            status_code=409,
+            watching=running_job_of(project_id) is not None,
         )
-    return job_response(request, project_id, get_job(db, job_id), watching=True)
+    return job_response(request, db, project_id, get_job(db, job_id), watching=True)
 
 
 def project_job(db: sqlite_utils.Database, project_id: int, job_id: int) -> Job:
@@ -310,7 +332,7 @@ def job_status(request: Request, project_id: int, job_id: int, db: Db) -> Respon
     """The progress fragment; ``watching`` marks the polling page's requests."""
     job = project_job(db, project_id, job_id)
     watching = request.query_params.get("watching") == "1"
-    return job_response(request, project_id, job, watching=watching)
+    return job_response(request, db, project_id, job, watching=watching)
 
 
 @router.get("/api/projects/{project_id}/jobs/{job_id}", include_in_schema=False)
@@ -329,4 +351,4 @@ def job_status_json(project_id: int, job_id: int, db: Db) -> dict[str, Any]:
 def cancel_job(request: Request, project_id: int, job_id: int, db: Db) -> Response:
     project_job(db, project_id, job_id)
     job = request_cancel(db, job_id)
-    return job_response(request, project_id, job, watching=not job.finished)
+    return job_response(request, db, project_id, job, watching=not job.finished)

@@ -3,8 +3,8 @@ the optimiser (started here, run by routes_jobs.py).
 
 The page's fragment is ``_options.html`` (root ``#options``); every action answers with it
 whole, so the layouts list, the probe table, the revision and the undo button always agree.
-The Leaflet map inside it is kept across swaps (``hx-preserve``) and redraws its probes from
-the JSON the fragment carries (static/js/options.js).
+The Leaflet map inside it (static/js/sitemap.js) is drawn again after each swap, keeping its
+view, and static/js/options.js adds the layout's probes from the JSON the fragment carries.
 
 Probe edits go through ``server.web.edits.run_edit``: a stale page is refused (409) and an
 invalid result (a probe outside the site, a depth beyond the method's reach) is refused
@@ -17,6 +17,7 @@ from __future__ import annotations
 import copy
 import re
 from typing import Any
+from urllib.parse import parse_qs, quote, urlsplit
 
 import numpy as np
 import shapely
@@ -41,7 +42,7 @@ from server.web.edits import (
 )
 from server.web.evaluation_cache import KIND_LABELS, layout_kind, results_of
 from server.web.routes_jobs import latest_optimiser_job
-from server.web.site_map import polygon_rings
+from server.web.routes_site import build_map_data
 from server.web.summary import layout_rows
 from server.web.templating import kind_label, render_action, render_page_or_fragment
 
@@ -55,8 +56,6 @@ def page_url(project_id: int) -> str:
 
 
 def layout_url(project_id: int, name: str | None) -> str:
-    from urllib.parse import quote
-
     base = page_url(project_id)
     return f"{base}?layout={quote(name, safe='')}" if name else base
 
@@ -140,38 +139,9 @@ def layout_warnings(model: dict[str, Any], name: str | None) -> list[str]:
 # ---------------------------------------------------------------- page context
 
 
-def map_data(model: dict[str, Any], editable: bool) -> dict[str, Any]:
-    """What the Leaflet map draws besides the layout's probes (project coordinates)."""
-    kinds = method_kinds(model)
-    site_rings = polygon_rings(model.get("site"))
-    pts = np.array([p for ring in site_rings for p in ring], dtype=float).reshape(-1, 2)
-    origin = pts.mean(axis=0).tolist() if len(pts) else [0.0, 0.0]
-
-    def features(key: str) -> list[dict[str, Any]]:
-        return [
-            {"name": item.get("name", ""), "rings": polygon_rings(item.get("geometry"))}
-            for item in model.get(key) or []
-        ]
-
-    return {
-        "origin": origin,
-        "crs": model.get("crs"),
-        "site": site_rings,
-        "zones": features("zones"),
-        "areas": features("areas_of_interest"),
-        "exclusions": features("exclusions"),
-        "existing": [
-            {
-                "id": str(p["id"]),
-                "method": p["method"],
-                "kind": kinds.get(p["method"], "other"),
-                "x": p["x"],
-                "y": p["y"],
-            }
-            for p in model.get("existing") or []
-        ],
-        "editable": editable,
-    }
+def map_data(model: dict[str, Any]) -> dict[str, Any]:
+    """What static/js/sitemap.js draws besides the layout's probes (project coordinates)."""
+    return build_map_data(model, include_layouts=False)
 
 
 def probes_data(
@@ -196,6 +166,7 @@ def probes_data(
     return {
         "revision": project.revision,
         "layout": selected,
+        "editable": not project.deleted and selected is not None,
         "probes": probes,
         "urls": {
             "add": f"{base}/probes/add",
@@ -251,8 +222,10 @@ def options_context(
         layout_description=(layout or {}).get("description") or "",
         method_options=[(m["id"], f"{m['id']} \u2014 {m['name']}") for m in methods],
         method_ids=[m["id"] for m in methods],
-        method_labels={m["id"]: f"{m['name']} ({kind_label(m.get('kind', 'other'))})" for m in methods},
-        map_json=map_data(model, editable),
+        method_labels={
+            m["id"]: f"{m['name']} ({kind_label(m.get('kind', 'other'))})" for m in methods
+        },
+        map_json=map_data(model),
         probes_json=probes_data(model, project, selected),
         warnings=layout_warnings(model, selected),
         guidance_spacings=GUIDANCE_SPACINGS,
@@ -368,7 +341,9 @@ def add_probe(request: Request, project_id: int, db: Db, form: PostedForm) -> Re
 
     result = run_edit(db, project_id, expected_revision_of(form), edit, keep_input=False)
     if added:
-        result = with_exclusion_warning(result, result.project.model, added["x"], added["y"], added["id"])
+        result = with_exclusion_warning(
+            result, result.project.model, added["x"], added["y"], added["id"]
+        )
     return answer(request, db, project_id, result, name)
 
 
@@ -414,7 +389,9 @@ def update_probe(request: Request, project_id: int, db: Db, form: PostedForm) ->
 
     result = run_edit(db, project_id, expected_revision_of(form), edit, keep_input=False)
     if moved:
-        result = with_exclusion_warning(result, result.project.model, moved["x"], moved["y"], probe_id)
+        result = with_exclusion_warning(
+            result, result.project.model, moved["x"], moved["y"], probe_id
+        )
     return answer(request, db, project_id, result, name)
 
 
@@ -556,7 +533,18 @@ def add_guidance_grid(request: Request, project_id: int, db: Db, form: PostedFor
     return answer(request, db, project_id, result, selected)
 
 
+def shown_layout(request: Request, form: Any) -> str | None:
+    """The layout the page showed: the form's ``layout`` (every htmx request from the page
+    includes #options-shown-layout), else the page URL's (HX-Current-URL)."""
+    name = FormReader(form).raw("layout")
+    if name:
+        return name
+    current = request.headers.get("hx-current-url") or ""
+    values = parse_qs(urlsplit(current).query).get("layout")
+    return values[0] if values else None
+
+
 @router.post("/projects/{project_id}/options/undo")
 def undo_options(request: Request, project_id: int, db: Db, form: PostedForm) -> Response:
     result = run_undo(db, project_id, expected_revision_of(form))
-    return answer(request, db, project_id, result, FormReader(form).raw("layout") or None)
+    return answer(request, db, project_id, result, shown_layout(request, form))

@@ -13,6 +13,10 @@ from __future__ import annotations
 
 import math
 import re
+import tempfile
+from collections.abc import Iterator
+from contextlib import contextmanager
+from pathlib import Path
 from typing import Any
 
 import sqlite_utils
@@ -33,7 +37,7 @@ from server.web.edits import (
     item_at,
     run_edit,
 )
-from server.web.site_map import feature_bounds
+from server.web.site_map import feature_bounds, label_point, polygon_rings
 from server.web.templating import is_htmx, render
 
 router = APIRouter(include_in_schema=False)
@@ -204,6 +208,9 @@ def build_map_data(model: dict, *, include_layouts: bool = True) -> dict[str, An
         out = []
         for n, item in enumerate(model.get(key) or [], start=1):
             entry = {"tag": f"{tag}{n}", "name": item.get("name", ""), "geometry": item["geometry"]}
+            rings = polygon_rings(item["geometry"])
+            if rings:
+                entry["label"] = list(label_point(item["geometry"], rings))
             if "weight" in item:
                 entry["weight"] = item["weight"]
             out.append(entry)
@@ -422,9 +429,7 @@ def _read_feature(reader: FormReader, role: str, path: str, item: dict) -> str:
 
 
 @router.post("/projects/{project_id}/site/{role}/add")
-def add_feature(
-    request: Request, project_id: int, role: str, form: PostedForm, db: Db
-) -> Response:
+def add_feature(request: Request, project_id: int, role: str, form: PostedForm, db: Db) -> Response:
     key, one, _many, _tag = _role(role)
     reader = FormReader(form)
 
@@ -512,14 +517,14 @@ def web_wording(problem: str) -> str:
     return problem
 
 
-def gis_preview(data: bytes, filename: str, reader: FormReader, model: dict) -> dict[str, Any]:
+def gis_preview(path: Path, filename: str, reader: FormReader, model: dict) -> dict[str, Any]:
     """What an import would take from the file: layers, columns, features, warnings.
 
     Raises InputError for a file that cannot be used as it stands (the message says why).
     """
     import pyogrio
 
-    layers = geo_io.list_layers(data, filename=filename)
+    layers = geo_io.list_layers(path, filename=filename)
     if not layers:
         raise InputError("gis_file", f"{filename} holds no layer with geometry")
     layer = reader.raw("layer").strip() or None
@@ -539,11 +544,11 @@ def gis_preview(data: bytes, filename: str, reader: FormReader, model: dict) -> 
         preview["problem"] = f"{filename} has {len(layers)} layers; choose one and preview again."
         return preview
     # Attribute columns of the chosen layer, read through geo_io's safe unpacking.
-    with geo_io._dataset(data, filename) as (path, kind):  # noqa: SLF001 - shared safe reader
-        layer_path = geo_io._layers_of(path, kind, filename)[layer]  # noqa: SLF001
+    with geo_io._dataset(path, filename) as (local, kind):  # noqa: SLF001 - shared safe reader
+        layer_path = geo_io._layers_of(local, kind, filename)[layer]  # noqa: SLF001
         info = pyogrio.read_info(layer_path, layer=None if kind == "zip" else layer)
     preview["columns"] = [str(c) for c in info.get("fields", [])]
-    features = geo_io.read_polygons(data, **_read_options(reader, filename, layer, model))
+    features = geo_io.read_polygons(path, **_read_options(reader, filename, layer, model))
     preview["features"] = [
         {"name": f["name"], "weight": f.get("weight"), "area_m2": area_m2(f["geometry"])}
         for f in features
@@ -568,12 +573,24 @@ def _read_options(reader: FormReader, filename: str, layer: str | None, model: d
     }
 
 
-def _gis_upload(reader: FormReader) -> tuple[bytes, str]:
+@contextmanager
+def uploaded_gis_file(reader: FormReader) -> Iterator[tuple[Path, str]]:
+    """The uploaded GIS file as a temporary file under its own (cleaned) name, so a GeoJSON's
+    layer is named after the file; yields (path, the name the user gave)."""
     upload = reader.file("gis_file")
     if upload is None:
         raise InputError("gis_file", "choose a GeoJSON, GeoPackage or zipped Shapefile first")
-    data = upload.file.read()
-    return data, upload.filename or "upload"
+    filename = upload.filename or "upload"
+    data = upload.file.read(geo_io.MAX_FILE_BYTES + 1)
+    if len(data) > geo_io.MAX_FILE_BYTES:
+        raise InputError(filename, f"is over the {geo_io.MAX_FILE_BYTES // 2**20} MB limit")
+    if not data:
+        raise InputError(filename, "is empty")
+    safe = re.sub(r"[^A-Za-z0-9._-]+", "_", Path(filename).name).lstrip(".") or "upload"
+    with tempfile.TemporaryDirectory(prefix="probewise-upload-") as folder:
+        path = Path(folder) / safe
+        path.write_bytes(data)
+        yield path, filename
 
 
 def _import_answer(
@@ -588,7 +605,10 @@ def _import_answer(
     status = 422 if error else 200
     context = PAGE.context(db, project, None)
     context["preview"] = preview
-    context["import_error"] = error and {"field": error.field, "problem": web_wording(error.problem)}
+    context["import_error"] = error and {
+        "field": error.field,
+        "problem": web_wording(error.problem),
+    }
     context["import_form"] = reader.values()
     if is_htmx(request):
         headers = {"HX-Retarget": "#site-import-preview", "HX-Reswap": "outerHTML"}
@@ -603,8 +623,8 @@ def preview_gis(request: Request, project_id: int, form: PostedForm, db: Db) -> 
     project = get_project(db, project_id)
     reader = FormReader(form)
     try:
-        data, filename = _gis_upload(reader)
-        preview = gis_preview(data, filename, reader, project.model)
+        with uploaded_gis_file(reader) as (path, filename):
+            preview = gis_preview(path, filename, reader, project.model)
     except InputError as exc:
         return _import_answer(request, db, project, reader, None, exc)
     return _import_answer(request, db, project, reader, preview, None)
@@ -620,9 +640,11 @@ def import_gis(request: Request, project_id: int, form: PostedForm, db: Db) -> R
     try:
         if role not in dict(IMPORT_ROLES):
             raise InputError("role", "choose what the polygons are: site, zones, areas, exclusions")
-        data, filename = _gis_upload(reader)
         layer = reader.raw("layer").strip() or None
-        features = geo_io.read_polygons(data, **_read_options(reader, filename, layer, project.model))
+        with uploaded_gis_file(reader) as (path, filename):
+            features = geo_io.read_polygons(
+                path, **_read_options(reader, filename, layer, project.model)
+            )
         imported = geo_io.apply_polygons(project.model, role, features, mode)
         if role != "site":
             outside = geo_io.features_outside_site(project.model, features)

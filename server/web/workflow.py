@@ -29,13 +29,42 @@ class NavItem:
 
 WORKFLOW_STEPS: tuple[WorkflowStep, ...] = (
     WorkflowStep("overview", "Overview", "/projects/{project_id}", "Summary and revision trail"),
-    WorkflowStep("site", "Site", None, "Outline, zones, areas of interest, exclusions"),
-    WorkflowStep("ground", "Ground model", None, "Units, thickness ranges, correlation"),
-    WorkflowStep("existing", "Existing", None, "Earlier probes and what they found"),
-    WorkflowStep("methods", "Methods", None, "Investigation methods, rates and precision"),
-    WorkflowStep("options", "Options", None, "Layouts by hand, by grid and by the optimiser"),
-    WorkflowStep("compare", "Compare", None, "Cost against information gained"),
-    WorkflowStep("schedule", "Schedule", None, "The printable scoping schedule"),
+    WorkflowStep(
+        "site",
+        "Site",
+        "/projects/{project_id}/site",
+        "Outline, zones, areas of interest, exclusions",
+    ),
+    WorkflowStep(
+        "ground",
+        "Ground model",
+        "/projects/{project_id}/ground",
+        "Units, thickness ranges, correlation",
+    ),
+    WorkflowStep(
+        "existing",
+        "Existing",
+        "/projects/{project_id}/existing",
+        "Earlier probes and what they found",
+    ),
+    WorkflowStep(
+        "methods",
+        "Methods",
+        "/projects/{project_id}/methods",
+        "Investigation methods, rates and precision",
+    ),
+    WorkflowStep(
+        "options",
+        "Options",
+        "/projects/{project_id}/options",
+        "Layouts by hand, by grid and by the optimiser",
+    ),
+    WorkflowStep(
+        "compare", "Compare", "/projects/{project_id}/compare", "Cost against information gained"
+    ),
+    WorkflowStep(
+        "schedule", "Schedule", "/projects/{project_id}/schedule", "The printable scoping schedule"
+    ),
 )
 
 

@@ -21,6 +21,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from core_helpers import tiny_dict
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
@@ -45,7 +46,6 @@ from server.core.optimise import (
 from server.core.optimise_reference import greedy_reference
 from server.model_file import validate_model
 from server.to_core import to_core
-from tests.core.core_helpers import tiny_dict
 
 ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT / "benchmarks"))

@@ -1,0 +1,531 @@
+"""The Existing information page: earlier probes and the base depths they recorded.
+
+Rows are edited one at a time (``?edit=N`` opens row N), added and deleted; probes come in
+from CSV/XLSX tables (preview, then import) or AGS4 files (a mapping step assigns each
+geology code to a project unit and each location type to a method, then preview, then
+import) through server.probes_in. Probes outside the site are listed and only left out when
+the user ticks that box; a bad file stores nothing.
+"""
+
+from __future__ import annotations
+
+import re
+from typing import Any
+
+import sqlite_utils
+from fastapi import APIRouter, Request
+from starlette.responses import Response
+
+from server import probes_in
+from server.errors import InputError
+from server.store import StoredProject, get_project
+from server.web.deps import Db
+from server.web.edits import (
+    EditPage,
+    EditRefused,
+    EditResult,
+    FormReader,
+    PostedForm,
+    expected_revision_of,
+    item_at,
+    run_edit,
+)
+from server.web.routes_site import build_map_data
+from server.web.templating import is_htmx, render
+
+router = APIRouter(include_in_schema=False)
+
+MAX_PREVIEW_ROWS = 200
+# Words probes_in uses for the command line, and what the form calls them.
+CLI_WORDING = (
+    (
+        "or leave them out (--leave-outside)",
+        "or tick \u201cLeave out the probes outside the site\u201d",
+    ),
+    ("(--leave-outside)", "(tick \u201cLeave out the probes outside the site\u201d)"),
+    ("(CODE=UNIT, or CODE=- to leave it out)", "(choose a unit or \u201cleave out\u201d for each)"),
+    ("give TYPE=METHOD (--method-for) or a default method", "choose a method for each type"),
+    ("(see docs/import-formats.md)", "(see the column guide below)"),
+)
+# Words too common in soil descriptions to tell units apart when guessing the mapping.
+STOPWORDS = frozenset(
+    [
+        "and",
+        "with",
+        "of",
+        "the",
+        "grey",
+        "brown",
+        "dark",
+        "light",
+        "soft",
+        "firm",
+        "stiff",
+        "dense",
+        "loose",
+        "weak",
+        "strong",
+        "invented",
+        "inferred",
+        "sandy",
+        "silty",
+        "clayey",
+        "gravelly",
+    ]
+)
+
+
+def web_wording(problem: str) -> str:
+    for cli, web in CLI_WORDING:
+        problem = problem.replace(cli, web)
+    return problem
+
+
+# ---------------------------------------------------------------- the page
+
+
+def existing_extra(
+    db: sqlite_utils.Database, project: StoredProject, model: dict, result: EditResult | None
+) -> dict[str, Any]:
+    stored = project.model
+    kinds = {m["id"]: m.get("kind", "other") for m in model.get("methods") or []}
+    names = [u.get("name", "") for u in (model.get("units") or [])[:-1]]
+    return {
+        "probes": [
+            {"index": i, "probe": p, "kind": kinds.get(p.get("method"), "other")}
+            for i, p in enumerate(model.get("existing") or [])
+        ],
+        "boundary_names": names,
+        "method_options": [
+            (m["id"], f"{m['id']} \u2014 {m.get('name', '')}") for m in model.get("methods") or []
+        ],
+        "method_id_options": [(m["id"], m["id"]) for m in model.get("methods") or []],
+        "map_data": build_map_data(stored, include_layouts=False),
+        "editing": None,
+        "csv_preview": None,
+        "ags4": None,
+        "import_error": None,
+        "import_which": None,
+        "import_form": {},
+    }
+
+
+PAGE = EditPage(
+    step="existing",
+    title="Existing information",
+    slug="existing",
+    page="existing.html",
+    fragment="_existing.html",
+    fragment_id="existing",
+    extra=existing_extra,
+)
+PAGE.add_undo_route(router)
+OWN = ("existing",)
+
+
+@router.get("/projects/{project_id}/existing")
+def existing_page(request: Request, project_id: int, db: Db, edit: int | None = None) -> Response:
+    return PAGE.show(request, db, project_id, editing=edit)
+
+
+# ---------------------------------------------------------------- rows
+
+
+def read_probe(reader: FormReader, path: str, probe: dict, model: dict) -> None:
+    """The row's fields into ``probe`` (precision overrides and extra keys are kept)."""
+    methods = [m["id"] for m in model.get("methods") or []]
+    names = [u["name"] for u in model["units"][:-1]]
+    probe["id"] = reader.text("id", f"{path}.id", max_len=80)
+    probe["method"] = reader.choice("method", f"{path}.method", methods)
+    probe["x"] = reader.number("x", f"{path}.x")
+    probe["y"] = reader.number("y", f"{path}.y")
+    probe["final_depth_m"] = reader.number("final_depth_m", f"{path}.final_depth_m")
+    observed = {}
+    for j, name in enumerate(names):
+        value = reader.number(f"base_{j}", f"{path}.observed.{name}", required=False)
+        if value is not None:
+            observed[name] = value
+    old = probe.get("observed") or {}
+    observed.update({k: v for k, v in old.items() if k not in names})  # basal or unknown: kept
+    probe["observed"] = observed
+
+
+@router.post("/projects/{project_id}/existing/{index:int}")
+def save_probe(request: Request, project_id: int, index: int, form: PostedForm, db: Db):
+    reader = FormReader(form)
+
+    def edit(model: dict) -> str:
+        probes = model.get("existing") or []
+        probe = item_at(probes, index, f"existing[{index}]", "probe")
+        old_id = probe.get("id")
+        read_probe(reader, f"existing[{index}]", probe, model)
+        if probe["id"] != old_id:
+            return f"Changed probe {old_id} (now {probe['id']})"
+        return f"Changed probe {probe['id']}"
+
+    return PAGE.edit(
+        request,
+        db,
+        project_id,
+        form,
+        edit,
+        reader=reader,
+        own=OWN,
+        fallback=f"existing[{index}]",
+        more_when_refused={"editing": index},
+    )
+
+
+@router.post("/projects/{project_id}/existing/{index:int}/remove")
+def remove_probe(request: Request, project_id: int, index: int, form: PostedForm, db: Db):
+    def edit(model: dict) -> str:
+        probes = model.get("existing") or []
+        probe = item_at(probes, index, f"existing[{index}]", "probe")
+        del probes[index]
+        return f"Deleted existing probe {probe['id']}"
+
+    return PAGE.edit(
+        request,
+        db,
+        project_id,
+        form,
+        edit,
+        own=OWN,
+        fallback=f"existing[{index}]",
+        keep_input=False,
+    )
+
+
+@router.post("/projects/{project_id}/existing/add")
+def add_probe(request: Request, project_id: int, form: PostedForm, db: Db) -> Response:
+    reader = FormReader(form)
+
+    def edit(model: dict) -> str:
+        probes = model.setdefault("existing", [])
+        probe: dict[str, Any] = {}
+        read_probe(reader, f"existing[{len(probes)}]", probe, model)
+        probes.append(probe)
+        return f"Added existing probe {probe['id']}"
+
+    def remap(field: str) -> str:
+        return re.sub(r"^existing\[\d+\]", "new_probe", field)
+
+    return PAGE.edit(
+        request,
+        db,
+        project_id,
+        form,
+        edit,
+        reader=reader,
+        own=("new_probe",),
+        fallback="new_probe",
+        remap=remap,
+        keep_input=False,
+    )
+
+
+# ---------------------------------------------------------------- imports: shared
+
+
+def _upload(reader: FormReader, name: str, what: str) -> tuple[bytes, str]:
+    upload = reader.file(name)
+    if upload is None:
+        raise InputError(name, f"choose {what} first")
+    return upload.file.read(), upload.filename or "upload"
+
+
+def _import_answer(
+    request: Request,
+    db: sqlite_utils.Database,
+    project: StoredProject,
+    reader: FormReader,
+    which: str,
+    error: InputError | None,
+    **state: Any,
+) -> Response:
+    """The import area (#csv-preview or #ags4-preview) alone for htmx, else the page."""
+    status = 422 if error else 200
+    context = PAGE.context(db, project, None)
+    context.update(state)
+    context["import_error"] = error and {
+        "field": error.field,
+        "problem": web_wording(error.problem),
+    }
+    context["import_form"] = reader.values()
+    context["import_which"] = which
+    if is_htmx(request):
+        headers = {"HX-Retarget": f"#{which}-preview", "HX-Reswap": "outerHTML"}
+        return render(
+            request,
+            f"_existing_{which}_preview.html",
+            context,
+            status_code=status,
+            headers=headers,
+        )
+    return render(request, "existing.html", context, status_code=status)
+
+
+def _save_import(
+    request: Request,
+    db: sqlite_utils.Database,
+    project: StoredProject,
+    reader: FormReader,
+    which: str,
+    probes: list[dict],
+    message: str,
+    left_out: list[str],
+) -> Response:
+    mode = "replace" if reader.raw("mode") == "replace" else "append"
+    try:
+        merged = probes_in.merge_existing(project.model, probes, mode)
+    except InputError as exc:
+        return _import_answer(request, db, project, reader, which, exc)
+
+    def edit(model: dict) -> str:
+        model.clear()
+        model.update(merged)
+        return message + (" (replacing the old ones)" if mode == "replace" else "")
+
+    result = run_edit(
+        db,
+        project.id,
+        expected_revision_of(reader.form),
+        edit,
+        own=OWN,
+        page_url=PAGE.url(project.id),
+    )
+    if result.saved and left_out:
+        result.notice = {
+            "kind": "warning",
+            "text": f"{result.notice['text']} Left out: {'; '.join(left_out)}.",
+        }
+    if result.refused and result.status_code == 422:
+        first = result.errors.problems[0]
+        error = InputError(f"{which}_file", f"{first.label}: {first.problem}")
+        return _import_answer(request, db, project, reader, which, error)
+    return PAGE.answer(request, db, result)
+
+
+def _ids(ids: list[str]) -> str:
+    return ", ".join(ids[:10]) + (f" and {len(ids) - 10} more" if len(ids) > 10 else "")
+
+
+# ---------------------------------------------------------------- CSV / XLSX
+
+
+def _csv_options(reader: FormReader) -> dict[str, Any]:
+    return {"method_default": reader.raw("default_method").strip() or None}
+
+
+@router.post("/projects/{project_id}/existing/import/csv/preview")
+def preview_csv(request: Request, project_id: int, form: PostedForm, db: Db) -> Response:
+    project = get_project(db, project_id)
+    reader = FormReader(form)
+    try:
+        data, filename = _upload(reader, "csv_file", "a CSV or XLSX table")
+        preview = probes_in.preview_csv(
+            data, project.model, filename=filename, **_csv_options(reader)
+        )
+    except InputError as exc:
+        return _import_answer(request, db, project, reader, "csv", exc)
+    return _import_answer(
+        request, db, project, reader, "csv", None, csv_preview=preview, preview_file=filename
+    )
+
+
+@router.post("/projects/{project_id}/existing/import/csv")
+def import_csv(request: Request, project_id: int, form: PostedForm, db: Db) -> Response:
+    project = get_project(db, project_id)
+    reader = FormReader(form)
+    leave_outside = reader.flag("leave_outside")
+    preview = None
+    try:
+        data, filename = _upload(reader, "csv_file", "a CSV or XLSX table")
+        preview = probes_in.preview_csv(
+            data, project.model, filename=filename, **_csv_options(reader)
+        )
+        probes = probes_in.parse_csv(
+            data,
+            project.model,
+            filename=filename,
+            leave_outside=leave_outside,
+            **_csv_options(reader),
+        )
+    except InputError as exc:
+        return _import_answer(request, db, project, reader, "csv", exc, csv_preview=preview)
+    left_out = []
+    if preview.outside_site:
+        left_out.append(
+            f"{len(preview.outside_site)} outside the site ({_ids(preview.outside_site)})"
+        )
+    message = (
+        f"Imported {len(probes)} existing probe{'s' if len(probes) != 1 else ''} from {filename}"
+    )
+    return _save_import(request, db, project, reader, "csv", probes, message, left_out)
+
+
+# ---------------------------------------------------------------- AGS4
+
+
+def _words(text: str) -> set[str]:
+    return {w for w in re.findall(r"[a-z]+", text.lower()) if len(w) > 2 and w not in STOPWORDS}
+
+
+def guess_unit(code: str, description: str, units: list[str]) -> str:
+    """The unit whose name shares most words with the code's description (or '' if unclear)."""
+    by_lower = {u.lower(): u for u in units}
+    if code.lower() in by_lower:
+        return by_lower[code.lower()]
+    words = _words(description) | _words(code)
+    scores = [(len(words & _words(u)), u) for u in units]
+    best = max((s for s, _u in scores), default=0)
+    winners = [u for s, u in scores if s == best]
+    return winners[0] if best > 0 and len(winners) == 1 else ""
+
+
+KIND_BY_TYPE = {
+    "borehole": {"CP", "RC", "RO", "WS", "DS", "BH", "CR", "OP", "ROC"},
+    "cpt": {"CPT", "CPTU", "SCPT", "SCPTU"},
+    "dmt": {"DMT", "SDMT"},
+    "trial_pit": {"TP", "TT", "PIT", "HP"},
+}
+
+
+def guess_method(hole_type: str, methods: list[dict]) -> str:
+    """A method for an AGS4 LOCA_TYPE: the same id, else the first of the kind the type
+    usually means (CP: borehole, CPT: cpt...), else one whose id starts with it, else ''."""
+    upper = hole_type.upper()
+    for m in methods:
+        if m["id"].upper() == upper:
+            return m["id"]
+    for kind, types in KIND_BY_TYPE.items():
+        if upper in types:
+            for m in methods:
+                if m.get("kind") == kind:
+                    return m["id"]
+    for m in methods:
+        if upper and m["id"].upper().startswith(upper):
+            return m["id"]
+    return ""
+
+
+def ags4_state(
+    holes: probes_in.Ags4Holes, reader: FormReader, model: dict, filename: str
+) -> dict[str, Any]:
+    """The mapping step: codes with counts and the chosen units, types with the chosen methods."""
+    units = [u["name"] for u in model["units"]]
+    methods = model.get("methods") or []
+    submitted = {
+        reader.raw(f"code_{n}"): reader.raw(f"unit_{n}")
+        for n in range(500)
+        if reader.raw(f"code_{n}")
+    }
+    codes = []
+    for code, description, count in probes_in.ags4_legends(holes):
+        chosen = submitted.get(code)
+        codes.append(
+            {
+                "code": code,
+                "description": description,
+                "count": count,
+                "unit": chosen if chosen is not None else guess_unit(code, description, units),
+            }
+        )
+    type_counts: dict[str, int] = {}
+    for hole in holes.holes:
+        type_counts[hole.type] = type_counts.get(hole.type, 0) + 1
+    sent_types = {
+        reader.raw(f"type_{n}"): reader.raw(f"method_{n}")
+        for n in range(100)
+        if f"type_{n}" in reader.form
+    }
+    types = [
+        {"type": t, "count": n, "method": sent_types.get(t, guess_method(t, methods))}
+        for t, n in sorted(type_counts.items())
+    ]
+    return {
+        "filename": filename,
+        "n_holes": len(holes.holes),
+        "codes": codes,
+        "types": types,
+        "unit_names": units,
+        "result": None,
+        "file_problems": list(holes.problems),
+    }
+
+
+def _ags4_choices(state: dict[str, Any]) -> tuple[dict[str, str], dict[str, str]]:
+    mapping = {c["code"]: c["unit"] for c in state["codes"] if c["unit"]}
+    by_type = {t["type"]: t["method"] for t in state["types"] if t["method"]}
+    return mapping, by_type
+
+
+def _ags4_result(
+    holes: probes_in.Ags4Holes, state: dict[str, Any], model: dict
+) -> probes_in.ImportResult:
+    mapping, by_type = _ags4_choices(state)
+    unchosen = [c["code"] for c in state["codes"] if not c["unit"]]
+    if unchosen:
+        raise InputError(
+            "mapping", f"choose a unit (or \u201cleave out\u201d) for code(s) {', '.join(unchosen)}"
+        )
+    untyped = [t["type"] or "(blank)" for t in state["types"] if not t["method"]]
+    if untyped:
+        raise InputError("method", f"choose a method for location type(s) {', '.join(untyped)}")
+    return probes_in.ags4_to_existing(holes, model, mapping, by_type)
+
+
+@router.post("/projects/{project_id}/existing/import/ags4/preview")
+def preview_ags4(request: Request, project_id: int, form: PostedForm, db: Db) -> Response:
+    project = get_project(db, project_id)
+    reader = FormReader(form)
+    state = None
+    try:
+        data, filename = _upload(reader, "ags4_file", "an AGS4 file")
+        holes = probes_in.read_ags4(data, filename=filename)
+        state = ags4_state(holes, reader, project.model, filename)
+        if reader.raw("step") == "preview":
+            state["result"] = _ags4_result(holes, state, project.model)
+    except InputError as exc:
+        return _import_answer(request, db, project, reader, "ags4", exc, ags4=state)
+    return _import_answer(request, db, project, reader, "ags4", None, ags4=state)
+
+
+@router.post("/projects/{project_id}/existing/import/ags4")
+def import_ags4(request: Request, project_id: int, form: PostedForm, db: Db) -> Response:
+    project = get_project(db, project_id)
+    reader = FormReader(form)
+    state = None
+    try:
+        data, filename = _upload(reader, "ags4_file", "an AGS4 file")
+        holes = probes_in.read_ags4(data, filename=filename)
+        state = ags4_state(holes, reader, project.model, filename)
+        result = _ags4_result(holes, state, project.model)
+        state["result"] = result
+        if result.outside_site and not reader.flag("leave_outside"):
+            raise InputError(
+                "ags4_file",
+                f"{len(result.outside_site)} location(s) lie outside the site: "
+                f"{_ids(result.outside_site)}; check the coordinates and the CRS, or tick "
+                "\u201cLeave out the probes outside the site\u201d",
+            )
+        if result.problems and not reader.flag("skip_problems"):
+            raise InputError(
+                "ags4_file",
+                f"{len(result.problems)} problem(s), listed below; fix the file or tick "
+                "\u201cLeave out the locations with problems\u201d",
+            )
+        if not result.importable:
+            raise EditRefused("ags4_file", "no location is left to import")
+    except InputError as exc:
+        return _import_answer(request, db, project, reader, "ags4", exc, ags4=state)
+    left_out = []
+    if result.outside_site:
+        left_out.append(
+            f"{len(result.outside_site)} outside the site ({_ids(result.outside_site)})"
+        )
+    if result.problems:
+        left_out.append(f"{len(result.problems)} with problems")
+    n = len(result.importable)
+    message = f"Imported {n} existing probe{'s' if n != 1 else ''} from {filename} (AGS4)"
+    return _save_import(request, db, project, reader, "ags4", result.importable, message, left_out)

@@ -1,0 +1,550 @@
+"""The Ground model page: units top to bottom (thickness range, shape, correlation), zone
+overrides, boundaries of interest and hard bounds, with a small chart per unit.
+
+Structural rules the page keeps (the validator checks the rest):
+- the basal (last) unit has no thickness; it stays last (it cannot be moved or removed) and a
+  new unit goes above it unless another place is chosen;
+- renaming a unit renames every reference to it (zones, boundaries, bounds, methods, probes);
+- removing a unit that anything refers to is refused, naming what refers to it.
+The thickness chart is an image route, cached by (project, revision, unit).
+"""
+
+from __future__ import annotations
+
+import re
+from typing import Any
+
+import sqlite_utils
+from fastapi import APIRouter, HTTPException, Request
+from starlette.responses import Response
+
+from server.core.model import ThicknessRange
+from server.core.priors import thickness_moments
+from server.errors import InputError
+from server.model_file import CORRELATION_MODELS, SHAPES
+from server.store import StoredProject, get_project, get_revision
+from server.web.charts import thickness_chart_svg, thickness_charts
+from server.web.deps import Db
+from server.web.edits import (
+    EditPage,
+    EditRefused,
+    EditResult,
+    FormReader,
+    PostedForm,
+    item_at,
+)
+from server.web.routes_site import parse_polygon_text, polygon_text
+from server.web.summary import depth_limits
+
+router = APIRouter(include_in_schema=False)
+
+SHAPE_LABELS = {"pert": "PERT", "triangular": "Triangular", "uniform": "Uniform"}
+MODEL_LABELS = {"exponential": "Exponential", "gaussian": "Gaussian", "spherical": "Spherical"}
+
+
+# ---------------------------------------------------------------- derived views
+
+
+def moments_of(thickness: Any) -> tuple[float, float] | None:
+    """(mean, std) of a thickness range dict, None when it is not a sound range."""
+    try:
+        rng = ThicknessRange(
+            float(thickness["min"]),
+            float(thickness["likely"]),
+            float(thickness["max"]),
+            str(thickness.get("shape", "pert")),
+        )
+        if not rng.min_m <= rng.likely_m <= rng.max_m or rng.min_m >= rng.max_m:
+            return None
+        return thickness_moments(rng)
+    except (TypeError, ValueError, KeyError):
+        return None
+
+
+def safe_depth_limits(model: dict) -> dict[str, tuple[float, float]]:
+    try:
+        return depth_limits(model)
+    except (TypeError, ValueError, KeyError):
+        return {}
+
+
+def ground_extra(
+    db: sqlite_utils.Database, project: StoredProject, model: dict, result: EditResult | None
+) -> dict[str, Any]:
+    units = model.get("units") or []
+    names = [u.get("name", "") for u in units]
+    limits = safe_depth_limits(model)
+    rows = []
+    for i, unit in enumerate(units):
+        thickness = unit.get("thickness_m")
+        rows.append(
+            {
+                "index": i,
+                "unit": unit,
+                "basal": i == len(units) - 1,
+                "moments": moments_of(thickness) if thickness else None,
+                "limits": limits.get(unit.get("name")),
+                "chart_url": (
+                    f"/projects/{project.id}/charts/thickness/{i}.svg?rev={project.revision}"
+                    if i < len(project.model["units"]) - 1
+                    else None
+                ),
+            }
+        )
+    boundaries = names[:-1]
+    boi_index = {
+        b.get("base_of"): k for k, b in enumerate(model.get("boundaries_of_interest") or [])
+    }
+    zones = []
+    for z, zone in enumerate(model.get("zones") or []):
+        overrides = zone.get("units") or {}
+        zones.append(
+            {
+                "index": z,
+                "zone": zone,
+                "rows": [
+                    {
+                        "unit_index": j,
+                        "name": name,
+                        "override": (overrides.get(name) or {}).get("thickness_m"),
+                        "default": units[j].get("thickness_m") or {},
+                    }
+                    for j, name in enumerate(boundaries)
+                ],
+                "others": [name for name in overrides if name not in boundaries],
+            }
+        )
+    return {
+        "unit_rows": rows,
+        "boundary_names": boundaries,
+        "boi_index": boi_index,
+        "limits": limits,
+        "zone_rows": zones,
+        "bounds": [
+            {"index": b, "bound": bound, "text": polygon_text(bound.get("geometry"))}
+            for b, bound in enumerate(model.get("bounds") or [])
+        ],
+        "boundary_options": [(name, f"Base of {name}") for name in boundaries],
+        "position_options": [(str(i), name) for i, name in enumerate(names)],
+        "shape_options": [(s, SHAPE_LABELS[s]) for s in SHAPES],
+        "model_options": [(m, MODEL_LABELS[m]) for m in CORRELATION_MODELS],
+    }
+
+
+PAGE = EditPage(
+    step="ground",
+    title="Ground model",
+    slug="ground",
+    page="ground.html",
+    fragment="_ground.html",
+    fragment_id="ground",
+    extra=ground_extra,
+)
+PAGE.add_undo_route(router)
+OWN = ("units", "zones", "boundaries_of_interest", "bounds")
+
+
+@router.get("/projects/{project_id}/ground")
+def ground_page(request: Request, project_id: int, db: Db) -> Response:
+    return PAGE.show(request, db, project_id)
+
+
+# ---------------------------------------------------------------- units
+
+
+def rename_unit(model: dict, old: str, new: str) -> None:
+    """Rename every reference to unit ``old`` (dict keys keep their order)."""
+
+    def renamed_keys(mapping: dict | None) -> dict | None:
+        if not isinstance(mapping, dict) or old not in mapping:
+            return mapping
+        return {(new if k == old else k): v for k, v in mapping.items()}
+
+    for zone in model.get("zones") or []:
+        zone["units"] = renamed_keys(zone.get("units"))
+    for key in ("boundaries_of_interest", "bounds"):
+        for item in model.get(key) or []:
+            if item.get("base_of") == old:
+                item["base_of"] = new
+    for method in model.get("methods") or []:
+        method["cannot_penetrate"] = [
+            new if n == old else n for n in method.get("cannot_penetrate") or []
+        ]
+        method["precision_m"] = renamed_keys(method.get("precision_m"))
+    for probe in model.get("existing") or []:
+        probe["observed"] = renamed_keys(probe.get("observed"))
+        if "precision_m" in probe:
+            probe["precision_m"] = renamed_keys(probe.get("precision_m"))
+
+
+def unit_references(model: dict, name: str) -> list[str]:
+    """What refers to unit ``name``, in words ("method CP (precision)")."""
+    refs = []
+    for zone in model.get("zones") or []:
+        if name in (zone.get("units") or {}):
+            refs.append(f"zone \u201c{zone['name']}\u201d (thickness override)")
+    if any(b.get("base_of") == name for b in model.get("boundaries_of_interest") or []):
+        refs.append("the boundaries of interest")
+    count = sum(1 for b in model.get("bounds") or [] if b.get("base_of") == name)
+    if count:
+        refs.append(f"{count} hard bound{'s' if count > 1 else ''}")
+    for method in model.get("methods") or []:
+        uses = []
+        if name in (method.get("precision_m") or {}):
+            uses.append("precision")
+        if name in (method.get("cannot_penetrate") or []):
+            uses.append("cannot penetrate")
+        if uses:
+            refs.append(f"method {method['id']} ({', '.join(uses)})")
+    probes = [
+        p["id"]
+        for p in model.get("existing") or []
+        if name in (p.get("observed") or {}) or name in (p.get("precision_m") or {})
+    ]
+    if probes:
+        shown = ", ".join(probes[:6]) + (", ..." if len(probes) > 6 else "")
+        refs.append(f"{len(probes)} existing probe{'s' if len(probes) > 1 else ''} ({shown})")
+    return refs
+
+
+def read_range(reader: FormReader, path: str, suffix: str = "") -> dict[str, Any]:
+    return {
+        "min": reader.number(f"min{suffix}", f"{path}.min"),
+        "likely": reader.number(f"likely{suffix}", f"{path}.likely"),
+        "max": reader.number(f"max{suffix}", f"{path}.max"),
+        "shape": reader.choice(f"shape{suffix}", f"{path}.shape", SHAPES),
+    }
+
+
+def read_unit(reader: FormReader, path: str, unit: dict, basal: bool) -> None:
+    """The unit form's fields into ``unit`` (extra keys of the unit are kept)."""
+    unit["name"] = reader.text("name", f"{path}.name")
+    unit["description"] = reader.text(
+        "description", f"{path}.description", required=False, max_len=2000
+    )
+    if basal:
+        unit.pop("thickness_m", None)
+        unit.pop("correlation", None)
+        return
+    unit["thickness_m"] = {
+        **(unit.get("thickness_m") or {}),
+        **read_range(reader, f"{path}.thickness_m"),
+    }
+    unit["correlation"] = {
+        **(unit.get("correlation") or {}),
+        "model": reader.choice(
+            "correlation_model", f"{path}.correlation.model", CORRELATION_MODELS
+        ),
+        "range_m": reader.number("range_m", f"{path}.correlation.range_m"),
+    }
+
+
+def change_words(old: dict, new: dict) -> list[str]:
+    words = []
+    if old.get("thickness_m") != new.get("thickness_m"):
+        words.append("thickness")
+    if old.get("correlation") != new.get("correlation"):
+        words.append("correlation")
+    if (old.get("description") or "") != (new.get("description") or ""):
+        words.append("description")
+    return words
+
+
+@router.post("/projects/{project_id}/ground/units/{index:int}")
+def save_unit(request: Request, project_id: int, index: int, form: PostedForm, db: Db) -> Response:
+    reader = FormReader(form)
+
+    def edit(model: dict) -> str:
+        units = model["units"]
+        unit = item_at(units, index, f"units[{index}]", "unit")
+        old = dict(unit)
+        read_unit(reader, f"units[{index}]", unit, basal=index == len(units) - 1)
+        parts = []
+        others = [u["name"] for u in units if u is not unit]
+        if unit["name"] in others:
+            reader.problem(
+                f"units[{index}].name", f"\u201c{unit['name']}\u201d is the name of another unit"
+            )
+        elif unit["name"] and unit["name"] != old["name"]:
+            rename_unit(model, old["name"], unit["name"])
+            parts.append(f"Renamed unit {old['name']} to {unit['name']}")
+        words = change_words(old, unit)
+        if words:
+            joined = " and ".join([", ".join(words[:-1]), words[-1]] if len(words) > 1 else words)
+            parts.append(f"Changed {joined} of {unit['name'] or old['name']}")
+        return "; ".join(parts) or f"Saved unit {unit['name']}"
+
+    return PAGE.edit(
+        request, db, project_id, form, edit, reader=reader, own=OWN, fallback=f"units[{index}]"
+    )
+
+
+def _move(request: Request, project_id: int, index: int, form: Any, db: Any, step: int) -> Response:
+    def edit(model: dict) -> str:
+        units = model["units"]
+        unit = item_at(units, index, f"units[{index}]", "unit")
+        other = index + step
+        basal = len(units) - 1
+        if index == basal:
+            raise EditRefused(f"units[{index}]", "the basal unit stays at the bottom")
+        if not 0 <= other < basal:
+            where = "top" if other < 0 else "bottom of the units with a base"
+            raise EditRefused(f"units[{index}]", f"{unit['name']} is already at the {where}")
+        units[index], units[other] = units[other], units[index]
+        relation = "above" if step < 0 else "below"
+        return f"Moved {unit['name']} {relation} {units[index]['name']}"
+
+    return PAGE.edit(
+        request, db, project_id, form, edit, own=OWN, fallback=f"units[{index}]", keep_input=False
+    )
+
+
+@router.post("/projects/{project_id}/ground/units/{index:int}/up")
+def move_unit_up(request: Request, project_id: int, index: int, form: PostedForm, db: Db):
+    return _move(request, project_id, index, form, db, -1)
+
+
+@router.post("/projects/{project_id}/ground/units/{index:int}/down")
+def move_unit_down(request: Request, project_id: int, index: int, form: PostedForm, db: Db):
+    return _move(request, project_id, index, form, db, +1)
+
+
+@router.post("/projects/{project_id}/ground/units/{index:int}/remove")
+def remove_unit(request: Request, project_id: int, index: int, form: PostedForm, db: Db):
+    def edit(model: dict) -> str:
+        units = model["units"]
+        unit = item_at(units, index, f"units[{index}]", "unit")
+        if index == len(units) - 1:
+            raise EditRefused(
+                f"units[{index}]",
+                "the basal unit cannot be removed (every model ends in one); edit it instead",
+            )
+        if len(units) <= 2:
+            raise EditRefused(f"units[{index}]", "a model needs at least 2 units")
+        refs = unit_references(model, unit["name"])
+        if refs:
+            raise EditRefused(
+                f"units[{index}]",
+                f"{unit['name']} is still referred to by {'; '.join(refs)}. Remove those "
+                "references first (Site, Ground model, Methods and Existing pages), then the unit.",
+            )
+        del units[index]
+        return f"Removed unit {unit['name']}"
+
+    return PAGE.edit(
+        request, db, project_id, form, edit, own=OWN, fallback=f"units[{index}]", keep_input=False
+    )
+
+
+@router.post("/projects/{project_id}/ground/units/add")
+def add_unit(request: Request, project_id: int, form: PostedForm, db: Db) -> Response:
+    reader = FormReader(form)
+    at = {"index": 0}
+
+    def edit(model: dict) -> str:
+        units = model["units"]
+        position = reader.raw("position").strip()
+        index = int(position) if position.isdigit() else len(units) - 1
+        index = min(max(index, 0), len(units) - 1)  # never below the basal unit
+        at["index"] = index
+        unit: dict[str, Any] = {}
+        read_unit(reader, f"units[{index}]", unit, basal=False)
+        below = units[index]["name"]
+        units.insert(index, unit)
+        return f"Added unit {unit['name']} above {below}"
+
+    def remap(field: str) -> str:
+        return re.sub(rf"^units\[{at['index']}\]", "new_unit", field)
+
+    return PAGE.edit(
+        request,
+        db,
+        project_id,
+        form,
+        edit,
+        reader=reader,
+        own=("new_unit",),
+        fallback="new_unit",
+        remap=remap,
+        keep_input=False,
+    )
+
+
+# ---------------------------------------------------------------- zone overrides
+
+
+@router.post("/projects/{project_id}/ground/zones/{index:int}")
+def save_zone_overrides(
+    request: Request, project_id: int, index: int, form: PostedForm, db: Db
+) -> Response:
+    reader = FormReader(form)
+
+    def edit(model: dict) -> str:
+        zone = item_at(model.get("zones") or [], index, f"zones[{index}]", "zone")
+        names = [u["name"] for u in model["units"][:-1]]
+        old = zone.get("units") or {}
+        overrides: dict[str, Any] = {}
+        for j, name in enumerate(names):
+            fields = [reader.raw(f"{k}_{j}").strip() for k in ("min", "likely", "max")]
+            if not any(fields):
+                continue
+            path = f"zones[{index}].units.{name}.thickness_m"
+            entry = dict(old.get(name) or {})
+            entry["thickness_m"] = read_range(reader, path, f"_{j}")
+            overrides[name] = entry
+        for name, entry in old.items():  # overrides of units the form does not show
+            if name not in names:
+                overrides[name] = entry
+        zone["units"] = overrides
+        return f"Changed the thickness overrides of zone {zone['name']}"
+
+    return PAGE.edit(
+        request, db, project_id, form, edit, reader=reader, own=OWN, fallback=f"zones[{index}]"
+    )
+
+
+# ---------------------------------------------------------------- boundaries of interest
+
+
+@router.post("/projects/{project_id}/ground/boundaries")
+def save_boundaries(request: Request, project_id: int, form: PostedForm, db: Db) -> Response:
+    reader = FormReader(form)
+
+    def edit(model: dict) -> str:
+        names = [u["name"] for u in model["units"][:-1]]
+        old = {b["base_of"]: b for b in model.get("boundaries_of_interest") or []}
+        chosen = [name for j, name in enumerate(names) if reader.flag(f"interest_{j}")]
+        order = [n for n in old if n in chosen] + [n for n in chosen if n not in old]
+        entries = []
+        for k, name in enumerate(order):
+            j = names.index(name)
+            path = f"boundaries_of_interest[{k}]"
+            entry = dict(old.get(name) or {"base_of": name})
+            entry["weight"] = reader.number(f"weight_{j}", f"{path}.weight")
+            entry["tolerance_m"] = reader.number(f"tolerance_{j}", f"{path}.tolerance_m")
+            entries.append(entry)
+        model["boundaries_of_interest"] = entries
+        return "Changed the boundaries of interest"
+
+    return PAGE.edit(
+        request,
+        db,
+        project_id,
+        form,
+        edit,
+        reader=reader,
+        own=OWN,
+        fallback="boundaries_of_interest",
+    )
+
+
+# ---------------------------------------------------------------- hard bounds
+
+
+def read_bound(reader: FormReader, path: str, bound: dict, model: dict) -> None:
+    names = [u["name"] for u in model["units"][:-1]]
+    bound["base_of"] = reader.choice("base_of", f"{path}.base_of", names)
+    bound["min_depth_m"] = reader.number("min_depth_m", f"{path}.min_depth_m")
+    bound["max_depth_m"] = reader.number("max_depth_m", f"{path}.max_depth_m")
+    text = reader.raw("geometry_text")
+    if not text.strip():
+        bound["geometry"] = None
+        return
+    try:
+        bound["geometry"] = parse_polygon_text(text, f"{path}.geometry")
+    except InputError as exc:
+        reader.problems.append(exc)
+
+
+@router.post("/projects/{project_id}/ground/bounds/{index:int}")
+def save_bound(request: Request, project_id: int, index: int, form: PostedForm, db: Db):
+    reader = FormReader(form)
+
+    def edit(model: dict) -> str:
+        bound = item_at(model.get("bounds") or [], index, f"bounds[{index}]", "bound")
+        read_bound(reader, f"bounds[{index}]", bound, model)
+        return f"Changed the bound on the base of {bound['base_of']}"
+
+    return PAGE.edit(
+        request, db, project_id, form, edit, reader=reader, own=OWN, fallback=f"bounds[{index}]"
+    )
+
+
+@router.post("/projects/{project_id}/ground/bounds/{index:int}/remove")
+def remove_bound(request: Request, project_id: int, index: int, form: PostedForm, db: Db):
+    def edit(model: dict) -> str:
+        bounds = model.get("bounds") or []
+        bound = item_at(bounds, index, f"bounds[{index}]", "bound")
+        del bounds[index]
+        return f"Removed the bound on the base of {bound['base_of']}"
+
+    return PAGE.edit(
+        request,
+        db,
+        project_id,
+        form,
+        edit,
+        own=OWN,
+        fallback=f"bounds[{index}]",
+        keep_input=False,
+    )
+
+
+@router.post("/projects/{project_id}/ground/bounds/add")
+def add_bound(request: Request, project_id: int, form: PostedForm, db: Db) -> Response:
+    reader = FormReader(form)
+
+    def edit(model: dict) -> str:
+        bounds = model.setdefault("bounds", [])
+        bound: dict[str, Any] = {}
+        read_bound(reader, f"bounds[{len(bounds)}]", bound, model)
+        bounds.append(bound)
+        return f"Added a bound on the base of {bound['base_of']}"
+
+    def remap(field: str) -> str:
+        return re.sub(r"^bounds\[\d+\]", "new_bound", field)
+
+    return PAGE.edit(
+        request,
+        db,
+        project_id,
+        form,
+        edit,
+        reader=reader,
+        own=("new_bound",),
+        fallback="new_bound",
+        remap=remap,
+        keep_input=False,
+    )
+
+
+# ---------------------------------------------------------------- thickness chart
+
+
+@router.get("/projects/{project_id}/charts/thickness/{unit_index:int}.svg")
+def thickness_chart(project_id: int, unit_index: int, db: Db, rev: int | None = None) -> Response:
+    """The unit's thickness density as SVG; ``rev`` pins a revision (then cached for good)."""
+    pinned = rev is not None
+    if rev is None:
+        project = get_project(db, project_id)
+        rev, model = project.revision, project.model
+    else:
+        model = None
+    key = (project_id, rev, unit_index)
+    svg = thickness_charts.get(key)
+    if svg is None:
+        if model is None:
+            model = get_revision(db, project_id, rev)
+        units = model.get("units") or []
+        if not 0 <= unit_index < len(units) - 1:
+            raise HTTPException(404, f"unit {unit_index + 1} has no thickness (basal or missing)")
+        t = units[unit_index]["thickness_m"]
+        svg = thickness_chart_svg(
+            t.get("shape", "pert"), float(t["min"]), float(t["likely"]), float(t["max"])
+        )
+        thickness_charts.put(key, svg)
+    return Response(
+        svg,
+        media_type="image/svg+xml",
+        headers={"Cache-Control": "private, max-age=31536000, immutable" if pinned else "no-cache"},
+    )
