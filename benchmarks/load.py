@@ -25,7 +25,8 @@ Latency is measured per request from send to the last byte (``time.perf_counter`
 asyncio event loop driving httpx, so the clients' own overhead stays small. Reported: requests,
 throughput, errors, stale edits and p50/p95/max latency per kind; the machine's CPU count
 and load average before and after (the figures depend on what else runs). Written to
-``benchmarks/out/load.json``. Exit status 1 when any request failed.
+``benchmarks/out/load.json`` (the server's log beside it, ``load-serve.log``). Exit status 1
+when any request failed.
 """
 
 from __future__ import annotations
@@ -327,6 +328,10 @@ def main(argv: list[str] | None = None) -> int:
         load_after = [round(x, 2) for x in os.getloadavg()]
     finally:
         stop_server(process)
+        kept = OUT / "load-serve.log"
+        if (workdir / "serve.log").is_file():  # the server's own account, for any error
+            kept.parent.mkdir(parents=True, exist_ok=True)
+            shutil.copyfile(workdir / "serve.log", kept)
         shutil.rmtree(workdir, ignore_errors=True)
     doc = summary(rec, elapsed, args, load_before, load_after)
     print_report(doc)

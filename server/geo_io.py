@@ -54,6 +54,16 @@ _KIND_LABELS = {"geojson": "GeoJSON", "gpkg": "GeoPackage", "shp": "Shapefile"}
 _POLYGONAL = ("Polygon", "MultiPolygon")
 
 
+class OptionNeededError(InputError):
+    """Bad input that one of the reader's options resolves; ``option`` is that option's
+    keyword argument (``"repair"`` for ``repair=True``), so each caller can name its own
+    control for it (the command line a flag, a web form a field). The message stays neutral."""
+
+    def __init__(self, field: str, problem: str, option: str):
+        super().__init__(field, problem)
+        self.option = option
+
+
 # ---------------------------------------------------------------------------------------------
 # CRS helpers
 
@@ -242,15 +252,32 @@ def list_layers(path_or_bytes: str | Path | bytes, *, filename: str | None = Non
         return list(_layers_of(path, kind, filename or Path(str(path_or_bytes)).name))
 
 
+def layer_columns(
+    path_or_bytes: str | Path | bytes, *, filename: str | None = None, layer: str | None = None
+) -> list[str]:
+    """Attribute column names of one layer of a GIS file (the only layer when ``layer`` is
+    None; InputError when there are several)."""
+    import pyogrio
+
+    with _dataset(path_or_bytes, filename) as (path, kind):
+        filename = filename or Path(str(path_or_bytes)).name
+        layer_name, layer_path = _choose_layer(_layers_of(path, kind, filename), layer, filename)
+        try:
+            info = pyogrio.read_info(layer_path, layer=None if kind == "zip" else layer_name)
+        except Exception as exc:  # pyogrio raises its own DataSourceError and friends
+            label = _KIND_LABELS["shp" if kind == "zip" else kind]
+            raise InputError(filename, f"cannot be read as {label}: {_first_line(exc)}") from None
+    return [str(c) for c in info.get("fields", [])]
+
+
 def _choose_layer(layers: dict[str, Path], layer: str | None, filename: str) -> tuple[str, Path]:
     if not layers:
         what = "no .shp file" if filename.lower().endswith(".zip") else "no layer with geometry"
         raise InputError(filename, f"holds {what}")
     if layer is None:
         if len(layers) > 1:
-            raise InputError(
-                filename,
-                f"has {len(layers)} layers ({', '.join(layers)}); choose one (--layer)",
+            raise OptionNeededError(
+                filename, f"has {len(layers)} layers ({', '.join(layers)}); choose one", "layer"
             )
         layer = next(iter(layers))
     elif layer not in layers:
@@ -289,10 +316,8 @@ def _checked_polygon(geom: Any, where: str, repair: bool, after: str = "") -> An
         return geom
     reason = shapely.is_valid_reason(geom)
     if not repair:
-        raise InputError(
-            where,
-            f"invalid polygon{after} ({reason}); use the repair option (--repair) "
-            "to apply shapely make_valid",
+        raise OptionNeededError(
+            where, f"invalid polygon{after} ({reason}); repair it with shapely make_valid", "repair"
         )
     fixed = _polygonal_part(shapely.make_valid(geom))
     if fixed is None or fixed.is_empty:
@@ -410,9 +435,10 @@ def read_polygons(
 
     if src is None:
         if target is not None:
-            raise InputError(
+            raise OptionNeededError(
                 filename,
-                f"has no CRS; name the CRS of its coordinates (--source-crs), e.g. {target_crs}",
+                f"has no CRS; name the CRS of its coordinates, e.g. {target_crs}",
+                "source_crs_override",
             )
     elif target is None:
         if src.is_geographic:
@@ -422,10 +448,11 @@ def read_polygons(
                 "CRS (local site grid); set the project CRS (projected, metres) first",
             )
         if not assume_local:
-            raise InputError(
+            raise OptionNeededError(
                 filename,
                 f"is in {_crs_label(src)} and the project has no CRS (local site grid); set the "
-                "project CRS first, or confirm the coordinates are site-grid metres (--as-local)",
+                "project CRS first, or confirm the coordinates are site-grid metres",
+                "assume_local",
             )
 
     # Per-feature checks in the source CRS, so a reported coordinate is one the user can find

@@ -28,6 +28,7 @@ from pathlib import Path
 from typing import Any
 
 from server.errors import InputError
+from server.geo_io import OptionNeededError
 
 # Depths closer than this (m) count as equal: a layer ending at the final depth, order checks.
 DEPTH_TOL_M = 1e-6
@@ -617,12 +618,13 @@ def parse_csv(
 
 
 def outside_error(filename: str, ids: list[str]) -> InputError:
-    """The refusal for probes outside the site, naming them."""
+    """The refusal for probes outside the site, naming them (``leave_outside`` resolves it)."""
     shown = ", ".join(ids[:10]) + (f" and {len(ids) - 10} more" if len(ids) > 10 else "")
-    return InputError(
+    return OptionNeededError(
         filename,
         f"{len(ids)} probe(s) lie outside the site: {shown}; check the coordinates and the CRS, "
-        "or leave them out (--leave-outside)",
+        "or leave them out",
+        "leave_outside",
     )
 
 
@@ -786,8 +788,8 @@ def ags4_to_existing(
     if unmapped:
         raise InputError(
             "mapping",
-            f"no unit for geology code(s) {', '.join(unmapped)}; map each one "
-            "(CODE=UNIT, or CODE=- to leave it out)",
+            f"no unit for geology code(s) {', '.join(unmapped)}; map each one to a unit "
+            "or leave it out",
         )
     by_type = {}
     for hole_type, method in (method_by_type or {}).items():
@@ -811,10 +813,11 @@ def ags4_to_existing(
 
     untyped = sorted({h.type or "(blank)" for h in holes.holes if method_of(h) is None})
     if untyped:
-        raise InputError(
+        raise OptionNeededError(
             "method",
-            f"no method for location type(s) {', '.join(untyped)}; give TYPE=METHOD "
-            "(--method-for) or a default method",
+            f"no method for location type(s) {', '.join(untyped)}; choose a method for each "
+            "type or a default method",
+            "method_by_type",
         )
 
     probes: list[dict] = []

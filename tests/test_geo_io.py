@@ -138,7 +138,9 @@ def test_geojson_without_crs_is_wgs84(tiny_model, tmp_path):
 def test_projected_data_into_local_grid_project_only_when_confirmed(tiny_model, tmp_path):
     path = tmp_path / "x.geojson"
     write_geojson(path, [feature(box(10, 10, 50, 50), name="Tank")], crs="EPSG:27700")
-    with pytest.raises(InputError, match="project has no CRS.*--as-local"):
+    with pytest.raises(
+        InputError, match="project has no CRS.*confirm the coordinates are site-grid metres"
+    ):
         read_polygons(path, target_crs=None)
     got = read_polygons(path, target_crs=None, assume_local=True)
     assert shape(got[0]["geometry"]).equals(box(10, 10, 50, 50))
@@ -158,7 +160,7 @@ def test_projected_to_other_projected_crs(tiny_model, tmp_path):
 def test_no_crs_file_needs_source_crs(tmp_path):
     path = tmp_path / "nocrs.gpkg"
     geopandas.GeoDataFrame(geometry=[box(530_000, 180_000, 530_100, 180_100)]).to_file(path)
-    with pytest.raises(InputError, match="has no CRS.*--source-crs"):
+    with pytest.raises(InputError, match="has no CRS; name the CRS of its coordinates"):
         read_polygons(path, target_crs="EPSG:27700")
     got = read_polygons(path, target_crs="EPSG:27700", source_crs_override="EPSG:27700")
     assert shape(got[0]["geometry"]).area == pytest.approx(10_000)

@@ -16,6 +16,14 @@ from pathlib import Path
 from server.commands.export import read_model, write_model
 from server.errors import InputError
 
+# The flag that sets each reader option a message calls for (geo_io.OptionNeededError).
+OPTION_FLAGS = {
+    "layer": "--layer",
+    "repair": "--repair",
+    "source_crs_override": "--source-crs",
+    "assume_local": "--as-local",
+}
+
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("model", metavar="MODEL", help="model file (JSON, schema probewise/1)")
@@ -52,6 +60,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 def run(args: argparse.Namespace) -> int:
     from server.geo_io import (
+        OptionNeededError,
         apply_polygons,
         check_project_crs,
         features_outside_site,
@@ -84,17 +93,20 @@ def run(args: argparse.Namespace) -> int:
         model = {**model, "crs": new_crs}
     if not Path(args.file).exists():
         raise InputError("FILE", f"file not found: {args.file}")
-    features = read_polygons(
-        args.file,
-        filename=Path(args.file).name,
-        layer=args.layer,
-        target_crs=crs,
-        source_crs_override=args.source_crs,
-        name_column=args.name_column,
-        weight_column=args.weight_column,
-        repair=args.repair,
-        assume_local=args.as_local,
-    )
+    try:
+        features = read_polygons(
+            args.file,
+            filename=Path(args.file).name,
+            layer=args.layer,
+            target_crs=crs,
+            source_crs_override=args.source_crs,
+            name_column=args.name_column,
+            weight_column=args.weight_column,
+            repair=args.repair,
+            assume_local=args.as_local,
+        )
+    except OptionNeededError as exc:
+        raise InputError(exc.field, f"{exc.problem} ({OPTION_FLAGS[exc.option]})") from None
     mode = "replace" if args.replace or args.role == "site" else "append"
     updated = apply_polygons(model, args.role, features, mode=mode)
     if args.role != "site":

@@ -19,6 +19,11 @@ from server.commands.export import parse_pairs, read_model, write_model
 from server.errors import InputError
 
 FORMAT_SUFFIXES = {".csv": "csv", ".txt": "csv", ".xlsx": "xlsx", ".ags": "ags4"}
+# The flags that set each reader option a message calls for (geo_io.OptionNeededError).
+OPTION_FLAGS = {
+    "leave_outside": "--leave-outside",
+    "method_by_type": "--method-for TYPE=METHOD, or --default-method",
+}
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -132,6 +137,15 @@ def _print_probes(probes: list[dict], outside: list[str]) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
+    from server.geo_io import OptionNeededError
+
+    try:
+        return _run(args)
+    except OptionNeededError as exc:
+        raise InputError(exc.field, f"{exc.problem} ({OPTION_FLAGS[exc.option]})") from None
+
+
+def _run(args: argparse.Namespace) -> int:
     fmt = args.format or FORMAT_SUFFIXES.get(Path(args.file).suffix.lower())
     if fmt is None:
         raise InputError("--format", f"cannot tell the format of {args.file!r}; give --format")

@@ -48,7 +48,7 @@ from pathlib import Path
 
 import numpy as np
 
-FOLD = 32  # factors multiplied before one log
+FOLD = 32  # factors per group product (group_products assumes 4 blocks of 8)
 Q_MIN = 1e-9  # floor on a variance ratio: FOLD * 9 < 308 decades, so no product underflows
 LN2 = math.log(2.0)
 # Relative safety margin on the bound: the envelope's gain and a method's exact gain are
@@ -104,19 +104,26 @@ def whiten(P, noise, mask, low, W):
 
 
 @njit(cache=True, fastmath=True)
-def group_products(qbuf, gp):
+def group_products(qbuf, gp, tmp):
+    """gp[g] = product of qbuf[32 g: 32 g + 32]: four blocks of 8 multiplied lane by lane,
+    then the 8 lanes (no long horizontal reduction per group); tmp: scratch of 8."""
     for g in range(gp.shape[0]):
-        p = 1.0
-        for s in range(FOLD):
-            p *= qbuf[g * FOLD + s]
-        gp[g] = p
+        base = g * FOLD
+        for lane in range(8):
+            tmp[lane] = (
+                qbuf[base + lane]
+                * qbuf[base + 8 + lane]
+                * qbuf[base + 16 + lane]
+                * qbuf[base + 24 + lane]
+            )
+        gp[g] = ((tmp[0] * tmp[1]) * (tmp[2] * tmp[3])) * ((tmp[4] * tmp[5]) * (tmp[6] * tmp[7]))
 
 
 @njit(cache=True, fastmath=True)
-def fold_total(qbuf, gp, group_start, group_stop, run_omega):
+def fold_total(qbuf, gp, tmp, group_start, group_stop, run_omega):
     """sum over runs of omega * -log(product of the run's factors): products of FOLD factors,
     then running products logged only when they get small."""
-    group_products(qbuf, gp)
+    group_products(qbuf, gp, tmp)
     total = 0.0
     for ri in range(run_omega.shape[0]):
         prod = 1.0
@@ -162,8 +169,8 @@ def location_update_pass({Ms}, l, inv_v, W, Gl, H, q_min, qbuf):
 def condition_on_pick(F, n_rows, l, obs, noise_obs, terms, P, slots, V, G, H):
     """Condition the greedy state on the m readings of a pick at candidate location l.
 
-    F (R, L, B): whitened covariance of the n_rows earlier readings with every candidate
-    location-boundary (rows n_rows.. are written here); terms (B, L): per unit
+    F (L, B, R): whitened covariance of every candidate location-boundary with the n_rows
+    earlier readings (columns n_rows.. are written here); terms (B, L): per unit
     s_i(l') s_i(l) rho_i(|x_l' - x_l|); slots (m, S): current covariance of the readings with
     the targets. Updates P, V, F in place and sets G, H to the pending update of M.
     """
@@ -172,7 +179,11 @@ def condition_on_pick(F, n_rows, l, obs, noise_obs, terms, P, slots, V, G, H):
     m = obs.shape[0]
     S = slots.shape[1]
     LB = L * B
-    Ff = F.reshape(F.shape[0], LB)
+    Ff = F.reshape(LB, F.shape[2])
+    fp = np.empty((m, n_rows))  # the pick's own rows
+    for o in range(m):
+        for r in range(n_rows):
+            fp[o, r] = Ff[l * B + obs[o], r]
     cov = np.empty((m, LB))
     for o in range(m):  # prior: sum over units i <= min(b, obs[o])
         k = obs[o]
@@ -182,13 +193,13 @@ def condition_on_pick(F, n_rows, l, obs, noise_obs, terms, P, slots, V, G, H):
                 if b <= k:
                     acc += terms[b, lp]
                 cov[o, lp * B + b] = acc
-    for o in range(m):  # minus what earlier readings explain
-        crow = cov[o]
-        for r in range(n_rows):
-            f = Ff[r, l * B + obs[o]]
-            row = Ff[r]
-            for x in range(LB):
-                crow[x] -= f * row[x]
+    for x in range(LB):  # minus what earlier readings explain: dot products over readings
+        row = Ff[x]
+        for o in range(m):
+            acc = 0.0
+            for r in range(n_rows):
+                acc += row[r] * fp[o, r]
+            cov[o, x] -= acc
     low = np.zeros((m, m))  # Cholesky of the readings' covariance plus noise
     for a in range(m):
         for c in range(a + 1):
@@ -221,7 +232,7 @@ def condition_on_pick(F, n_rows, l, obs, noise_obs, terms, P, slots, V, G, H):
         for t in range(S):
             V[t] -= h[a, t] * h[a, t]
         for x in range(LB):
-            Ff[n_rows + a, x] = g[a, x]
+            Ff[x, n_rows + a] = g[a, x]
     for lp in range(L):
         for b in range(B):
             for c in range(B):
@@ -244,6 +255,7 @@ def search({Ms}, inv_v, group_start, group_stop, run_omega, P, noise, observes, 
     T = inv_v.shape[0]
     qbuf = np.empty(T)
     gp = np.empty(T // FOLD)
+    tmp = np.empty(8)
     low = np.zeros((B, B))
     W = np.zeros((B, B))
     mask = np.zeros(B, dtype=np.bool_)
@@ -272,7 +284,7 @@ def search({Ms}, inv_v, group_start, group_stop, run_omega, P, noise, observes, 
             location_update_pass({Ms}, l, inv_v, W, G[l], H, q_min, qbuf)
         else:
             location_pass({Ms}, l, inv_v, W, q_min, qbuf)
-        bound[l] = fold_total(qbuf, gp, group_start, group_stop, run_omega)
+        bound[l] = fold_total(qbuf, gp, tmp, group_start, group_stop, run_omega)
         for j in range(J):
             if active[l, j]:
                 same = True
@@ -292,11 +304,28 @@ def search({Ms}, inv_v, group_start, group_stop, run_omega, P, noise, observes, 
                 flat[k] = l * J + j
                 key[k] = -(bound[l] * (1.0 + slack) / max(cost[l, j], 1e-9))
                 k += 1
-    order = np.argsort(key)
     best = -1
     best_ratio = 0.0
     n_exact = 0
-    for kk in range(n_cand):
+    first = -1
+    first_gain = 0.0
+    if score_all or n_cand == 0:
+        order = np.argsort(key)
+    else:  # score the most promising first, then sort only those that can still beat it
+        first = np.argmin(key)
+        l = flat[first] // J
+        j = flat[first] % J
+        if exact[l, j]:
+            first_gain = bound[l]
+        else:
+            whiten(P[l], noise[l, j], observes[l, j], low, W)
+            location_pass({Ms}, l, inv_v, W, q_min, qbuf)
+            first_gain = fold_total(qbuf, gp, tmp, group_start, group_stop, run_omega)
+            n_exact += 1
+        floor = first_gain / max(cost[l, j], 1e-9) if first_gain > min_gain else 0.0
+        keep = np.flatnonzero(-key >= floor)  # only these can match or beat the first
+        order = keep[np.argsort(key[keep])]
+    for kk in range(order.shape[0]):
         k = order[kk]
         if not score_all and -key[k] < best_ratio:
             break  # no candidate left can beat the best
@@ -304,12 +333,14 @@ def search({Ms}, inv_v, group_start, group_stop, run_omega, P, noise, observes, 
         j = flat[k] % J
         if not score_all and bound[l] * (1.0 + slack) <= min_gain:
             continue
-        if exact[l, j]:
+        if k == first:
+            gain = first_gain
+        elif exact[l, j]:
             gain = bound[l]
         else:
             whiten(P[l], noise[l, j], observes[l, j], low, W)
             location_pass({Ms}, l, inv_v, W, q_min, qbuf)
-            gain = fold_total(qbuf, gp, group_start, group_stop, run_omega)
+            gain = fold_total(qbuf, gp, tmp, group_start, group_stop, run_omega)
             n_exact += 1
         gain_out[l, j] = gain
         if gain > min_gain:

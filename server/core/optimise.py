@@ -359,10 +359,11 @@ class GreedyState:
     ``M (B, L, S)``: covariance of each candidate location-boundary with each target slot,
     boundary-major so that the kernel gets one array per boundary; ``P (L, B, B)``: covariance
     among the boundaries at each location; ``V (S,)``: target variances (1 on pad slots);
-    ``F (R, L, B)``: whitened covariance of every reading so far with the candidate
-    location-boundaries, so that the covariance of a new pick with every candidate is
-    ``prior - F^T F[:, pick]``; ``G (L, B, B)``, ``H (B, S)``: the pending rank-k update
-    ``M[b, l] -= G[l, b] @ H`` of the last pick (applied by the kernel while it scores).
+    ``F (L, B, R)``: whitened covariance of every reading so far with the candidate
+    location-boundaries (room for more readings past ``n_rows``), so that the covariance of a
+    new pick with every candidate is ``prior - F F[pick]^T``; ``G (L, B, B)``, ``H (B, S)``:
+    the pending rank-k update ``M[b, l] -= G[l, b] @ H`` of the last pick (applied by the
+    kernel while it scores).
     """
 
     def __init__(self, M, P, V, F, n_rows):
@@ -386,15 +387,16 @@ class GreedyState:
     def reserve_rows(self, count: int) -> None:
         """Make room in ``F`` for ``count`` more readings."""
         need = self.n_rows + count
-        if need > self.F.shape[0]:
-            grown = np.zeros((max(need, 2 * self.F.shape[0]), *self.F.shape[1:]))
-            grown[: self.n_rows] = self.F[: self.n_rows]
+        if need > self.F.shape[2]:
+            grown = np.zeros((*self.F.shape[:2], max(need, 2 * self.F.shape[2])))
+            grown[:, :, : self.n_rows] = self.F[:, :, : self.n_rows]
             self.F = grown
 
     def _append_rows(self, rows: np.ndarray) -> None:
-        self.reserve_rows(rows.shape[0])
-        self.F[self.n_rows : self.n_rows + rows.shape[0]] = rows
-        self.n_rows += rows.shape[0]
+        """Append readings ``rows (L, B, m)`` to ``F``."""
+        self.reserve_rows(rows.shape[2])
+        self.F[:, :, self.n_rows : self.n_rows + rows.shape[2]] = rows
+        self.n_rows += rows.shape[2]
 
     def apply(self, chol: np.ndarray, cov_cand: np.ndarray, cov_slots: np.ndarray) -> None:
         """Condition on a block of ``m`` readings.
@@ -414,7 +416,7 @@ class GreedyState:
         self.flush()
         self.V -= np.einsum("qs,qs->s", h, h)
         self.P -= np.einsum("lbq,lcq->lbc", g, g)
-        self._append_rows(np.moveaxis(g, 2, 0))
+        self._append_rows(g)
         if m <= B:
             self.G[:] = 0.0
             self.H[:] = 0.0
@@ -478,12 +480,12 @@ class GreedyProblem:
             slots[:, real] = white_t[:, t.slot_bnd[real], t.slot_cell[real]]
             M -= np.einsum("mbl,ms->bls", white_c, slots)
             P -= np.einsum("mbl,mcl->lbc", white_c, white_c)
-            F = np.ascontiguousarray(np.moveaxis(white_c, 2, 1))  # (m, L, B)
+            F = white_c.transpose(2, 1, 0)  # (L, B, m)
         else:
-            F = np.zeros((0, L, self.B))
-        F_store = np.zeros((max(64, 2 * F.shape[0]), L, self.B))
-        F_store[: F.shape[0]] = F
-        return GreedyState(np.ascontiguousarray(M), P, V, F_store, F.shape[0])
+            F = np.zeros((L, self.B, 0))
+        F_store = np.zeros((L, self.B, max(64, 2 * F.shape[2])))
+        F_store[:, :, : F.shape[2]] = F
+        return GreedyState(np.ascontiguousarray(M), P, V, F_store, F.shape[2])
 
     # -- scoring -------------------------------------------------------------------------
     def _search(self, state: GreedyState, active: np.ndarray, score_all: bool):
@@ -542,24 +544,32 @@ class GreedyProblem:
         idx = np.minimum.outer(np.arange(self.B), bnds)  # (B, m)
         return cum[idx, :, np.arange(len(bnds))[None, :]].transpose(2, 0, 1)
 
+    def _pick_terms(self, l: int) -> np.ndarray:
+        """Per unit ``s_i(l') s_i(l) rho_i(|x_l' - x_l|)`` for every candidate location
+        ``l'``: ``(B, L)``, the prior covariance of candidate ``l``'s readings by unit."""
+        d = self.cand.local - self.cand.local[l]
+        h = np.sqrt(np.einsum("ij,ij->i", d, d))
+        std = self.cand_fields.std_m
+        terms = np.empty((self.B, len(h)))
+        for i in range(self.B):
+            corr = self.ground.units[i].correlation
+            terms[i] = correlate(corr.model, h, corr.range_m)
+            terms[i] *= std[:, i]
+            terms[i] *= std[l, i]
+        return terms
+
     def apply_pick(self, state: GreedyState, l: int, j: int) -> None:
         """Condition ``state`` on candidate ``(l, j)``'s readings (exact rank-m update)."""
         obs = np.flatnonzero(self.observes[l, j])
         state.flush()
         state.reserve_rows(len(obs))
-        here = self.cand_fields.take(np.array([l]))
-        terms = np.stack(
-            _unit_correlations(
-                self.ground, self.cand.local, self.cand.local[l : l + 1], self.cand_fields, here
-            )
-        )[:, :, 0].copy()  # (B units, L)
         self.kernel.condition_on_pick(
             state.F,
             state.n_rows,
             l,
             obs,
             self.cand.noise_var[l, j, obs],
-            terms,
+            self._pick_terms(l),
             state.P,
             state.M[obs, l, :],
             state.V,
@@ -599,7 +609,7 @@ class GreedyProblem:
         chol = np.linalg.cholesky(0.5 * (k_oo + k_oo.T) + 1e-12 * np.eye(len(k_oo)))
         cov_cand = self._prior_cand_point(obs.xy, obs.boundary)
         R = state.n_rows
-        cov_cand -= np.einsum("rlb,rm->lbm", state.F[:R], w_o)
+        cov_cand -= np.einsum("lbr,rm->lbm", state.F[:, :, :R], w_o)
         # slots: prior covariance of readings with targets minus the existing probes' part
         real = t.slot_cell >= 0
         terms = np.stack(_unit_correlations(self.ground, obs.xy, t.cells, fields_o, t.fields))

@@ -14,6 +14,8 @@ Every model-editing page (Site, Ground model, Existing, Methods) posts its forms
   the problems at that model path or below it; problems on parts the page does not show (an
   existing probe broken by reordering units) go to the edit's ``fallback`` slot.
 - ``run_undo`` undoes the last change for any page; ``last_change`` names it for the header.
+- ``EditPage`` is one page: its templates and context, and the edits every page has (a field
+  edit, adding an item from an add form, removing one, storing an imported file, undo).
 """
 
 from __future__ import annotations
@@ -532,20 +534,45 @@ _register_template_helpers()
 
 
 @dataclass(frozen=True)
+class ImportArea:
+    """Where a page shows an import's preview and its problems: a template whose root element
+    has id ``element_id``, swapped alone for htmx so the chosen file stays in its form."""
+
+    template: str  # "_site_import_preview.html"
+    element_id: str  # "site-import-preview"
+
+
+@dataclass(frozen=True)
 class EditPage:
     """One model-editing page: its templates, URL and page-specific context.
 
+    ``step`` names everything: the workflow step, the URL part after /projects/{id}/, the page
+    and fragment templates ("site.html", "_site.html") and the fragment's root element id.
     ``extra(db, project, model, result)`` returns what the page's own templates need beyond
-    ``page_context`` (built from ``model``, the model being shown).
+    ``page_context`` (built from ``model``, the model being shown). ``own``: the model parts
+    the page shows fields for (see FieldErrors); the default of every edit made here.
     """
 
-    step: str  # workflow step key ("site")
+    step: str  # "site"
     title: str  # h1 ("Site")
-    slug: str  # URL part after /projects/{id}/ ("site")
-    page: str  # "site.html"
-    fragment: str  # "_site.html" (root element id = fragment_id)
-    fragment_id: str
     extra: Callable[..., dict[str, Any]]
+    own: tuple[str, ...] = ()
+
+    @property
+    def slug(self) -> str:
+        return self.step
+
+    @property
+    def page(self) -> str:
+        return f"{self.step}.html"
+
+    @property
+    def fragment(self) -> str:
+        return f"_{self.step}.html"
+
+    @property
+    def fragment_id(self) -> str:
+        return self.step
 
     def url(self, project_id: int) -> str:
         return f"/projects/{project_id}/{self.slug}"
@@ -608,8 +635,9 @@ class EditPage:
         """Run ``edit`` on the project (see run_edit) and answer with this page.
 
         ``more``: extra template context; ``more_when_refused``: extra context only when the
-        edit was refused (a row that stays open for editing).
+        edit was refused (a row that stays open for editing). ``own`` defaults to the page's.
         """
+        options.setdefault("own", self.own)
         result = run_edit(
             db,
             project_id,
@@ -623,6 +651,145 @@ class EditPage:
         if result.refused and result.status_code == 422:
             extra.update(more_when_refused or {})
         return self.answer(request, db, result, **extra)
+
+    def add_item(
+        self,
+        request: Request,
+        db: sqlite_utils.Database,
+        project_id: int,
+        form: Mapping[str, Any] | FormData,
+        key: str,
+        slot: str,
+        fill: Callable[[FormReader, str, dict, dict], str],
+    ):
+        """Append an item read from an add form to the list ``model[key]``; answer the page.
+
+        ``fill(reader, path, item, model)`` reads the form into the new, empty ``item`` (model
+        path ``path``) and returns the revision message. The add form's fields are named under
+        ``slot`` ("new_probe.id"): the problems of the list's items are shown there; a refusal
+        shows the stored list with the add form as typed (the draft).
+        """
+        reader = FormReader(form)
+
+        def edit(model: dict) -> str:
+            items = model.setdefault(key, [])
+            item: dict[str, Any] = {}
+            message = fill(reader, f"{key}[{len(items)}]", item, model)
+            items.append(item)
+            return message
+
+        def remap(field: str) -> str:
+            return re.sub(rf"^{re.escape(key)}\[\d+\]", slot, field)
+
+        return self.edit(
+            request,
+            db,
+            project_id,
+            form,
+            edit,
+            reader=reader,
+            own=(slot,),
+            fallback=slot,
+            remap=remap,
+            keep_input=False,
+        )
+
+    def remove_item(
+        self,
+        request: Request,
+        db: sqlite_utils.Database,
+        project_id: int,
+        form: Mapping[str, Any] | FormData,
+        key: str,
+        index: int,
+        what: str,
+        message: Callable[[dict], str],
+        *,
+        check: Callable[[dict, dict], None] | None = None,
+    ):
+        """Remove ``model[key][index]`` (a ``what``: "bound") and answer the page.
+
+        ``check(model, item)`` may refuse with EditRefused (the item is still referred to);
+        ``message(item)`` is the revision message. Problems are shown at the item's row.
+        """
+        path = f"{key}[{index}]"
+
+        def edit(model: dict) -> str:
+            items = model.get(key) or []
+            item = item_at(items, index, path, what)
+            if check is not None:
+                check(model, item)
+            del items[index]
+            return message(item)
+
+        return self.edit(request, db, project_id, form, edit, fallback=path, keep_input=False)
+
+    def answer_import(
+        self,
+        request: Request,
+        db: sqlite_utils.Database,
+        project: StoredProject,
+        reader: FormReader,
+        area: ImportArea,
+        error: InputError | None,
+        **state: Any,
+    ):
+        """An import's preview or problem: ``area`` alone (htmx) or the page holding it.
+
+        ``state``: what the area's template shows (the preview); ``error`` is shown in it, 422.
+        """
+        from server.web.templating import is_htmx, render
+
+        status = 422 if error else 200
+        context = self.context(db, project, None, **state)
+        context["import_error"] = error and {"field": error.field, "problem": error.problem}
+        context["import_form"] = reader.values()
+        if is_htmx(request):
+            headers = {"HX-Retarget": f"#{area.element_id}", "HX-Reswap": "outerHTML"}
+            return render(request, area.template, context, status_code=status, headers=headers)
+        return render(request, self.page, context, status_code=status)
+
+    def save_import(
+        self,
+        request: Request,
+        db: sqlite_utils.Database,
+        project: StoredProject,
+        reader: FormReader,
+        area: ImportArea,
+        imported: dict,
+        message: str,
+        *,
+        file_field: str,
+        warning: str = "",
+        **state: Any,
+    ):
+        """Store ``imported`` (the whole model after an import) as a new revision.
+
+        Saved: the page, its notice followed by ``warning`` ("Left out: ..."). Refused by the
+        model checks: ``area`` with the first problem, as a problem of the file
+        (``file_field``); other refusals (a stale page): the page.
+        """
+
+        def edit(model: dict) -> str:
+            model.clear()
+            model.update(imported)
+            return message
+
+        result = run_edit(
+            db,
+            project.id,
+            expected_revision_of(reader.form),
+            edit,
+            own=self.own,
+            page_url=self.url(project.id),
+        )
+        if result.saved and warning:
+            result.notice = {"kind": "warning", "text": f"{result.notice['text']} {warning}."}
+        if result.refused and result.status_code == 422:
+            first = result.errors.problems[0]
+            error = InputError(file_field, f"{first.label}: {first.problem}")
+            return self.answer_import(request, db, project, reader, area, error, **state)
+        return self.answer(request, db, result)
 
     def add_undo_route(self, router: Any) -> None:
         """POST /projects/{id}/<slug>/undo: undo the last change and show this page again."""

@@ -334,9 +334,11 @@ def cost_gain_chart(
         ax.set_xlabel(f"Cost ({currency})" if currency else "Cost")
         ax.set_ylabel("Information gain (bits)")
         ax.xaxis.set_major_formatter(FuncFormatter(_money_axis))
-        ax.set_xlim(left=0)
-        ax.set_ylim(bottom=0)
-        ax.margins(x=0.12, y=0.1)
+        costs = [p.cost for p in points] + [c for curve in curves for c, _ in curve.points]
+        gains = [p.gain_bits for p in points] + [g for curve in curves for _, g in curve.points]
+        # room on the right and above for the labels
+        ax.set_xlim(0, max(costs, default=1.0) * 1.3 or 1.0)
+        ax.set_ylim(0, max(gains, default=1.0) * 1.12 or 1.0)
         ax.legend(loc="lower right", fontsize=7.5, frameon=True, framealpha=0.9)
         return _to_bytes(fig, "svg")
 

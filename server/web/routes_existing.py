@@ -25,28 +25,15 @@ from server.web.edits import (
     EditRefused,
     EditResult,
     FormReader,
+    ImportArea,
     PostedForm,
-    expected_revision_of,
     item_at,
-    run_edit,
 )
 from server.web.routes_site import build_map_data
-from server.web.templating import is_htmx, render
 
 router = APIRouter(include_in_schema=False)
 
 MAX_PREVIEW_ROWS = 200
-# Words probes_in uses for the command line, and what the form calls them.
-CLI_WORDING = (
-    (
-        "or leave them out (--leave-outside)",
-        "or tick \u201cLeave out the probes outside the site\u201d",
-    ),
-    ("(--leave-outside)", "(tick \u201cLeave out the probes outside the site\u201d)"),
-    ("(CODE=UNIT, or CODE=- to leave it out)", "(choose a unit or \u201cleave out\u201d for each)"),
-    ("give TYPE=METHOD (--method-for) or a default method", "choose a method for each type"),
-    ("(see docs/import-formats.md)", "(see the column guide below)"),
-)
 # Words too common in soil descriptions to tell units apart when guessing the mapping.
 STOPWORDS = frozenset(
     [
@@ -73,12 +60,6 @@ STOPWORDS = frozenset(
         "gravelly",
     ]
 )
-
-
-def web_wording(problem: str) -> str:
-    for cli, web in CLI_WORDING:
-        problem = problem.replace(cli, web)
-    return problem
 
 
 # ---------------------------------------------------------------- the page
@@ -110,17 +91,8 @@ def existing_extra(
     }
 
 
-PAGE = EditPage(
-    step="existing",
-    title="Existing information",
-    slug="existing",
-    page="existing.html",
-    fragment="_existing.html",
-    fragment_id="existing",
-    extra=existing_extra,
-)
+PAGE = EditPage("existing", "Existing information", existing_extra, own=("existing",))
 PAGE.add_undo_route(router)
-OWN = ("existing",)
 
 
 @router.get("/projects/{project_id}/existing")
@@ -170,7 +142,6 @@ def save_probe(request: Request, project_id: int, index: int, form: PostedForm, 
         form,
         edit,
         reader=reader,
-        own=OWN,
         fallback=f"existing[{index}]",
         more_when_refused={"editing": index},
     )
@@ -178,50 +149,25 @@ def save_probe(request: Request, project_id: int, index: int, form: PostedForm, 
 
 @router.post("/projects/{project_id}/existing/{index:int}/remove")
 def remove_probe(request: Request, project_id: int, index: int, form: PostedForm, db: Db):
-    def edit(model: dict) -> str:
-        probes = model.get("existing") or []
-        probe = item_at(probes, index, f"existing[{index}]", "probe")
-        del probes[index]
-        return f"Deleted existing probe {probe['id']}"
-
-    return PAGE.edit(
+    return PAGE.remove_item(
         request,
         db,
         project_id,
         form,
-        edit,
-        own=OWN,
-        fallback=f"existing[{index}]",
-        keep_input=False,
+        "existing",
+        index,
+        "probe",
+        lambda probe: f"Deleted existing probe {probe['id']}",
     )
 
 
 @router.post("/projects/{project_id}/existing/add")
 def add_probe(request: Request, project_id: int, form: PostedForm, db: Db) -> Response:
-    reader = FormReader(form)
-
-    def edit(model: dict) -> str:
-        probes = model.setdefault("existing", [])
-        probe: dict[str, Any] = {}
-        read_probe(reader, f"existing[{len(probes)}]", probe, model)
-        probes.append(probe)
+    def fill(reader: FormReader, path: str, probe: dict, model: dict) -> str:
+        read_probe(reader, path, probe, model)
         return f"Added existing probe {probe['id']}"
 
-    def remap(field: str) -> str:
-        return re.sub(r"^existing\[\d+\]", "new_probe", field)
-
-    return PAGE.edit(
-        request,
-        db,
-        project_id,
-        form,
-        edit,
-        reader=reader,
-        own=("new_probe",),
-        fallback="new_probe",
-        remap=remap,
-        keep_input=False,
-    )
+    return PAGE.add_item(request, db, project_id, form, "existing", "new_probe", fill)
 
 
 # ---------------------------------------------------------------- imports: shared
@@ -234,6 +180,11 @@ def _upload(reader: FormReader, name: str, what: str) -> tuple[bytes, str]:
     return upload.file.read(), upload.filename or "upload"
 
 
+def _import_area(which: str) -> ImportArea:
+    """The CSV or the AGS4 import's area (#csv-preview, #ags4-preview)."""
+    return ImportArea(f"_existing_{which}_preview.html", f"{which}-preview")
+
+
 def _import_answer(
     request: Request,
     db: sqlite_utils.Database,
@@ -243,26 +194,11 @@ def _import_answer(
     error: InputError | None,
     **state: Any,
 ) -> Response:
-    """The import area (#csv-preview or #ags4-preview) alone for htmx, else the page."""
-    status = 422 if error else 200
-    context = PAGE.context(db, project, None)
-    context.update(state)
-    context["import_error"] = error and {
-        "field": error.field,
-        "problem": web_wording(error.problem),
-    }
-    context["import_form"] = reader.values()
-    context["import_which"] = which
-    if is_htmx(request):
-        headers = {"HX-Retarget": f"#{which}-preview", "HX-Reswap": "outerHTML"}
-        return render(
-            request,
-            f"_existing_{which}_preview.html",
-            context,
-            status_code=status,
-            headers=headers,
-        )
-    return render(request, "existing.html", context, status_code=status)
+    """The import area of ``which`` ("csv", "ags4") alone for htmx, else the page."""
+    area = _import_area(which)
+    return PAGE.answer_import(
+        request, db, project, reader, area, error, import_which=which, **state
+    )
 
 
 def _save_import(
@@ -281,29 +217,18 @@ def _save_import(
     except InputError as exc:
         return _import_answer(request, db, project, reader, which, exc)
 
-    def edit(model: dict) -> str:
-        model.clear()
-        model.update(merged)
-        return message + (" (replacing the old ones)" if mode == "replace" else "")
-
-    result = run_edit(
+    return PAGE.save_import(
+        request,
         db,
-        project.id,
-        expected_revision_of(reader.form),
-        edit,
-        own=OWN,
-        page_url=PAGE.url(project.id),
+        project,
+        reader,
+        _import_area(which),
+        merged,
+        message + (" (replacing the old ones)" if mode == "replace" else ""),
+        file_field=f"{which}_file",
+        warning=f"Left out: {'; '.join(left_out)}" if left_out else "",
+        import_which=which,
     )
-    if result.saved and left_out:
-        result.notice = {
-            "kind": "warning",
-            "text": f"{result.notice['text']} Left out: {'; '.join(left_out)}.",
-        }
-    if result.refused and result.status_code == 422:
-        first = result.errors.problems[0]
-        error = InputError(f"{which}_file", f"{first.label}: {first.problem}")
-        return _import_answer(request, db, project, reader, which, error)
-    return PAGE.answer(request, db, result)
 
 
 def _ids(ids: list[str]) -> str:
@@ -317,15 +242,19 @@ def _csv_options(reader: FormReader) -> dict[str, Any]:
     return {"method_default": reader.raw("default_method").strip() or None}
 
 
+def _read_csv(reader: FormReader, model: dict) -> tuple[bytes, str, probes_in.ProbePreview]:
+    """The uploaded table, its name and what it holds."""
+    data, filename = _upload(reader, "csv_file", "a CSV or XLSX table")
+    preview = probes_in.preview_csv(data, model, filename=filename, **_csv_options(reader))
+    return data, filename, preview
+
+
 @router.post("/projects/{project_id}/existing/import/csv/preview")
 def preview_csv(request: Request, project_id: int, form: PostedForm, db: Db) -> Response:
     project = get_project(db, project_id)
     reader = FormReader(form)
     try:
-        data, filename = _upload(reader, "csv_file", "a CSV or XLSX table")
-        preview = probes_in.preview_csv(
-            data, project.model, filename=filename, **_csv_options(reader)
-        )
+        _data, filename, preview = _read_csv(reader, project.model)
     except InputError as exc:
         return _import_answer(request, db, project, reader, "csv", exc)
     return _import_answer(
@@ -340,10 +269,7 @@ def import_csv(request: Request, project_id: int, form: PostedForm, db: Db) -> R
     leave_outside = reader.flag("leave_outside")
     preview = None
     try:
-        data, filename = _upload(reader, "csv_file", "a CSV or XLSX table")
-        preview = probes_in.preview_csv(
-            data, project.model, filename=filename, **_csv_options(reader)
-        )
+        data, filename, preview = _read_csv(reader, project.model)
         probes = probes_in.parse_csv(
             data,
             project.model,
@@ -454,6 +380,13 @@ def ags4_state(
     }
 
 
+def _read_ags4(reader: FormReader, model: dict) -> tuple[probes_in.Ags4Holes, dict[str, Any]]:
+    """The uploaded AGS4 file's holes and its mapping step (see ags4_state)."""
+    data, filename = _upload(reader, "ags4_file", "an AGS4 file")
+    holes = probes_in.read_ags4(data, filename=filename)
+    return holes, ags4_state(holes, reader, model, filename)
+
+
 def _ags4_choices(state: dict[str, Any]) -> tuple[dict[str, str], dict[str, str]]:
     mapping = {c["code"]: c["unit"] for c in state["codes"] if c["unit"]}
     by_type = {t["type"]: t["method"] for t in state["types"] if t["method"]}
@@ -481,9 +414,7 @@ def preview_ags4(request: Request, project_id: int, form: PostedForm, db: Db) ->
     reader = FormReader(form)
     state = None
     try:
-        data, filename = _upload(reader, "ags4_file", "an AGS4 file")
-        holes = probes_in.read_ags4(data, filename=filename)
-        state = ags4_state(holes, reader, project.model, filename)
+        holes, state = _read_ags4(reader, project.model)
         if reader.raw("step") == "preview":
             state["result"] = _ags4_result(holes, state, project.model)
     except InputError as exc:
@@ -497,9 +428,7 @@ def import_ags4(request: Request, project_id: int, form: PostedForm, db: Db) -> 
     reader = FormReader(form)
     state = None
     try:
-        data, filename = _upload(reader, "ags4_file", "an AGS4 file")
-        holes = probes_in.read_ags4(data, filename=filename)
-        state = ags4_state(holes, reader, project.model, filename)
+        holes, state = _read_ags4(reader, project.model)
         result = _ags4_result(holes, state, project.model)
         state["result"] = result
         if result.outside_site and not reader.flag("leave_outside"):
@@ -527,5 +456,5 @@ def import_ags4(request: Request, project_id: int, form: PostedForm, db: Db) -> 
     if result.problems:
         left_out.append(f"{len(result.problems)} with problems")
     n = len(result.importable)
-    message = f"Imported {n} existing probe{'s' if n != 1 else ''} from {filename} (AGS4)"
+    message = f"Imported {n} existing probe{'s' if n != 1 else ''} from {state['filename']} (AGS4)"
     return _save_import(request, db, project, reader, "ags4", result.importable, message, left_out)

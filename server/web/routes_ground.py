@@ -132,16 +132,12 @@ def ground_extra(
 
 
 PAGE = EditPage(
-    step="ground",
-    title="Ground model",
-    slug="ground",
-    page="ground.html",
-    fragment="_ground.html",
-    fragment_id="ground",
-    extra=ground_extra,
+    "ground",
+    "Ground model",
+    ground_extra,
+    own=("units", "zones", "boundaries_of_interest", "bounds"),
 )
 PAGE.add_undo_route(router)
-OWN = ("units", "zones", "boundaries_of_interest", "bounds")
 
 
 @router.get("/projects/{project_id}/ground")
@@ -274,9 +270,7 @@ def save_unit(request: Request, project_id: int, index: int, form: PostedForm, d
             parts.append(f"Changed {joined} of {unit['name'] or old['name']}")
         return "; ".join(parts) or f"Saved unit {unit['name']}"
 
-    return PAGE.edit(
-        request, db, project_id, form, edit, reader=reader, own=OWN, fallback=f"units[{index}]"
-    )
+    return PAGE.edit(request, db, project_id, form, edit, reader=reader, fallback=f"units[{index}]")
 
 
 def _move(request: Request, project_id: int, index: int, form: Any, db: Any, step: int) -> Response:
@@ -295,7 +289,7 @@ def _move(request: Request, project_id: int, index: int, form: Any, db: Any, ste
         return f"Moved {unit['name']} {relation} {units[index]['name']}"
 
     return PAGE.edit(
-        request, db, project_id, form, edit, own=OWN, fallback=f"units[{index}]", keep_input=False
+        request, db, project_id, form, edit, fallback=f"units[{index}]", keep_input=False
     )
 
 
@@ -311,9 +305,8 @@ def move_unit_down(request: Request, project_id: int, index: int, form: PostedFo
 
 @router.post("/projects/{project_id}/ground/units/{index:int}/remove")
 def remove_unit(request: Request, project_id: int, index: int, form: PostedForm, db: Db):
-    def edit(model: dict) -> str:
+    def check(model: dict, unit: dict) -> None:
         units = model["units"]
-        unit = item_at(units, index, f"units[{index}]", "unit")
         if index == len(units) - 1:
             raise EditRefused(
                 f"units[{index}]",
@@ -328,11 +321,17 @@ def remove_unit(request: Request, project_id: int, index: int, form: PostedForm,
                 f"{unit['name']} is still referred to by {'; '.join(refs)}. Remove those "
                 "references first (Site, Ground model, Methods and Existing pages), then the unit.",
             )
-        del units[index]
-        return f"Removed unit {unit['name']}"
 
-    return PAGE.edit(
-        request, db, project_id, form, edit, own=OWN, fallback=f"units[{index}]", keep_input=False
+    return PAGE.remove_item(
+        request,
+        db,
+        project_id,
+        form,
+        "units",
+        index,
+        "unit",
+        lambda unit: f"Removed unit {unit['name']}",
+        check=check,
     )
 
 
@@ -398,9 +397,7 @@ def save_zone_overrides(
         zone["units"] = overrides
         return f"Changed the thickness overrides of zone {zone['name']}"
 
-    return PAGE.edit(
-        request, db, project_id, form, edit, reader=reader, own=OWN, fallback=f"zones[{index}]"
-    )
+    return PAGE.edit(request, db, project_id, form, edit, reader=reader, fallback=f"zones[{index}]")
 
 
 # ---------------------------------------------------------------- boundaries of interest
@@ -427,14 +424,7 @@ def save_boundaries(request: Request, project_id: int, form: PostedForm, db: Db)
         return "Changed the boundaries of interest"
 
     return PAGE.edit(
-        request,
-        db,
-        project_id,
-        form,
-        edit,
-        reader=reader,
-        own=OWN,
-        fallback="boundaries_of_interest",
+        request, db, project_id, form, edit, reader=reader, fallback="boundaries_of_interest"
     )
 
 
@@ -466,56 +456,31 @@ def save_bound(request: Request, project_id: int, index: int, form: PostedForm, 
         return f"Changed the bound on the base of {bound['base_of']}"
 
     return PAGE.edit(
-        request, db, project_id, form, edit, reader=reader, own=OWN, fallback=f"bounds[{index}]"
+        request, db, project_id, form, edit, reader=reader, fallback=f"bounds[{index}]"
     )
 
 
 @router.post("/projects/{project_id}/ground/bounds/{index:int}/remove")
 def remove_bound(request: Request, project_id: int, index: int, form: PostedForm, db: Db):
-    def edit(model: dict) -> str:
-        bounds = model.get("bounds") or []
-        bound = item_at(bounds, index, f"bounds[{index}]", "bound")
-        del bounds[index]
-        return f"Removed the bound on the base of {bound['base_of']}"
-
-    return PAGE.edit(
+    return PAGE.remove_item(
         request,
         db,
         project_id,
         form,
-        edit,
-        own=OWN,
-        fallback=f"bounds[{index}]",
-        keep_input=False,
+        "bounds",
+        index,
+        "bound",
+        lambda bound: f"Removed the bound on the base of {bound['base_of']}",
     )
 
 
 @router.post("/projects/{project_id}/ground/bounds/add")
 def add_bound(request: Request, project_id: int, form: PostedForm, db: Db) -> Response:
-    reader = FormReader(form)
-
-    def edit(model: dict) -> str:
-        bounds = model.setdefault("bounds", [])
-        bound: dict[str, Any] = {}
-        read_bound(reader, f"bounds[{len(bounds)}]", bound, model)
-        bounds.append(bound)
+    def fill(reader: FormReader, path: str, bound: dict, model: dict) -> str:
+        read_bound(reader, path, bound, model)
         return f"Added a bound on the base of {bound['base_of']}"
 
-    def remap(field: str) -> str:
-        return re.sub(r"^bounds\[\d+\]", "new_bound", field)
-
-    return PAGE.edit(
-        request,
-        db,
-        project_id,
-        form,
-        edit,
-        reader=reader,
-        own=("new_bound",),
-        fallback="new_bound",
-        remap=remap,
-        keep_input=False,
-    )
+    return PAGE.add_item(request, db, project_id, form, "bounds", "new_bound", fill)
 
 
 # ---------------------------------------------------------------- thickness chart

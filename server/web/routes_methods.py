@@ -7,7 +7,6 @@ method that probes or layouts use is refused, naming them.
 
 from __future__ import annotations
 
-import re
 from typing import Any
 
 import sqlite_utils
@@ -50,17 +49,8 @@ def methods_extra(
     }
 
 
-PAGE = EditPage(
-    step="methods",
-    title="Methods and rates",
-    slug="methods",
-    page="methods.html",
-    fragment="_methods.html",
-    fragment_id="methods",
-    extra=methods_extra,
-)
+PAGE = EditPage("methods", "Methods and rates", methods_extra, own=("methods", "currency"))
 PAGE.add_undo_route(router)
-OWN = ("methods", "currency")
 
 
 @router.get("/projects/{project_id}/methods")
@@ -76,7 +66,7 @@ def save_currency(request: Request, project_id: int, form: PostedForm, db: Db) -
         model["currency"] = reader.text("currency", "currency", required=False, max_len=12)
         return f"Set the currency label to {model['currency'] or '(none)'}"
 
-    return PAGE.edit(request, db, project_id, form, edit, reader=reader, own=OWN)
+    return PAGE.edit(request, db, project_id, form, edit, reader=reader)
 
 
 def read_method(reader: FormReader, path: str, method: dict) -> None:
@@ -136,22 +126,13 @@ def save_method(request: Request, project_id: int, index: int, form: PostedForm,
         return f"Changed {what or 'details'} of method {method['id']}"
 
     return PAGE.edit(
-        request,
-        db,
-        project_id,
-        form,
-        edit,
-        reader=reader,
-        own=OWN,
-        fallback=f"methods[{index}]",
+        request, db, project_id, form, edit, reader=reader, fallback=f"methods[{index}]"
     )
 
 
 @router.post("/projects/{project_id}/methods/{index:int}/remove")
 def remove_method(request: Request, project_id: int, index: int, form: PostedForm, db: Db):
-    def edit(model: dict) -> str:
-        methods = model.get("methods") or []
-        method = item_at(methods, index, f"methods[{index}]", "method")
+    def check(model: dict, method: dict) -> None:
         usage = method_usage(model, method["id"])
         users = []
         if usage["probes"]:
@@ -165,47 +146,27 @@ def remove_method(request: Request, project_id: int, index: int, form: PostedFor
                 f"method {method['id']} is used by {' and '.join(users)}; change or delete "
                 "those probes first (Existing and Options pages)",
             )
-        del methods[index]
-        return f"Removed method {method['id']}"
 
-    return PAGE.edit(
+    return PAGE.remove_item(
         request,
         db,
         project_id,
         form,
-        edit,
-        own=OWN,
-        fallback=f"methods[{index}]",
-        keep_input=False,
+        "methods",
+        index,
+        "method",
+        lambda method: f"Removed method {method['id']}",
+        check=check,
     )
 
 
 @router.post("/projects/{project_id}/methods/add")
 def add_method(request: Request, project_id: int, form: PostedForm, db: Db) -> Response:
-    reader = FormReader(form)
-
-    def edit(model: dict) -> str:
-        methods = model.setdefault("methods", [])
-        method: dict[str, Any] = {}
-        read_method(reader, f"methods[{len(methods)}]", method)
-        methods.append(method)
+    def fill(reader: FormReader, path: str, method: dict, model: dict) -> str:
+        read_method(reader, path, method)
         return f"Added method {method['id']}"
 
-    def remap(field: str) -> str:
-        return re.sub(r"^methods\[\d+\]", "new_method", field)
-
-    return PAGE.edit(
-        request,
-        db,
-        project_id,
-        form,
-        edit,
-        reader=reader,
-        own=("new_method",),
-        fallback="new_method",
-        remap=remap,
-        keep_input=False,
-    )
+    return PAGE.add_item(request, db, project_id, form, "methods", "new_method", fill)
 
 
 @router.post("/projects/{project_id}/methods/precision")
@@ -225,6 +186,4 @@ def save_precision(request: Request, project_id: int, form: PostedForm, db: Db) 
             method["precision_m"] = precision
         return "Changed the precision table"
 
-    return PAGE.edit(
-        request, db, project_id, form, edit, reader=reader, own=OWN, fallback="precision"
-    )
+    return PAGE.edit(request, db, project_id, form, edit, reader=reader, fallback="precision")

@@ -331,7 +331,7 @@ def add_probe(request: Request, project_id: int, db: Db, form: PostedForm) -> Re
         pid = pid or next_probe_id(layout, method)
         if any(str(p["id"]) == pid for p in layout["probes"]):
             raise InputError(f"{at}.id", f"{pid!r} is already a probe of this layout")
-        check_inside(model, x, y, at, pid)
+        check_inside(model, x, y, f"layouts[{i}]", pid)
         probe: dict[str, Any] = {"id": pid, "method": method, "x": round(x, 2), "y": round(y, 2)}
         if depth is not None:
             probe["depth_m"] = depth
@@ -372,7 +372,7 @@ def update_probe(request: Request, project_id: int, db: Db, form: PostedForm) ->
         if "x" in form or "y" in form:
             x, y = read_point(reader, at)
             if (round(x, 2), round(y, 2)) != (probe["x"], probe["y"]):
-                check_inside(model, x, y, at, probe_id)
+                check_inside(model, x, y, f"layouts[{i}]", probe_id)
                 probe["x"], probe["y"] = round(x, 2), round(y, 2)
                 moved.update(x=probe["x"], y=probe["y"])
                 changes.append(f"moved to {probe['x']:.1f}, {probe['y']:.1f}")

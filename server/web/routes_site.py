@@ -28,17 +28,8 @@ from server.core.grid import MAX_GRID_CELLS as CORE_MAX_GRID_CELLS
 from server.errors import InputError
 from server.store import StoredProject, get_project
 from server.web.deps import Db
-from server.web.edits import (
-    EditPage,
-    EditResult,
-    FormReader,
-    PostedForm,
-    expected_revision_of,
-    item_at,
-    run_edit,
-)
+from server.web.edits import EditPage, EditResult, FormReader, ImportArea, PostedForm, item_at
 from server.web.site_map import feature_bounds, label_point, polygon_rings
-from server.web.templating import is_htmx, render
 
 router = APIRouter(include_in_schema=False)
 
@@ -299,16 +290,13 @@ def site_extra(
 
 
 PAGE = EditPage(
-    step="site",
-    title="Site",
-    slug="site",
-    page="site.html",
-    fragment="_site.html",
-    fragment_id="site",
-    extra=site_extra,
+    "site",
+    "Site",
+    site_extra,
+    own=("name", "crs", "grid_spacing_m", "site", "zones", "areas_of_interest", "exclusions"),
 )
 PAGE.add_undo_route(router)
-OWN = ("name", "crs", "grid_spacing_m", "site", "zones", "areas_of_interest", "exclusions")
+IMPORT_AREA = ImportArea("_site_import_preview.html", "site-import-preview")
 
 
 @router.get("/projects/{project_id}/site")
@@ -384,7 +372,7 @@ def save_settings(request: Request, project_id: int, form: PostedForm, db: Db) -
         text = "; ".join(changes) or "Saved project settings"
         return text[0].upper() + text[1:]
 
-    return PAGE.edit(request, db, project_id, form, edit, reader=reader, own=OWN)
+    return PAGE.edit(request, db, project_id, form, edit, reader=reader)
 
 
 @router.post("/projects/{project_id}/site/outline")
@@ -400,7 +388,7 @@ def save_outline(request: Request, project_id: int, form: PostedForm, db: Db) ->
             reader.problems.append(exc)
         return "Changed the site outline"
 
-    return PAGE.edit(request, db, project_id, form, edit, reader=reader, own=OWN, fallback="site")
+    return PAGE.edit(request, db, project_id, form, edit, reader=reader, fallback="site")
 
 
 # ---------------------------------------------------------------- zones, areas, exclusions
@@ -431,31 +419,13 @@ def _read_feature(reader: FormReader, role: str, path: str, item: dict) -> str:
 @router.post("/projects/{project_id}/site/{role}/add")
 def add_feature(request: Request, project_id: int, role: str, form: PostedForm, db: Db) -> Response:
     key, one, _many, _tag = _role(role)
-    reader = FormReader(form)
 
-    def edit(model: dict) -> str:
-        items = model.setdefault(key, [])
-        path = f"{key}[{len(items)}]"
-        item: dict[str, Any] = {"units": {}} if role == "zones" else {}
-        name = _read_feature(reader, role, path, item)
-        items.append(item)
-        return f"Added {one} {name}"
+    def fill(reader: FormReader, path: str, item: dict, model: dict) -> str:
+        if role == "zones":
+            item["units"] = {}  # thickness overrides come from the Ground model page
+        return f"Added {one} {_read_feature(reader, role, path, item)}"
 
-    def remap(field: str) -> str:
-        return re.sub(rf"^{key}\[\d+\]", f"new_{role}", field)
-
-    return PAGE.edit(
-        request,
-        db,
-        project_id,
-        form,
-        edit,
-        reader=reader,
-        own=(f"new_{role}",),
-        fallback=f"new_{role}",
-        remap=remap,
-        keep_input=False,
-    )
+    return PAGE.add_item(request, db, project_id, form, key, f"new_{role}", fill)
 
 
 @router.post("/projects/{project_id}/site/{role}/{index:int}")
@@ -476,9 +446,7 @@ def save_feature(
             return f"Renamed {one} {old.get('name')} to {name}"
         return f"Changed {one} {name}"
 
-    return PAGE.edit(
-        request, db, project_id, form, edit, reader=reader, own=OWN, fallback=f"{key}[{index}]"
-    )
+    return PAGE.edit(request, db, project_id, form, edit, reader=reader, fallback=f"{key}[{index}]")
 
 
 @router.post("/projects/{project_id}/site/{role}/{index:int}/remove")
@@ -486,35 +454,19 @@ def remove_feature(
     request: Request, project_id: int, role: str, index: int, form: PostedForm, db: Db
 ) -> Response:
     key, one, _many, _tag = _role(role)
-
-    def edit(model: dict) -> str:
-        items = model.get(key) or []
-        item = item_at(items, index, f"{key}[{index}]", one)
-        del items[index]
-        return f"Removed {one} {item.get('name', index + 1)}"
-
-    return PAGE.edit(
-        request, db, project_id, form, edit, own=OWN, fallback=f"{key}[{index}]", keep_input=False
+    return PAGE.remove_item(
+        request,
+        db,
+        project_id,
+        form,
+        key,
+        index,
+        one,
+        lambda item: f"Removed {one} {item.get('name', index + 1)}",
     )
 
 
 # ---------------------------------------------------------------- GIS import
-
-CLI_WORDING = (
-    ("use the repair option (--repair)", "tick \u201cRepair invalid polygons\u201d"),
-    ("(--repair)", "(tick \u201cRepair invalid polygons\u201d)"),
-    ("choose one (--layer)", "choose one under \u201cLayer\u201d"),
-    ("(--source-crs)", "in \u201cCRS of the file\u201d"),
-    ("(--as-local)", "(tick \u201cCoordinates are site-grid metres\u201d)"),
-    ("--as-local", "\u201cCoordinates are site-grid metres\u201d"),
-)
-
-
-def web_wording(problem: str) -> str:
-    """geo_io speaks to the command line; name the form's fields instead."""
-    for cli, web in CLI_WORDING:
-        problem = problem.replace(cli, web)
-    return problem
 
 
 def gis_preview(path: Path, filename: str, reader: FormReader, model: dict) -> dict[str, Any]:
@@ -522,8 +474,6 @@ def gis_preview(path: Path, filename: str, reader: FormReader, model: dict) -> d
 
     Raises InputError for a file that cannot be used as it stands (the message says why).
     """
-    import pyogrio
-
     layers = geo_io.list_layers(path, filename=filename)
     if not layers:
         raise InputError("gis_file", f"{filename} holds no layer with geometry")
@@ -543,11 +493,7 @@ def gis_preview(path: Path, filename: str, reader: FormReader, model: dict) -> d
     if layer is None:
         preview["problem"] = f"{filename} has {len(layers)} layers; choose one and preview again."
         return preview
-    # Attribute columns of the chosen layer, read through geo_io's safe unpacking.
-    with geo_io._dataset(path, filename) as (local, kind):  # noqa: SLF001 - shared safe reader
-        layer_path = geo_io._layers_of(local, kind, filename)[layer]  # noqa: SLF001
-        info = pyogrio.read_info(layer_path, layer=None if kind == "zip" else layer)
-    preview["columns"] = [str(c) for c in info.get("fields", [])]
+    preview["columns"] = geo_io.layer_columns(path, filename=filename, layer=layer)
     features = geo_io.read_polygons(path, **_read_options(reader, filename, layer, model))
     preview["features"] = [
         {"name": f["name"], "weight": f.get("weight"), "area_m2": area_m2(f["geometry"])}
@@ -593,31 +539,6 @@ def uploaded_gis_file(reader: FormReader) -> Iterator[tuple[Path, str]]:
         yield path, filename
 
 
-def _import_answer(
-    request: Request,
-    db: sqlite_utils.Database,
-    project: StoredProject,
-    reader: FormReader,
-    preview: dict | None,
-    error: InputError | None,
-) -> Response:
-    """The preview area alone (htmx) or, without htmx, the page holding it."""
-    status = 422 if error else 200
-    context = PAGE.context(db, project, None)
-    context["preview"] = preview
-    context["import_error"] = error and {
-        "field": error.field,
-        "problem": web_wording(error.problem),
-    }
-    context["import_form"] = reader.values()
-    if is_htmx(request):
-        headers = {"HX-Retarget": "#site-import-preview", "HX-Reswap": "outerHTML"}
-        return render(
-            request, "_site_import_preview.html", context, status_code=status, headers=headers
-        )
-    return render(request, "site.html", context, status_code=status)
-
-
 @router.post("/projects/{project_id}/site/import/preview")
 def preview_gis(request: Request, project_id: int, form: PostedForm, db: Db) -> Response:
     project = get_project(db, project_id)
@@ -626,8 +547,8 @@ def preview_gis(request: Request, project_id: int, form: PostedForm, db: Db) -> 
         with uploaded_gis_file(reader) as (path, filename):
             preview = gis_preview(path, filename, reader, project.model)
     except InputError as exc:
-        return _import_answer(request, db, project, reader, None, exc)
-    return _import_answer(request, db, project, reader, preview, None)
+        return PAGE.answer_import(request, db, project, reader, IMPORT_AREA, exc)
+    return PAGE.answer_import(request, db, project, reader, IMPORT_AREA, None, preview=preview)
 
 
 @router.post("/projects/{project_id}/site/import")
@@ -653,7 +574,7 @@ def import_gis(request: Request, project_id: int, form: PostedForm, db: Db) -> R
                     f"{len(outside)} of them lie wholly outside the site: {', '.join(outside[:10])}"
                 )
     except InputError as exc:
-        return _import_answer(request, db, project, reader, None, exc)
+        return PAGE.answer_import(request, db, project, reader, IMPORT_AREA, exc)
 
     what = dict(IMPORT_ROLES)[role].lower()
     message = (
@@ -662,25 +583,14 @@ def import_gis(request: Request, project_id: int, form: PostedForm, db: Db) -> R
         else f"Imported {len(features)} {what} from {filename}"
         + (" (replacing the old ones)" if mode == "replace" else "")
     )
-
-    def edit(model: dict) -> str:
-        model.clear()
-        model.update(imported)
-        return message
-
-    result = run_edit(
+    return PAGE.save_import(
+        request,
         db,
-        project_id,
-        expected_revision_of(form),
-        edit,
-        own=OWN,
-        fallback="gis_file",
-        page_url=PAGE.url(project_id),
+        project,
+        reader,
+        IMPORT_AREA,
+        imported,
+        message,
+        file_field="gis_file",
+        warning=f"Note: {notes[0]}" if notes else "",
     )
-    if result.saved and notes:
-        result.notice = {"kind": "warning", "text": f"{result.notice['text']} Note: {notes[0]}."}
-    if result.refused and result.status_code == 422:
-        first = result.errors.problems[0]
-        error = InputError("gis_file", f"{first.label}: {first.problem}")
-        return _import_answer(request, db, project, reader, None, error)
-    return PAGE.answer(request, db, result)

@@ -6,6 +6,7 @@
 (function () {
   "use strict";
 
+  var LABELS_UP_TO = 30; // probes labelled at the first view
   var pendingPost = false; // a POST into #options is on its way: show its message as a flash
 
   function setFlash(kind, text) {
@@ -132,6 +133,16 @@
       group.addLayer(marker);
     });
     group.addTo(handle.map);
+    // Many probes: their labels would cover the map, so they show once zoomed in (the symbol's
+    // title names the probe meanwhile).
+    var container = handle.map.getContainer();
+    var crowded = (data.probes || []).length > LABELS_UP_TO;
+    var labelZoom = handle.map.getZoom() + 1;
+    function updateLabels() {
+      container.classList.toggle("pin-labels-off", crowded && handle.map.getZoom() < labelZoom);
+    }
+    handle.map.on("zoomend", updateLabels);
+    updateLabels();
     if (data.editable) {
       handle.map.getContainer().classList.add("is-editable");
       handle.onClick(function (point) {

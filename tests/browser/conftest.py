@@ -128,7 +128,7 @@ def page(browser):
     page.on(
         "console",
         lambda msg: (
-            errors.append(f"{msg.text} at {msg.location}")
+            errors.append(f"{msg.text[:80]} at {msg.location.get('url')}")
             if msg.type == "error" and "Content Security Policy" in msg.text
             else None
         ),
