@@ -203,7 +203,11 @@ async def user(
 async def run_load(base: str, pids: list[int], clients: int, seconds: float, think_s: float,
                    seed: int) -> tuple[Recorder, float]:  # fmt: skip
     rec = Recorder()
-    limits = httpx.Limits(max_connections=clients + 5, max_keepalive_connections=clients + 5)
+    # Idle connections are dropped by the client before uvicorn's own 5 s keep-alive timeout,
+    # so a request never races the server closing its connection (a browser would retry it).
+    limits = httpx.Limits(
+        max_connections=clients + 5, max_keepalive_connections=clients + 5, keepalive_expiry=2.0
+    )
     async with httpx.AsyncClient(base_url=base, timeout=60.0, limits=limits) as client:
         # warm every page and evaluation of every project once (JIT, caches), untimed
         for pid in pids:

@@ -14,7 +14,6 @@ it runs (a test checks that the overview answers meanwhile).
 
 from __future__ import annotations
 
-import contextlib
 import copy
 import logging
 import math
@@ -205,8 +204,12 @@ def run_optimiser_job(db: sqlite_utils.Database, job_id: int, project_id: int) -
 
 
 def finish(db: sqlite_utils.Database, job_id: int, status: str, message: str) -> None:
-    with contextlib.suppress(StoreError):  # already ended (a queued job cancelled at once)
+    try:
         update_job(db, job_id, status=status, message=message)
+    except StoreError:  # already ended (a queued job cancelled at once)
+        pass
+    except Exception:  # noqa: BLE001 - e.g. the server shutting down: the next start marks it
+        log.warning("could not record the end of optimiser job %s", job_id, exc_info=True)
 
 
 def start_optimiser(

@@ -181,6 +181,7 @@ def options_context(
     project_id: int,
     selected: str | None = None,
     result: EditResult | None = None,
+    add_method: str | None = None,
 ) -> dict[str, Any]:
     project = result.project if result is not None else get_project(db, project_id)
     context = page_context(
@@ -222,6 +223,7 @@ def options_context(
         layout_description=(layout or {}).get("description") or "",
         method_options=[(m["id"], f"{m['id']} \u2014 {m['name']}") for m in methods],
         method_ids=[m["id"] for m in methods],
+        add_method=add_method or "",
         method_labels={
             m["id"]: f"{m['name']} ({kind_label(m.get('kind', 'other'))})" for m in methods
         },
@@ -244,12 +246,13 @@ def answer(
     project_id: int,
     result: EditResult,
     selected: str | None,
+    add_method: str | None = None,
 ) -> Response:
     return render_action(
         request,
         "options.html",
         "_options.html",
-        lambda: options_context(db, project_id, selected, result),
+        lambda: options_context(db, project_id, selected, result, add_method),
         redirect_to=layout_url(project_id, selected),
         status_code=result.status_code,
     )
@@ -344,7 +347,7 @@ def add_probe(request: Request, project_id: int, db: Db, form: PostedForm) -> Re
         result = with_exclusion_warning(
             result, result.project.model, added["x"], added["y"], added["id"]
         )
-    return answer(request, db, project_id, result, name)
+    return answer(request, db, project_id, result, name, add_method=reader.raw("method"))
 
 
 @router.post("/projects/{project_id}/options/probes/update")

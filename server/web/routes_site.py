@@ -192,8 +192,17 @@ def build_map_data(model: dict, *, include_layouts: bool = True) -> dict[str, An
         for m in model.get("methods") or []
     }
 
-    def kind_of(method_id: str) -> str:
-        return methods.get(method_id, {}).get("kind", "other")
+    def probe(p: dict, depth_key: str) -> dict[str, Any]:
+        """A probe on the map, with its method's kind and its depth under ``depth_key``."""
+        kind = methods.get(p["method"], {}).get("kind", "other")
+        return {
+            "id": p["id"],
+            "method": p["method"],
+            "kind": kind,
+            "x": p["x"],
+            "y": p["y"],
+            depth_key: p.get(depth_key),
+        }
 
     def features(key: str, tag: str) -> list[dict[str, Any]]:
         out = []
@@ -211,17 +220,7 @@ def build_map_data(model: dict, *, include_layouts: bool = True) -> dict[str, An
     layouts = []
     if include_layouts:
         for layout in model.get("layouts") or []:
-            probes = [
-                {
-                    "id": p["id"],
-                    "method": p["method"],
-                    "kind": kind_of(p["method"]),
-                    "x": p["x"],
-                    "y": p["y"],
-                    "depth_m": p.get("depth_m"),
-                }
-                for p in layout.get("probes") or []
-            ]
+            probes = [probe(p, "depth_m") for p in layout.get("probes") or []]
             layouts.append({"name": layout["name"], "probes": probes})
     return {
         "crs": model.get("crs"),
@@ -231,17 +230,7 @@ def build_map_data(model: dict, *, include_layouts: bool = True) -> dict[str, An
         "zones": features("zones", "Z"),
         "areas": features("areas_of_interest", "A"),
         "exclusions": features("exclusions", "X"),
-        "existing": [
-            {
-                "id": p["id"],
-                "method": p["method"],
-                "kind": kind_of(p["method"]),
-                "x": p["x"],
-                "y": p["y"],
-                "final_depth_m": p.get("final_depth_m"),
-            }
-            for p in model.get("existing") or []
-        ],
+        "existing": [probe(p, "final_depth_m") for p in model.get("existing") or []],
         "layouts": layouts,
         "methods": methods,
     }

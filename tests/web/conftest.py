@@ -40,3 +40,24 @@ def empty_client(db_path: Path) -> Iterator[TestClient]:
 @pytest.fixture
 def tiny_bytes() -> bytes:
     return (DATA / "tiny-model.json").read_bytes()
+
+
+# ---------------------------------------------------------------- model-editing pages
+
+
+@pytest.fixture
+def tiny_id(client: TestClient, tiny_model: dict) -> int:
+    """Id of a fresh project holding tests/data/tiny-model.json (the demo is project 1)."""
+    from edit_helpers import add_project
+
+    return add_project(client, tiny_model)
+
+
+@pytest.fixture(params=["demo", "tiny"])
+def shown_project(request: pytest.FixtureRequest, client: TestClient, demo_model, tiny_model):
+    """(id, model) of the seeded demo project, then of a fresh tiny project."""
+    from edit_helpers import add_project
+
+    if request.param == "demo":
+        return 1, demo_model
+    return add_project(client, tiny_model), tiny_model

@@ -41,6 +41,12 @@ def last_message(client: TestClient, project_id: int) -> str:
     return answer.json()[-1]["message"]
 
 
+def page_form(revision: int, fields: dict, changes: dict) -> dict:
+    """A page's form as posted: the revision the page showed, its fields, then ``changes``
+    (as text) over them."""
+    return {"expected_revision": str(revision), **fields, **{k: str(v) for k, v in changes.items()}}
+
+
 def post(client: TestClient, url: str, data: dict, files=None, headers=None):
     """An htmx form post (as the page sends it)."""
     return client.post(
@@ -107,3 +113,11 @@ def assert_page_basics(page: str) -> None:
     assert " style=" not in page
     scripts = re.findall(r"<script(?![^>]*\bsrc=)([^>]*)>", page)
     assert all('type="application/json"' in attrs for attrs in scripts), scripts
+
+
+def page_text(client: TestClient, url: str) -> str:
+    """The HTML of a model page, checked to answer 200 with the basics (assert_page_basics)."""
+    page = client.get(url)
+    assert page.status_code == 200
+    assert_page_basics(page.text)
+    return page.text

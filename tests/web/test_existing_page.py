@@ -6,13 +6,14 @@ import pytest
 from edit_helpers import (
     add_project,
     assert_links_answer,
-    assert_page_basics,
     error_beside,
     input_value,
     last_message,
     map_data_of,
     model_of,
     notice_of,
+    page_form,
+    page_text,
     post,
     revision_of,
     text_of,
@@ -25,14 +26,8 @@ from server.web.routes_existing import guess_method, guess_unit
 EXISTING = "/projects/{}/existing"
 
 
-@pytest.fixture
-def tiny_id(client, tiny_model) -> int:
-    return add_project(client, tiny_model)
-
-
 def probe_form(probe: dict, revision: int, names: list[str], **changes) -> dict:
-    data = {
-        "expected_revision": str(revision),
+    fields = {
         "id": probe["id"],
         "method": probe["method"],
         "x": str(probe["x"]),
@@ -41,9 +36,8 @@ def probe_form(probe: dict, revision: int, names: list[str], **changes) -> dict:
     }
     for j, name in enumerate(names):
         depth = probe["observed"].get(name)
-        data[f"base_{j}"] = "" if depth is None else str(depth)
-    data.update({k: str(v) for k, v in changes.items()})
-    return data
+        fields[f"base_{j}"] = "" if depth is None else str(depth)
+    return page_form(revision, fields, changes)
 
 
 TINY_NAMES = ["Made ground", "Alluvial clay", "River gravel"]
@@ -52,14 +46,9 @@ TINY_NAMES = ["Made ground", "Alluvial clay", "River gravel"]
 # ---------------------------------------------------------------- the page
 
 
-@pytest.mark.parametrize("which", ["demo", "tiny"])
-def test_existing_page_lists_probes_on_a_map(client, tiny_model, demo_model, which):
-    model = demo_model if which == "demo" else tiny_model
-    project_id = 1 if which == "demo" else add_project(client, tiny_model)
-    page = client.get(EXISTING.format(project_id))
-    assert page.status_code == 200
-    text = page.text
-    assert_page_basics(text)
+def test_existing_page_lists_probes_on_a_map(client, shown_project):
+    project_id, model = shown_project
+    text = page_text(client, EXISTING.format(project_id))
     for probe in model["existing"]:
         assert probe["id"] in text
     assert len(map_data_of(text, "existing-map")["existing"]) == len(model["existing"])

@@ -9,12 +9,13 @@ import pytest
 from edit_helpers import (
     add_project,
     assert_links_answer,
-    assert_page_basics,
     error_beside,
     input_value,
     last_message,
     model_of,
     notice_of,
+    page_form,
+    page_text,
     post,
     revision_of,
 )
@@ -27,16 +28,10 @@ from server.web.edits import field_id
 GROUND = "/projects/{}/ground"
 
 
-@pytest.fixture
-def tiny_id(client, tiny_model) -> int:
-    return add_project(client, tiny_model)
-
-
 def unit_form(unit: dict, revision: int, **changes) -> dict:
     t = unit.get("thickness_m") or {}
     c = unit.get("correlation") or {}
-    data = {
-        "expected_revision": str(revision),
+    fields = {
         "name": unit["name"],
         "description": unit.get("description", ""),
         "min": str(t.get("min", "")),
@@ -46,21 +41,15 @@ def unit_form(unit: dict, revision: int, **changes) -> dict:
         "correlation_model": c.get("model", "exponential"),
         "range_m": str(c.get("range_m", "")),
     }
-    data.update({k: str(v) for k, v in changes.items()})
-    return data
+    return page_form(revision, fields, changes)
 
 
 # ---------------------------------------------------------------- the page
 
 
-@pytest.mark.parametrize("which", ["demo", "tiny"])
-def test_ground_page_answers_with_units_charts_and_caution(client, tiny_model, demo_model, which):
-    model = demo_model if which == "demo" else tiny_model
-    project_id = 1 if which == "demo" else add_project(client, tiny_model)
-    page = client.get(GROUND.format(project_id))
-    assert page.status_code == 200
-    text = page.text
-    assert_page_basics(text)
+def test_ground_page_answers_with_units_charts_and_caution(client, shown_project):
+    project_id, model = shown_project
+    text = page_text(client, GROUND.format(project_id))
     for i in range(len(model["units"]) - 1):
         assert f'/projects/{project_id}/charts/thickness/{i}.svg?rev=1"' in text
         assert input_value(text, field_id(f"units[{i}].thickness_m.max")) != ""

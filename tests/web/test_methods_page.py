@@ -4,14 +4,14 @@ from __future__ import annotations
 
 import pytest
 from edit_helpers import (
-    add_project,
     assert_links_answer,
-    assert_page_basics,
     error_beside,
     input_value,
     last_message,
     model_of,
     notice_of,
+    page_form,
+    page_text,
     post,
     revision_of,
 )
@@ -21,14 +21,8 @@ from server.web.edits import field_id
 METHODS = "/projects/{}/methods"
 
 
-@pytest.fixture
-def tiny_id(client, tiny_model) -> int:
-    return add_project(client, tiny_model)
-
-
 def method_form(method: dict, revision: int, **changes) -> dict:
-    data = {
-        "expected_revision": str(revision),
+    fields = {
         "id": method["id"],
         "name": method["name"],
         "kind": method["kind"],
@@ -39,22 +33,16 @@ def method_form(method: dict, revision: int, **changes) -> dict:
         "max_depth_m": str(method["max_depth_m"]),
         "embedment_m": str(method["embedment_m"]),
     }
-    data.update({k: str(v) for k, v in changes.items()})
-    return data
+    return page_form(revision, fields, changes)
 
 
 def with_refusal(data: dict, units: list[str]) -> dict:
     return {**data, "cannot_penetrate": units}
 
 
-@pytest.mark.parametrize("which", ["demo", "tiny"])
-def test_methods_page_shows_catalogue_precision_and_caution(client, tiny_model, demo_model, which):
-    model = demo_model if which == "demo" else tiny_model
-    project_id = 1 if which == "demo" else add_project(client, tiny_model)
-    page = client.get(METHODS.format(project_id))
-    assert page.status_code == 200
-    text = page.text
-    assert_page_basics(text)
+def test_methods_page_shows_catalogue_precision_and_caution(client, shown_project):
+    project_id, model = shown_project
+    text = page_text(client, METHODS.format(project_id))
     for k, method in enumerate(model["methods"]):
         assert input_value(text, field_id(f"methods[{k}].id")) == method["id"]
         for name in model["units"][:-1]:
@@ -164,14 +152,13 @@ def test_bad_new_method_keeps_the_draft(client, tiny_id, tiny_model):
 
 
 def precision_form(model: dict, revision: int, **changes) -> dict:
-    data = {"expected_revision": str(revision)}
+    fields = {}
     names = [u["name"] for u in model["units"][:-1]]
     for k, method in enumerate(model["methods"]):
         for j, name in enumerate(names):
             value = method["precision_m"].get(name)
-            data[f"precision_{k}_{j}"] = "" if value is None else str(value)
-    data.update({k: str(v) for k, v in changes.items()})
-    return data
+            fields[f"precision_{k}_{j}"] = "" if value is None else str(value)
+    return page_form(revision, fields, changes)
 
 
 def test_precision_table_blank_means_not_resolved(client, tiny_id, tiny_model):

@@ -10,13 +10,14 @@ import pytest
 from edit_helpers import (
     add_project,
     assert_links_answer,
-    assert_page_basics,
     error_beside,
     input_value,
     last_message,
     map_data_of,
     model_of,
     notice_of,
+    page_form,
+    page_text,
     post,
     revision_of,
 )
@@ -28,33 +29,21 @@ from server.web.routes_site import parse_polygon_text, polygon_text
 SITE = "/projects/{}/site"
 
 
-@pytest.fixture
-def tiny_id(client, tiny_model) -> int:
-    return add_project(client, tiny_model)
-
-
 def settings(model: dict, revision: int, **changes) -> dict:
-    data = {
-        "expected_revision": str(revision),
+    fields = {
         "name": model["name"],
         "crs": model.get("crs") or "",
         "grid_spacing_m": str(model["grid_spacing_m"]),
     }
-    data.update({k: str(v) for k, v in changes.items()})
-    return data
+    return page_form(revision, fields, changes)
 
 
 # ---------------------------------------------------------------- the page
 
 
-@pytest.mark.parametrize("which", ["demo", "tiny"])
-def test_site_page_answers_with_map_caution_and_links(client, tiny_model, demo_model, which):
-    model = demo_model if which == "demo" else tiny_model
-    project_id = 1 if which == "demo" else add_project(client, tiny_model)
-    page = client.get(SITE.format(project_id))
-    assert page.status_code == 200
-    text = page.text
-    assert_page_basics(text)
+def test_site_page_answers_with_map_caution_and_links(client, shown_project):
+    project_id, model = shown_project
+    text = page_text(client, SITE.format(project_id))
     assert 'id="site"' in text and 'aria-current="page"' in text
     data = map_data_of(text, "site-map")
     assert data["site"]["type"] in ("Polygon", "MultiPolygon")
