@@ -476,8 +476,21 @@ def _size_problems(data: object) -> Iterator[InputError]:
                 )
 
 
+_SURROGATE = "holds a lone surrogate escape (such as \\ud800), which is not valid Unicode text"
+
+
+def _is_unicode(text: str) -> bool:
+    """False for text that cannot be written as UTF-8 (a lone surrogate from a JSON escape)."""
+    try:
+        text.encode("utf-8")
+    except UnicodeEncodeError:
+        return False
+    return True
+
+
 def _raw_problems(data: object) -> Iterator[tuple[InputError, bool]]:
-    """Non-finite floats anywhere (json.loads accepts NaN/Infinity), over-deep or huge files.
+    """Non-finite floats and non-Unicode text anywhere (json.loads accepts NaN, Infinity and
+    lone surrogate escapes), over-deep or huge files.
 
     Yields (problem, fatal). Iterative walk in document order; a too-deep or too-large file
     is fatal and stops the walk.
@@ -497,7 +510,13 @@ def _raw_problems(data: object) -> Iterator[tuple[InputError, bool]]:
         if isinstance(value, float) and not math.isfinite(value):
             problem = "must be a finite number (not NaN or Infinity)"
             yield InputError(_path(parts) or "MODEL", problem), False
+        elif isinstance(value, str) and not _is_unicode(value):
+            yield InputError(_path(parts) or "MODEL", _SURROGATE), False
         elif isinstance(value, dict):
+            bad_keys = [k for k in value if isinstance(k, str) and not _is_unicode(k)]
+            if bad_keys:
+                yield InputError(_path(parts) or "MODEL", f"a key {_SURROGATE}"), True
+                return
             stack.extend((v, (*parts, k)) for k, v in reversed(list(value.items())))
         elif isinstance(value, list | tuple):
             stack.extend((v, (*parts, i)) for i, v in reversed(list(enumerate(value))))

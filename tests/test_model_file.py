@@ -704,3 +704,23 @@ def test_equal_observed_depths_record_an_absent_unit(tiny_model):
     """A unit may be absent at a probe (thickness min 0): equal base depths are valid."""
     tiny_model["existing"][0]["observed"]["Alluvial clay"] = 1.1  # same as Made ground
     validate_model(tiny_model)
+
+
+@pytest.mark.parametrize(
+    ("where", "field"),
+    [
+        (lambda m: m.__setitem__("name", "bad \ud800"), "name"),
+        (lambda m: m["units"][1].__setitem__("name", "Alluvial \udc00"), "units[1].name"),
+        (
+            lambda m: m["zones"][0].__setitem__("units", {"Clay \udc00": {}}),
+            "zones[0].units",
+        ),
+    ],
+)
+def test_lone_surrogate_text_is_refused(tiny_model, where, field):
+    """JSON accepts escapes like \\ud800 that are not Unicode text; they must not be stored."""
+    where(tiny_model)
+    with pytest.raises(InputError) as err:
+        validate_model(tiny_model)
+    assert err.value.field == field
+    assert "not valid Unicode" in err.value.problem

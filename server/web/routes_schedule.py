@@ -5,7 +5,7 @@ kept out of tables and figures, navigation and buttons hidden): a header with th
 the date and the revision; the probe table (id, method, coordinates, target depth, the
 boundaries each probe is expected to reveal, its estimated cost); cost and duration by method;
 the site plan and the uncertainty map after the option; a justification written from the
-numbers (server/web/justify.py); and the caution.
+numbers (server/schedule.py, server/justification.py); and the caution.
 """
 
 from __future__ import annotations
@@ -21,25 +21,15 @@ import sqlite_utils
 from fastapi import APIRouter, Request
 from starlette.responses import Response
 
-from server.core.evaluate import LayoutResult
 from server.errors import InputError
-from server.exports import (
-    schedule_rows,
-    write_schedule_csv,
-    write_schedule_geojson,
-    write_schedule_gpkg,
-)
+from server.exports import write_schedule_csv, write_schedule_geojson, write_schedule_gpkg
+from server.schedule import Schedule, build_schedule, main_boundary_index, probe_rows
 from server.store import get_project
 from server.web import plots
 from server.web.deps import Db
 from server.web.downloads import attachment_headers, slug_of
 from server.web.evaluation_cache import ProjectResults, project_results, results_of
-from server.web.justify import (
-    MainBoundary,
-    OptionFigures,
-    justification,
-    register_template_filters,
-)
+from server.web.justify import register_template_filters
 from server.web.routes_compare import (
     chosen_layout,
     current_revision_named,
@@ -56,82 +46,18 @@ register_template_filters()
 PAPERS = {"a4": "A4", "letter": "Letter"}
 
 
-def main_boundary_index(entry: ProjectResults) -> int | None:
-    """The boundary of interest with the greatest weight (the first such, top down)."""
-    boi = entry.project.ground.boundaries_of_interest
-    if not boi:
-        return None
-    return max(boi, key=lambda b: (b.weight, -b.boundary)).boundary
-
-
-def probe_dicts(entry: ProjectResults, result: LayoutResult) -> list[dict[str, Any]]:
-    """The layout's planned probes as ``evaluate --json`` prints them, with their target."""
-    names = entry.project.ground.boundary_names
-    return [
-        {
-            "id": plan.probe.id,
-            "method": plan.probe.method,
-            "x": plan.probe.x,
-            "y": plan.probe.y,
-            "depth_m": plan.depth_m,
-            "observes": [names[k] for k in plan.observes],
-            "target": names[plan.target] if plan.target is not None else None,
-        }
-        for plan in result.plans
-    ]
-
-
-def figures_of(entry: ProjectResults, name: str, main: int | None) -> OptionFigures:
-    result = entry.result_named(name)
-    metrics = None
-    if main is not None:
-        metrics = result.boundaries[entry.project.ground.boundary_names[main]]
-    return OptionFigures(
-        name=name,
-        cost=result.cost,
-        duration_days=result.duration_days,
-        n_probes=len(result.plans),
-        metres=result.metres,
-        gain_bits=result.information_gain_bits,
-        width_m=metrics.width90_mean_m if metrics else None,
-        confident=metrics.confident_fraction if metrics else None,
+def schedule_of(entry: ProjectResults, chosen: str) -> Schedule:
+    """The schedule of one layout from the revision's cached results (built once per layout)."""
+    return entry.memo(
+        ("schedule", chosen),
+        lambda: build_schedule(
+            entry.project,
+            chosen,
+            evaluator=entry.evaluator,
+            ranking=entry.ranking(),
+            results=entry.results(),
+        ),
     )
-
-
-def justification_of(entry: ProjectResults, chosen: str) -> list[str]:
-    main = main_boundary_index(entry)
-    main_info = None
-    if main is not None:
-        name = entry.project.ground.boundary_names[main]
-        base = entry.evaluator.baseline.boundaries[name]
-        tolerance = next(
-            b.tolerance_m for b in entry.project.ground.boundaries_of_interest if b.boundary == main
-        )
-        main_info = MainBoundary(name, tolerance, base.width90_mean_m, base.confident_fraction)
-    others = [figures_of(entry, n, main) for n in entry.layout_names if n != chosen]
-    return justification(figures_of(entry, chosen, main), main_info, others, entry.project.currency)
-
-
-def method_rows(entry: ProjectResults, result: LayoutResult) -> list[dict[str, Any]]:
-    rows = []
-    for method_id, totals in result.by_method.items():
-        m = entry.project.methods[method_id]
-        rows.append(
-            {
-                "id": method_id,
-                "name": m.name,
-                "kind": kind_label(m.kind),
-                "count": totals.count,
-                "metres": totals.metres,
-                "mobilisation": m.mobilisation,
-                "locations_cost": m.per_location * totals.count,
-                "metres_cost": m.per_metre * totals.metres,
-                "cost": totals.cost,
-                "days": totals.duration_days,
-                "rate": m.metres_per_day,
-            }
-        )
-    return rows
 
 
 def schedule_context(
@@ -156,23 +82,21 @@ def schedule_context(
     chosen = chosen_layout(entry, wanted)
     if chosen is None:
         return context
-    result = entry.result_named(chosen)
-    rows = schedule_rows(probe_dicts(entry, result), entry.model)
-    refusals = {plan.probe.id for plan in result.plans if plan.refuses}
-    main = main_boundary_index(entry)
-    names = entry.project.ground.boundary_names
+    schedule = schedule_of(entry, chosen)
+    main = main_boundary_index(entry.project)
     query = {"layout": chosen, "rev": str(project.revision)}
     base = f"/projects/{project_id}"
     layout_doc = next(lay for lay in entry.model.get("layouts") or [] if lay["name"] == chosen)
     context.update(
         chosen=chosen,
         layout_description=layout_doc.get("description") or "",
-        result=result,
-        rows=rows,
-        refusals=refusals,
-        methods=method_rows(entry, result),
-        justification=justification_of(entry, chosen),
-        main_boundary=names[main] if main is not None else None,
+        schedule=schedule,
+        result=schedule.totals,
+        rows=schedule.probes,
+        refusals=schedule.refusals,
+        methods=schedule.methods,
+        justification=list(schedule.justification),
+        main_boundary=schedule.main_boundary,
         plan_src=f"{base}/schedule/plan.png?{urlencode(query)}",
         map_src=(
             f"{base}/compare/map.png?{urlencode({**query, 'boundary': main, 'quantity': 'width'})}"
@@ -233,8 +157,7 @@ def schedule_download_rows(
     chosen = chosen_layout(entry, layout)
     if chosen is None:
         raise InputError("layout", "the project has no layout to schedule")
-    result = entry.result_named(chosen)
-    return entry, chosen, schedule_rows(probe_dicts(entry, result), entry.model)
+    return entry, chosen, probe_rows(entry.project, entry.result_named(chosen))
 
 
 def download_name(entry: ProjectResults, layout: str, suffix: str) -> str:

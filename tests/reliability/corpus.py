@@ -176,7 +176,7 @@ API_CASES = [
     api_create("api-empty-body", b"", "body", ""),
     api_create("api-nested-deep", lambda: nested_bytes(100_000), "body", "nested too deeply"),
     api_create("api-digits", b"1" + b"0" * 5000, "body", "too many digits"),
-    api_create("api-lone-surrogate", lone_surrogate_bytes(), "body", "not valid Unicode"),
+    api_create("api-lone-surrogate", lone_surrogate_bytes(), "name", "not valid Unicode"),
     # missing fields
     api_create("api-missing-site", mutated("site", DELETE), "site", "is required"),
     api_create("api-missing-units", mutated("units", DELETE), "units", "is required"),
@@ -1083,6 +1083,13 @@ CLI_CASES = [
         ["posterior", "{dir}/model.json", "--at", "5,5", "--layout", "Nine boreholes"],
         with_tiny(),
         "--layout",
+    ),
+    cli(
+        "cli-evaluate-lone-surrogate",
+        ["evaluate", "{dir}/m.json"],
+        {"m.json": model_bytes(TINY).replace(b'"Tiny example', b'"\\ud800 Tiny example')},
+        "name",
+        "not valid Unicode",
     ),
     cli("cli-unknown-command", ["dig"], None, "dig", "invalid choice"),
     cli("cli-serve-port-text", ["serve", "--port", "eighty"], None, "--port"),

@@ -1,0 +1,345 @@
+"""The scoping schedule of one layout, built from the numbers: shared by the web page and the CLI.
+
+DESIGN.md workflow step 7. From a core Project and its evaluation results: the probe list
+(target depth, the boundaries each probe is expected to reveal, its cost), the cost and
+duration by method, the totals, and the justification written from the numbers
+(``server.justification``). Nothing here knows of a database, a request or a template:
+``build_schedule`` takes the project and, optionally, results already computed (the web
+passes its per-revision cache; the CLI lets it compute them).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass
+from typing import Any
+
+from server.core.evaluate import GridEvaluator, LayoutResult, with_pareto
+from server.core.grid import EmptyGridError
+from server.core.model import Project
+from server.core.options import RankedOption, rank_options
+from server.errors import InputError
+from server.exports import CAUTION, schedule_rows
+from server.justification import MainBoundary, OptionFigures, justification
+
+
+@dataclass(frozen=True)
+class MethodRow:
+    """One method's share of the layout: probes, metres, the cost split and the days."""
+
+    id: str
+    name: str
+    kind: str
+    count: int
+    metres: float
+    mobilisation: float
+    locations_cost: float  # per location x probes
+    metres_cost: float  # per metre x metres
+    cost: float
+    duration_days: float
+    metres_per_day: float
+
+
+@dataclass(frozen=True)
+class Totals:
+    """The layout as a whole; ``cost`` includes every method's mobilisation once."""
+
+    probes: int
+    metres: float
+    cost: float
+    duration_days: float
+    mobilisation: float
+    locations_cost: float
+    metres_cost: float
+    information_gain_bits: float
+    gain_per_cost: float | None
+    pareto: bool
+
+
+@dataclass(frozen=True)
+class Schedule:
+    """The scoping schedule of one layout.
+
+    ``probes`` are the rows ``server.exports`` writes (``schedule_rows``: id, method,
+    method_name, kind, x, y, depth_m, target ("" when none), observes, cost without
+    mobilisation); ``refusals`` the ids of probes expected to stop on a unit they cannot
+    penetrate; ``main_boundary`` the boundary of interest the justification speaks of.
+    """
+
+    project_name: str
+    currency: str
+    crs: str | None
+    layout_name: str
+    probes: tuple[dict[str, Any], ...]
+    refusals: frozenset[str]
+    methods: tuple[MethodRow, ...]
+    totals: Totals
+    main_boundary: str | None
+    justification: tuple[str, ...]
+    caution: str = CAUTION
+
+
+# ---------------------------------------------------------------- parts
+
+
+def main_boundary_index(project: Project) -> int | None:
+    """The boundary of interest with the greatest weight (the first such, top down)."""
+    boi = project.ground.boundaries_of_interest
+    if not boi:
+        return None
+    return max(boi, key=lambda b: (b.weight, -b.boundary)).boundary
+
+
+def probe_dicts(project: Project, result: LayoutResult) -> list[dict[str, Any]]:
+    """The layout's planned probes as ``evaluate --json`` prints them, with their target."""
+    names = project.ground.boundary_names
+    return [
+        {
+            "id": plan.probe.id,
+            "method": plan.probe.method,
+            "x": plan.probe.x,
+            "y": plan.probe.y,
+            "depth_m": plan.depth_m,
+            "observes": [names[k] for k in plan.observes],
+            "target": names[plan.target] if plan.target is not None else None,
+        }
+        for plan in result.plans
+    ]
+
+
+def methods_document(project: Project) -> dict[str, Any]:
+    """The project's methods in the model file's shape, as ``schedule_rows`` reads them."""
+    return {
+        "methods": [
+            {
+                "id": m.id,
+                "name": m.name,
+                "kind": m.kind,
+                "cost": {"per_location": m.per_location, "per_metre": m.per_metre},
+            }
+            for m in project.methods.values()
+        ]
+    }
+
+
+def probe_rows(project: Project, result: LayoutResult) -> list[dict[str, Any]]:
+    """The schedule rows of a layout (what the CSV, GeoJSON and GeoPackage exports hold)."""
+    return schedule_rows(probe_dicts(project, result), methods_document(project))
+
+
+def method_rows(project: Project, result: LayoutResult) -> list[MethodRow]:
+    """Cost and duration by method, in the order the methods first appear in the layout."""
+    rows = []
+    for method_id, totals in result.by_method.items():
+        m = project.methods[method_id]
+        rows.append(
+            MethodRow(
+                id=method_id,
+                name=m.name,
+                kind=m.kind,
+                count=totals.count,
+                metres=totals.metres,
+                mobilisation=m.mobilisation,
+                locations_cost=m.per_location * totals.count,
+                metres_cost=m.per_metre * totals.metres,
+                cost=totals.cost,
+                duration_days=totals.duration_days,
+                metres_per_day=m.metres_per_day,
+            )
+        )
+    return rows
+
+
+def totals_of(result: LayoutResult, methods: Sequence[MethodRow]) -> Totals:
+    return Totals(
+        probes=len(result.plans),
+        metres=result.metres,
+        cost=result.cost,
+        duration_days=result.duration_days,
+        mobilisation=sum(m.mobilisation for m in methods),
+        locations_cost=sum(m.locations_cost for m in methods),
+        metres_cost=sum(m.metres_cost for m in methods),
+        information_gain_bits=result.information_gain_bits,
+        gain_per_cost=result.gain_per_cost,
+        pareto=result.pareto,
+    )
+
+
+def figures_of(project: Project, result: LayoutResult, main: int | None) -> OptionFigures:
+    """What the justification needs of one option."""
+    metrics = None
+    if main is not None:
+        metrics = result.boundaries[project.ground.boundary_names[main]]
+    return OptionFigures(
+        name=result.name,
+        cost=result.cost,
+        duration_days=result.duration_days,
+        n_probes=len(result.plans),
+        metres=result.metres,
+        gain_bits=result.information_gain_bits,
+        width_m=metrics.width90_mean_m if metrics else None,
+        confident=metrics.confident_fraction if metrics else None,
+    )
+
+
+def justification_of(
+    project: Project,
+    evaluator: GridEvaluator,
+    results: Sequence[LayoutResult],
+    chosen: str,
+) -> list[str]:
+    """The justification of ``chosen`` against the existing probes and the other layouts."""
+    main = main_boundary_index(project)
+    main_info = None
+    if main is not None:
+        name = project.ground.boundary_names[main]
+        base = evaluator.baseline.boundaries[name]
+        tolerance = next(
+            b.tolerance_m for b in project.ground.boundaries_of_interest if b.boundary == main
+        )
+        main_info = MainBoundary(name, tolerance, base.width90_mean_m, base.confident_fraction)
+    by_name = {r.name: r for r in results}
+    others = [figures_of(project, r, main) for r in results if r.name != chosen]
+    return justification(
+        figures_of(project, by_name[chosen], main), main_info, others, project.currency
+    )
+
+
+def default_layout_name(project: Project, ranking: Sequence[RankedOption]) -> str | None:
+    """The option shown first: the Pareto-efficient one that buys the most information per
+    unit cost (the cheapest of equals), else the first layout; None without layouts."""
+    if not project.layouts:
+        return None
+    efficient = [o for o in ranking if o.pareto and o.gain_per_cost is not None]
+    if efficient:
+        return max(efficient, key=lambda o: o.gain_per_cost).name
+    return project.layouts[0].name
+
+
+def evaluator_of(project: Project) -> GridEvaluator:
+    """The baseline on the evaluation grid; an empty grid is bad input (InputError)."""
+    try:
+        return GridEvaluator(project)
+    except EmptyGridError as exc:
+        raise InputError("grid_spacing_m", str(exc)) from None
+
+
+# ---------------------------------------------------------------- the schedule
+
+
+def build_schedule(
+    project: Project,
+    layout_name: str | None = None,
+    evaluator: GridEvaluator | None = None,
+    ranking: Sequence[RankedOption] | None = None,
+    results: Sequence[LayoutResult] | None = None,
+) -> Schedule:
+    """The scoping schedule of one of the project's layouts.
+
+    Parameters
+    ----------
+    project : Project
+    layout_name : str, optional
+        The layout to schedule; default ``default_layout_name`` (the best value).
+    evaluator : GridEvaluator, optional
+        The project's baseline on its grid, reused when given.
+    ranking : sequence of RankedOption, optional
+        The project's layouts ranked (``rank_options``), reused when given; only needed to
+        choose the default layout.
+    results : sequence of LayoutResult, optional
+        Every layout's results with Pareto flags set among them (``with_pareto``), reused
+        when given; the justification compares the layout with all the others.
+
+    Raises
+    ------
+    InputError
+        No layout, no layout of that name, or an empty evaluation grid.
+    """
+    if not project.layouts:
+        raise InputError("layout", "the project has no layout to schedule")
+    names = [layout.name for layout in project.layouts]
+    if layout_name is not None and layout_name not in names:
+        known = ", ".join(repr(n) for n in names)
+        raise InputError("layout", f"no layout named {layout_name!r}; layouts are: {known}")
+    if evaluator is None:
+        evaluator = evaluator_of(project)
+    if results is None:
+        results = with_pareto([evaluator.evaluate_layout(lay) for lay in project.layouts])
+    if layout_name is None:
+        if ranking is None:
+            ranking = rank_options(
+                project,
+                project.layouts,
+                dict.fromkeys(names, "hand"),  # kinds do not enter the choice
+                evaluator=evaluator,
+                known={r.name: r for r in results},
+            )
+        layout_name = default_layout_name(project, ranking)
+    result = next(r for r in results if r.name == layout_name)
+    methods = method_rows(project, result)
+    main = main_boundary_index(project)
+    return Schedule(
+        project_name=project.name,
+        currency=project.currency,
+        crs=project.crs,
+        layout_name=result.name,
+        probes=tuple(probe_rows(project, result)),
+        refusals=frozenset(plan.probe.id for plan in result.plans if plan.refuses),
+        methods=tuple(methods),
+        totals=totals_of(result, methods),
+        main_boundary=project.ground.boundary_names[main] if main is not None else None,
+        justification=tuple(justification_of(project, evaluator, results, result.name)),
+    )
+
+
+def schedule_json(schedule: Schedule) -> dict[str, Any]:
+    """The schedule as a JSON document (``probewise schedule --format json``).
+
+    ``probes`` carry evaluate's fields (id, method, x, y, depth_m, observes) plus target
+    (None when none), method_name, kind, cost (mobilisation excluded) and refuses.
+    """
+    probes = []
+    for row in schedule.probes:
+        probe = dict(row, target=row.get("target") or None)
+        probe["observes"] = list(row["observes"])
+        probe["refuses"] = row["id"] in schedule.refusals
+        probes.append(probe)
+    t = schedule.totals
+    return {
+        "project": schedule.project_name,
+        "layout": schedule.layout_name,
+        "currency": schedule.currency,
+        "crs": schedule.crs,
+        "probes": probes,
+        "by_method": [
+            {
+                "id": m.id,
+                "name": m.name,
+                "kind": m.kind,
+                "probes": m.count,
+                "metres": m.metres,
+                "mobilisation": m.mobilisation,
+                "locations_cost": m.locations_cost,
+                "metres_cost": m.metres_cost,
+                "cost": m.cost,
+                "duration_days": m.duration_days,
+                "metres_per_day": m.metres_per_day,
+            }
+            for m in schedule.methods
+        ],
+        "totals": {
+            "probes": t.probes,
+            "metres": t.metres,
+            "cost": t.cost,
+            "duration_days": t.duration_days,
+            "mobilisation": t.mobilisation,
+            "locations_cost": t.locations_cost,
+            "metres_cost": t.metres_cost,
+            "information_gain_bits": t.information_gain_bits,
+            "gain_per_cost": t.gain_per_cost,
+            "pareto": t.pareto,
+        },
+        "main_boundary": schedule.main_boundary,
+        "justification": list(schedule.justification),
+        "caution": schedule.caution,
+    }
