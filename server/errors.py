@@ -11,3 +11,13 @@ class InputError(ValueError):
         self.field = field
         self.problem = problem
         super().__init__(f"{field}: {problem}" if field else problem)
+
+
+class OptionNeededError(InputError):
+    """Bad input that one of a file reader's options resolves; ``option`` is that option's
+    keyword argument (``"repair"`` for ``repair=True``), so each caller can name its own
+    control for it (the command line a flag, a web form a field). The message stays neutral."""
+
+    def __init__(self, field: str, problem: str, option: str):
+        super().__init__(field, problem)
+        self.option = option

@@ -27,7 +27,7 @@ from contextlib import contextmanager
 from pathlib import Path, PurePosixPath
 from typing import Any
 
-from server.errors import InputError
+from server.errors import InputError, OptionNeededError
 
 ROLE_KEYS = {
     "site": "site",
@@ -52,16 +52,6 @@ _KINDS = {
 }
 _KIND_LABELS = {"geojson": "GeoJSON", "gpkg": "GeoPackage", "shp": "Shapefile"}
 _POLYGONAL = ("Polygon", "MultiPolygon")
-
-
-class OptionNeededError(InputError):
-    """Bad input that one of the reader's options resolves; ``option`` is that option's
-    keyword argument (``"repair"`` for ``repair=True``), so each caller can name its own
-    control for it (the command line a flag, a web form a field). The message stays neutral."""
-
-    def __init__(self, field: str, problem: str, option: str):
-        super().__init__(field, problem)
-        self.option = option
 
 
 # ---------------------------------------------------------------------------------------------
@@ -241,9 +231,18 @@ def _layers_of(path: Path, kind: str, filename: str) -> dict[str, Path]:
     return {str(name): path for name, geom_type in info if geom_type is not None}
 
 
+_UPLOAD_NAME = re.compile(r"'upload\.\w+' ")  # the name an upload is saved under here
+_TEMP_FOLDER = re.compile(re.escape(tempfile.gettempdir()) + r"/probewise-gis-[^/\s]*/")
+
+
 def _first_line(exc: BaseException) -> str:
-    text = str(exc).strip().splitlines()
-    return text[0] if text else type(exc).__name__
+    """The first line of a reader's message, without the private temporary folder an upload
+    was unpacked into (the user knows the file by its own name)."""
+    text = _TEMP_FOLDER.sub("", str(exc)).strip().splitlines()
+    line = text[0] if text else type(exc).__name__
+    # GDAL's advice on driver prefixes speaks to programmers, not to the user of a form
+    line = line.split("; It might help")[0].replace("not recognized as being in", "not in")
+    return _UPLOAD_NAME.sub("the file is ", line)
 
 
 def list_layers(path_or_bytes: str | Path | bytes, *, filename: str | None = None) -> list[str]:

@@ -27,8 +27,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from server.errors import InputError
-from server.geo_io import OptionNeededError
+from server.errors import InputError, OptionNeededError
 
 # Depths closer than this (m) count as equal: a layer ending at the final depth, order checks.
 DEPTH_TOL_M = 1e-6

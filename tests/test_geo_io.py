@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import json
 import stat
+import tempfile
 import zipfile
 
 import geopandas
@@ -408,3 +409,12 @@ def test_site_that_leaves_probes_outside_is_refused(tiny_model):
     small = [{"name": "a", "geometry": mapping(box(0, 0, 50, 50))}]
     with pytest.raises(InputError, match="outside the site"):
         apply_polygons(tiny_model, "site", small)
+
+
+def test_unreadable_upload_message_names_the_users_file_only():
+    """The reader's message must not show the private temporary folder or file name."""
+    with pytest.raises(InputError) as err:
+        read_polygons(b"{not json", filename="plan.geojson", target_crs=None, assume_local=True)
+    text = str(err.value)
+    assert text.startswith("plan.geojson: cannot be read as GeoJSON")
+    assert "upload." not in text and tempfile.gettempdir() not in text

@@ -16,7 +16,7 @@ from pathlib import Path
 from server.commands.export import read_model, write_model
 from server.errors import InputError
 
-# The flag that sets each reader option a message calls for (geo_io.OptionNeededError).
+# The flag that sets each reader option a message calls for (server.errors.OptionNeededError).
 OPTION_FLAGS = {
     "layer": "--layer",
     "repair": "--repair",
@@ -59,8 +59,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
+    from server.errors import OptionNeededError
     from server.geo_io import (
-        OptionNeededError,
         apply_polygons,
         check_project_crs,
         features_outside_site,

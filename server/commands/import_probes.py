@@ -19,7 +19,7 @@ from server.commands.export import parse_pairs, read_model, write_model
 from server.errors import InputError
 
 FORMAT_SUFFIXES = {".csv": "csv", ".txt": "csv", ".xlsx": "xlsx", ".ags": "ags4"}
-# The flags that set each reader option a message calls for (geo_io.OptionNeededError).
+# The flags that set each reader option a message calls for (server.errors.OptionNeededError).
 OPTION_FLAGS = {
     "leave_outside": "--leave-outside",
     "method_by_type": "--method-for TYPE=METHOD, or --default-method",
@@ -137,7 +137,7 @@ def _print_probes(probes: list[dict], outside: list[str]) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    from server.geo_io import OptionNeededError
+    from server.errors import OptionNeededError
 
     try:
         return _run(args)

@@ -93,6 +93,29 @@ def get_job(db: sqlite_utils.Database, job_id: int) -> Job:
         return _job_from_row(_job_row(db, job_id))
 
 
+def list_jobs(
+    db: sqlite_utils.Database,
+    project_id: int | None = None,
+    kind: str | None = None,
+    limit: int = 20,
+) -> list[Job]:
+    """Jobs, newest first, of one project and/or one kind when given; at most ``limit``."""
+    if limit < 1:
+        raise ValueError(f"limit must be at least 1, not {limit}")
+    where, params = [], []
+    if project_id is not None:
+        where.append("project_id = ?")
+        params.append(project_id)
+    if kind is not None:
+        where.append("kind = ?")
+        params.append(kind)
+    with read_snapshot(db):
+        rows = db["jobs"].rows_where(
+            " AND ".join(where) or None, params, order_by="id DESC", limit=int(limit)
+        )
+        return [_job_from_row(row) for row in rows]
+
+
 def update_job(
     db: sqlite_utils.Database,
     job_id: int,

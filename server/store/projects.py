@@ -46,12 +46,15 @@ class ProjectSummary:
 
 @dataclass(frozen=True)
 class StoredProject:
+    """A project's current state; ``can_undo`` is False when undo would raise NothingToUndo."""
+
     id: int
     name: str
     revision: int
     updated_at: str
     model: dict
     deleted: bool = False
+    can_undo: bool = False
 
 
 @dataclass(frozen=True)
@@ -96,6 +99,12 @@ def _revision_row(db: sqlite_utils.Database, project_id: int, number: int) -> di
     if not rows:
         raise RevisionNotFound(f"project {project_id} has no revision {number}")
     return rows[0]
+
+
+def _undo_to(head: dict[str, Any]) -> int | None:
+    """The undo rule (see the module docstring): the revision an undo at revision row ``head``
+    restores, or None when ``head`` starts the project's history (nothing to undo)."""
+    return head["undo_to"]
 
 
 def _check_expected(row: dict[str, Any], expected_revision: int | None) -> None:
@@ -199,6 +208,7 @@ def get_project(db: sqlite_utils.Database, project_id: int) -> StoredProject:
         updated_at=row["updated_at"],
         model=json.loads(rev["model"]),
         deleted=row["deleted_at"] is not None,
+        can_undo=_undo_to(rev) is not None,
     )
 
 
@@ -239,11 +249,12 @@ def undo(db: sqlite_utils.Database, project_id: int, expected_revision: int | No
         _check_expected(row, expected_revision)
         head_number = row["revision"]
         head = _revision_row(db, project_id, head_number)
-        if head["undo_to"] is None:
+        target_number = _undo_to(head)
+        if target_number is None:
             raise NothingToUndo(
                 f"nothing to undo: revision {head_number} is the start of this project's history"
             )
-        target = _revision_row(db, project_id, head["undo_to"])
+        target = _revision_row(db, project_id, target_number)
         model = _validate(json.loads(target["model"]))
         return _append_revision(
             db,
@@ -256,6 +267,18 @@ def undo(db: sqlite_utils.Database, project_id: int, expected_revision: int | No
             undo_label=target["undo_label"],
             restored_from=target["number"],
         )
+
+
+def can_undo(db: sqlite_utils.Database, project_id: int) -> bool:
+    """True exactly when ``undo`` would not raise NothingToUndo: the current revision has an
+    edit (a save, a restore, or an undo that can go further back) to take back.
+
+    Whether the project is deleted does not enter (undo then raises ProjectDeleted; pages
+    hide their edit controls for deleted projects).
+    """
+    with read_snapshot(db):
+        row = _project_row(db, project_id)
+        return _undo_to(_revision_row(db, project_id, row["revision"])) is not None
 
 
 def list_revisions(db: sqlite_utils.Database, project_id: int) -> list[RevisionInfo]:

@@ -468,11 +468,6 @@ def last_change(db: sqlite_utils.Database, project_id: int) -> str:
 # ---------------------------------------------------------------- small shared edit pieces
 
 
-def unique_check(names: Iterable[str], new: str, path: str, what: str) -> None:
-    if new in set(names):
-        raise InputError(path, f'"{new}" is already the name of another {what}')
-
-
 def item_at(items: list, index: int, path: str, what: str) -> dict:
     """``items[index]`` or a clear refusal (the page is older than the list)."""
     if not 0 <= index < len(items):

@@ -21,10 +21,11 @@ from server.core.grid import EmptyGridError
 from server.core.model import Layout, Project
 from server.core.options import KINDS, RankedOption, rank_options
 from server.errors import InputError
+from server.schedule import default_layout_name
 from server.store import StoredProject, get_project
 from server.to_core import to_core
 
-MAX_ENTRIES = 4  # project revisions kept
+MAX_ENTRIES = 16  # project revisions kept (a few MB each on the demo)
 MAX_MEMO = 96  # figures and other derived values kept per revision
 
 T = TypeVar("T")
@@ -133,15 +134,8 @@ class ProjectResults:
             return self._ranking
 
     def default_layout(self) -> str | None:
-        """The option a page shows first: the Pareto-efficient one that buys the most
-        information per unit cost, else the first layout; None without layouts."""
-        names = self.layout_names
-        if not names:
-            return None
-        efficient = [o for o in self.ranking() if o.pareto and o.gain_per_cost is not None]
-        if efficient:
-            return max(efficient, key=lambda o: o.gain_per_cost).name
-        return names[0]
+        """The option a page shows first (the same rule as the command-line schedule)."""
+        return default_layout_name(self.project, self.ranking())
 
     def memo(self, key: Sequence[Any], compute: Callable[[], T]) -> T:
         """A value derived from this revision (a figure, a table), computed once per key."""

@@ -35,7 +35,7 @@ from server.store import (
     get_job,
     get_project,
     is_cancel_requested,
-    read_snapshot,
+    list_jobs,
     request_cancel,
     save_project,
     update_job,
@@ -64,14 +64,8 @@ _running_lock = threading.Lock()
 
 def latest_optimiser_job(db: sqlite_utils.Database, project_id: int) -> Job | None:
     """The project's most recent optimiser job, if any."""
-    with read_snapshot(db):
-        rows = list(
-            db.query(
-                "SELECT id FROM jobs WHERE project_id = ? AND kind = ? ORDER BY id DESC LIMIT 1",
-                [project_id, KIND],
-            )
-        )
-    return get_job(db, rows[0]["id"]) if rows else None
+    jobs = list_jobs(db, project_id, KIND, limit=1)
+    return jobs[0] if jobs else None
 
 
 def running_job_of(project_id: int) -> int | None:

@@ -86,13 +86,15 @@ def project_context(project: Any, step_key: str) -> dict[str, Any]:
     """What every project page's template needs: the project, its model and the nav bar.
 
     ``project`` is a server.store.StoredProject. ``deleted`` projects are read-only: pages
-    should hide their edit controls (the store refuses changes anyway).
+    should hide their edit controls (the store refuses changes anyway). ``can_undo`` is False
+    when undo has nothing to take back: the undo buttons are then disabled.
     """
     model = project.model
     return {
         "project": project,
         "model": model,
         "deleted": project.deleted,
+        "can_undo": project.can_undo,
         "currency": model.get("currency") or "",
         "nav": nav_items(project.id, step_key),
     }

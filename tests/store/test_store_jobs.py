@@ -10,6 +10,7 @@ from server.store import (
     create_project,
     get_job,
     is_cancel_requested,
+    list_jobs,
     mark_interrupted_jobs,
     open_db,
     request_cancel,
@@ -102,3 +103,23 @@ def test_mark_interrupted_jobs(tmp_path, tiny):
         assert mark_interrupted_jobs(db) == 0
     finally:
         db.close()
+
+
+def test_list_jobs_newest_first_with_filters(db, project_id, tiny):
+    other = create_project(db, tiny)
+    first = create_job(db, project_id, "optimise", {"n": 1})
+    export = create_job(db, project_id, "export", {})
+    second = create_job(db, project_id, "optimise", {"n": 2})
+    elsewhere = create_job(db, other, "optimise", {})
+    loose = create_job(db, None, "optimise", {})
+    update_job(db, first, status="done", result={"cost": 1.0})
+
+    assert [j.id for j in list_jobs(db)] == [loose, elsewhere, second, export, first]
+    assert [j.id for j in list_jobs(db, project_id)] == [second, export, first]
+    assert [j.id for j in list_jobs(db, project_id, "optimise")] == [second, first]
+    assert [j.id for j in list_jobs(db, kind="optimise")] == [loose, elsewhere, second, first]
+    assert [j.id for j in list_jobs(db, project_id, "optimise", limit=1)] == [second]
+    assert list_jobs(db, project_id, "optimise")[-1] == get_job(db, first)  # whole jobs
+    assert list_jobs(db, 999) == [] and list_jobs(db, project_id, "posterior") == []
+    with pytest.raises(ValueError):
+        list_jobs(db, limit=0)
