@@ -632,7 +632,8 @@ def _reference_problems(m: dict) -> Iterator[InputError]:
     site = to_shapely(m["site"])
     area_m2 = float(site.area)
     spacing = m["grid_spacing_m"]
-    cells = area_m2 / spacing**2
+    # a spacing so small that its square underflows to 0 gives "infinitely many" cells
+    cells = area_m2 / spacing**2 if spacing**2 > 0 else math.inf
     if cells > MAX_GRID_CELLS:
         finest = math.ceil(math.sqrt(area_m2 / MAX_GRID_CELLS) * 10) / 10
         yield InputError(
