@@ -38,20 +38,17 @@ import os
 import platform
 import random
 import shutil
-import signal
-import socket
-import subprocess
-import sys
 import tempfile
 import time
 from pathlib import Path
 
 import httpx
 
+from server.local_server import ServerStartError, free_port, start_server, stop_server
+
 HERE = Path(__file__).resolve().parent
 OUT = HERE / "out"
 PAGE_P95_TARGET_MS = 500.0
-STARTUP_DEADLINE_S = 60.0
 
 PAGES = (
     "/",
@@ -70,51 +67,6 @@ EVALUATIONS = (
     "/api/projects/{pid}/evaluation",
 )
 MIX = (("page", 0.75), ("edit", 0.10), ("evaluate", 0.15))
-
-
-def free_port() -> int:
-    with socket.socket(socket.AF_INET, socket.SOCK_STREAM) as sock:
-        sock.bind(("127.0.0.1", 0))
-        return sock.getsockname()[1]
-
-
-def probewise_command() -> list[str]:
-    script = Path(sys.executable).with_name("probewise")
-    if script.is_file():
-        return [str(script)]
-    found = shutil.which("probewise")
-    return [found] if found else [sys.executable, "-m", "server.cli"]
-
-
-def start_server(db_path: Path, port: int, log_path: Path) -> subprocess.Popen:
-    log = log_path.open("w")
-    process = subprocess.Popen(
-        [*probewise_command(), "serve", "--db", str(db_path), "--port", str(port)],
-        stdout=log,
-        stderr=subprocess.STDOUT,
-        env={**os.environ, "PYTHONUNBUFFERED": "1"},
-        cwd=HERE.parent,
-    )
-    log.close()
-    deadline = time.monotonic() + STARTUP_DEADLINE_S
-    while time.monotonic() < deadline and process.poll() is None:
-        try:
-            httpx.get(f"http://127.0.0.1:{port}/api/projects", timeout=2.0)
-            return process
-        except httpx.TransportError:
-            time.sleep(0.1)
-    process.kill()
-    raise SystemExit(f"the server did not start; its log:\n{log_path.read_text()}")
-
-
-def stop_server(process: subprocess.Popen) -> None:
-    if process.poll() is None:
-        process.send_signal(signal.SIGINT)
-        try:
-            process.wait(timeout=20)
-        except subprocess.TimeoutExpired:
-            process.kill()
-            process.wait(timeout=10)
 
 
 def percentile(values: list[float], q: float) -> float | None:
@@ -316,7 +268,10 @@ def main(argv: list[str] | None = None) -> int:
 
     workdir = Path(tempfile.mkdtemp(prefix="probewise-load-"))
     port = free_port()
-    process = start_server(workdir / "load.db", port, workdir / "serve.log")
+    try:
+        process = start_server(workdir / "load.db", port, workdir / "serve.log", cwd=HERE.parent)
+    except ServerStartError as exc:
+        raise SystemExit(str(exc)) from None
     base = f"http://127.0.0.1:{port}"
     try:
         first = httpx.get(f"{base}/api/projects").json()[0]["id"]

@@ -9,17 +9,13 @@ so the tests do not depend on their order.
 from __future__ import annotations
 
 import json
-import os
-import shutil
-import socket
-import subprocess
-import sys
-import time
 from collections.abc import Iterator
 from pathlib import Path
 
 import httpx
 import pytest
+
+from server.local_server import ServerStartError, free_port, start_server, stop_server
 
 ROOT = Path(__file__).resolve().parents[2]
 CHROMIUM = Path("/usr/bin/chromium")
@@ -32,7 +28,6 @@ CHROMIUM_ARGS = [
     "--no-first-run",
     "--disable-sync",
 ]
-STARTUP_DEADLINE_S = 60.0  # a deadline to stop waiting, not a timing assertion
 
 try:
     from playwright import sync_api
@@ -46,59 +41,23 @@ def pytest_collection_modifyitems(items):
             item.add_marker(pytest.mark.browser)
 
 
-def free_port() -> int:
-    with socket.socket(socket.AF_INET, socket.SOCK_STREAM) as sock:
-        sock.bind(("127.0.0.1", 0))
-        return sock.getsockname()[1]
-
-
-def probewise_command() -> list[str]:
-    script = Path(sys.executable).with_name("probewise")
-    if script.is_file():
-        return [str(script)]
-    found = shutil.which("probewise")
-    return [found] if found else [sys.executable, "-m", "server.cli"]
-
-
 @pytest.fixture(scope="session")
 def server_url(tmp_path_factory) -> Iterator[str]:
     """Base URL of a real server over a fresh database (the demo project seeded)."""
     folder = tmp_path_factory.mktemp("served")
     port = free_port()
-    log_path = folder / "serve.log"
-    log = log_path.open("w+")
-    process = subprocess.Popen(
-        [*probewise_command(), "serve", "--db", str(folder / "browser.db"), "--port", str(port)],
-        cwd=folder,
-        stdout=log,
-        stderr=subprocess.STDOUT,
-        env={**os.environ, "PYTHONUNBUFFERED": "1"},
-    )
+    try:
+        process = start_server(
+            folder / "browser.db", port, folder / "serve.log", probe_path="/", cwd=folder
+        )
+    except ServerStartError as exc:
+        pytest.fail(str(exc))
     base = f"http://127.0.0.1:{port}"
     try:
-        deadline = time.monotonic() + STARTUP_DEADLINE_S
-        while True:
-            if process.poll() is not None:
-                log.seek(0)
-                pytest.fail(f"probewise serve exited early:\n{log.read()}")
-            try:
-                if httpx.get(f"{base}/", timeout=2.0).status_code == 200:
-                    break
-            except httpx.TransportError:
-                pass
-            if time.monotonic() > deadline:
-                log.seek(0)
-                pytest.fail(f"probewise serve did not answer:\n{log.read()}")
-            time.sleep(0.2)
+        assert httpx.get(f"{base}/", timeout=10.0).status_code == 200
         yield base
     finally:
-        process.terminate()
-        try:
-            process.wait(timeout=10)
-        except subprocess.TimeoutExpired:
-            process.kill()
-            process.wait(timeout=10)
-        log.close()
+        stop_server(process)
 
 
 @pytest.fixture(scope="session")

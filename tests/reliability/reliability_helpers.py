@@ -7,23 +7,17 @@ import contextlib
 import hashlib
 import html
 import json
-import os
 import re
-import shutil
-import signal
-import socket
 import sqlite3
-import subprocess
-import sys
-import time
 from collections.abc import Iterator
 from html.parser import HTMLParser
 from pathlib import Path
 
 import httpx
 
+from server.local_server import free_port, start_server, stop_server  # noqa: F401 (re-exported)
+
 BASE_URL = "http://127.0.0.1"  # a Host the app accepts (the DNS-rebinding guard is on)
-STARTUP_DEADLINE_S = 60.0  # a deadline to stop waiting, not a timing assertion
 
 
 def store_snapshot(db_path: Path) -> tuple:
@@ -74,54 +68,6 @@ def api_problems(answer: httpx.Response) -> list[tuple[str, str]]:
     if isinstance(detail, str):
         return [("", detail)]
     return [(item["field"], item["problem"]) for item in detail]
-
-
-def free_port() -> int:
-    with socket.socket(socket.AF_INET, socket.SOCK_STREAM) as sock:
-        sock.bind(("127.0.0.1", 0))
-        return sock.getsockname()[1]
-
-
-def probewise_command() -> list[str]:
-    """The installed console script beside this Python, else the module."""
-    script = Path(sys.executable).with_name("probewise")
-    if script.is_file():
-        return [str(script)]
-    found = shutil.which("probewise")
-    return [found] if found else [sys.executable, "-m", "server.cli"]
-
-
-def start_server(db_path: Path, port: int, log_path: Path, *extra: str) -> subprocess.Popen:
-    """``probewise serve`` on 127.0.0.1:port over ``db_path``; returns once it answers."""
-    log = log_path.open("a")
-    process = subprocess.Popen(
-        [*probewise_command(), "serve", "--db", str(db_path), "--port", str(port), *extra],
-        stdout=log,
-        stderr=subprocess.STDOUT,
-        env={**os.environ, "PYTHONUNBUFFERED": "1"},
-    )
-    log.close()
-    deadline = time.monotonic() + STARTUP_DEADLINE_S
-    while time.monotonic() < deadline and process.poll() is None:
-        try:
-            httpx.get(f"http://127.0.0.1:{port}/api/projects", timeout=2.0)
-            return process
-        except httpx.TransportError:
-            time.sleep(0.1)
-    stop_server(process)
-    raise AssertionError(f"server did not start; log:\n{log_path.read_text()}")
-
-
-def stop_server(process: subprocess.Popen) -> None:
-    """Ctrl+C, then kill if it lingers."""
-    if process.poll() is not None:
-        return
-    process.send_signal(signal.SIGINT)
-    try:
-        process.wait(timeout=20)
-    except subprocess.TimeoutExpired:
-        process.kill()
-        process.wait(timeout=10)
 
 
 @contextlib.contextmanager

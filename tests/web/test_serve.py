@@ -3,36 +3,17 @@
 from __future__ import annotations
 
 import os
-import shutil
 import signal
 import socket
 import subprocess
-import sys
 import time
-from pathlib import Path
 
 import httpx
 import pytest
 
 from server.cli import main
 from server.commands import serve
-
-STARTUP_DEADLINE_S = 60.0  # generous: a deadline to stop waiting, not a timing assertion
-
-
-def free_port() -> int:
-    with socket.socket(socket.AF_INET, socket.SOCK_STREAM) as sock:
-        sock.bind(("127.0.0.1", 0))
-        return sock.getsockname()[1]
-
-
-def probewise_command() -> list[str]:
-    """The installed console script beside this Python, else the module."""
-    script = Path(sys.executable).with_name("probewise")
-    if script.is_file():
-        return [str(script)]
-    found = shutil.which("probewise")
-    return [found] if found else [sys.executable, "-m", "server.cli"]
+from server.local_server import STARTUP_DEADLINE_S, free_port, probewise_command
 
 
 @pytest.mark.slow
