@@ -110,6 +110,25 @@ def evaluation_json(evaluation) -> dict:
     return out
 
 
+def probe_table(plans, boundary_names: tuple[str, ...]) -> str:
+    """The planned probes of a layout as a readable table (position, depth, what each reads)."""
+    rows = [
+        [
+            p.probe.id,
+            p.probe.method,
+            _num(p.probe.x, 1),
+            _num(p.probe.y, 1),
+            _num(p.depth_m, 2),
+            ", ".join(boundary_names[k] for k in p.observes) or "-",
+        ]
+        for p in plans
+    ]
+    if not rows:
+        return "(no probes)"
+    headers = ["Probe", "Method", "X (m)", "Y (m)", "Depth (m)", "Observes base of"]
+    return format_table(headers, rows, left=2)
+
+
 def _boundary_table(boundaries: dict) -> str:
     rows = [
         [
@@ -161,19 +180,7 @@ def evaluation_text(evaluation, currency: str) -> str:
     names = evaluation.boundary_names
     for r in evaluation.layouts:
         parts += ["", f"Layout: {r.name}", _boundary_table(r.boundaries), ""]
-        probe_rows = [
-            [
-                p.probe.id,
-                p.probe.method,
-                _num(p.probe.x, 1),
-                _num(p.probe.y, 1),
-                _num(p.depth_m, 2),
-                ", ".join(names[k] for k in p.observes) or "-",
-            ]
-            for p in r.plans
-        ]
-        headers = ["Probe", "Method", "X (m)", "Y (m)", "Depth (m)", "Observes base of"]
-        parts.append(format_table(headers, probe_rows, left=2) if probe_rows else "(no probes)")
+        parts.append(probe_table(r.plans, names))
     parts += ["", CAUTION]
     return "\n".join(parts)
 

@@ -16,7 +16,13 @@ import math
 import sys
 import time
 
-from server.commands.evaluate import CAUTION, format_table, layout_json, load_project
+from server.commands.evaluate import (
+    CAUTION,
+    format_table,
+    layout_json,
+    load_project,
+    probe_table,
+)
 from server.errors import InputError
 
 # OptimiseError.field -> the command-line option to name in the message
@@ -211,19 +217,7 @@ def optimise_text(out, project, budget: float) -> str:
         for mid, t in r.by_method.items()
     ]
     parts += [format_table(["Method", "Probes", "Metres", f"Cost{cur}", "Days"], by_method), ""]
-    probe_rows = [
-        [
-            p.probe.id,
-            p.probe.method,
-            _num(p.probe.x, 1),
-            _num(p.probe.y, 1),
-            _num(p.depth_m, 2),
-            ", ".join(names[k] for k in p.observes) or "-",
-        ]
-        for p in r.plans
-    ]
-    headers = ["Probe", "Method", "X (m)", "Y (m)", "Depth (m)", "Observes base of"]
-    parts += [format_table(headers, probe_rows, left=2), ""]
+    parts += [probe_table(r.plans, names), ""]
     step = max(1, len(out.curve) // 12)
     curve = list(out.curve[::step])
     if out.curve and curve[-1] != out.curve[-1]:
