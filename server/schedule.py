@@ -18,6 +18,7 @@ from server.core.evaluate import GridEvaluator, LayoutResult, with_pareto
 from server.core.grid import EmptyGridError
 from server.core.model import Project
 from server.core.options import RankedOption, rank_options
+from server.core.planning import ProbePlan
 from server.errors import InputError
 from server.exports import CAUTION, schedule_rows
 from server.justification import MainBoundary, OptionFigures, justification
@@ -90,8 +91,8 @@ def main_boundary_index(project: Project) -> int | None:
     return max(boi, key=lambda b: (b.weight, -b.boundary)).boundary
 
 
-def probe_dicts(project: Project, result: LayoutResult) -> list[dict[str, Any]]:
-    """The layout's planned probes as ``evaluate --json`` prints them, with their target."""
+def probe_dicts(project: Project, plans: Sequence[ProbePlan]) -> list[dict[str, Any]]:
+    """Planned probes as ``evaluate --json`` prints them, with their target."""
     names = project.ground.boundary_names
     return [
         {
@@ -103,7 +104,7 @@ def probe_dicts(project: Project, result: LayoutResult) -> list[dict[str, Any]]:
             "observes": [names[k] for k in plan.observes],
             "target": names[plan.target] if plan.target is not None else None,
         }
-        for plan in result.plans
+        for plan in plans
     ]
 
 
@@ -122,9 +123,9 @@ def methods_document(project: Project) -> dict[str, Any]:
     }
 
 
-def probe_rows(project: Project, result: LayoutResult) -> list[dict[str, Any]]:
-    """The schedule rows of a layout (what the CSV, GeoJSON and GeoPackage exports hold)."""
-    return schedule_rows(probe_dicts(project, result), methods_document(project))
+def probe_rows(project: Project, plans: Sequence[ProbePlan]) -> list[dict[str, Any]]:
+    """The schedule rows of planned probes (what the CSV, GeoJSON and GeoPackage exports hold)."""
+    return schedule_rows(probe_dicts(project, plans), methods_document(project))
 
 
 def method_rows(project: Project, result: LayoutResult) -> list[MethodRow]:
@@ -283,7 +284,7 @@ def build_schedule(
         currency=project.currency,
         crs=project.crs,
         layout_name=result.name,
-        probes=tuple(probe_rows(project, result)),
+        probes=tuple(probe_rows(project, result.plans)),
         refusals=frozenset(plan.probe.id for plan in result.plans if plan.refuses),
         methods=tuple(methods),
         totals=totals_of(result, methods),

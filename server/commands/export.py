@@ -9,7 +9,7 @@
 - model: the validated model file itself (JSON).
 
 The format comes from ``--format`` or the extension of OUT. The few functions here that reach
-into the core (``plan_layout_probes``, ``posterior_grid``) are the only coupling to it.
+into the core (``schedule_probe_rows``, ``posterior_grid``) are the only coupling to it.
 Shared helpers for the import commands live here too (``read_model``, ``write_model``,
 ``parse_pairs``).
 """
@@ -82,13 +82,14 @@ def _layout(analysis, project, name: str):
         raise InputError("--layout", f"no layout named {name!r}; layouts are: {known}") from None
 
 
-def plan_layout_probes(model: dict, layout_name: str) -> list[dict]:
-    """Planned probes of a layout: [{"id", "method", "x", "y", "depth_m", "observes", "target"}].
+def schedule_probe_rows(model: dict, layout_name: str) -> list[dict]:
+    """The schedule rows of a layout (the same rows ``probewise schedule`` writes).
 
     Adapter to the core: planned depth and observed set against the existing probes
     (DESIGN.md "Planned depth", "Observed set").
     """
     from server.core.analysis import ProjectAnalysis
+    from server.schedule import probe_rows
     from server.to_core import to_core
 
     project = to_core(model)
@@ -96,19 +97,7 @@ def plan_layout_probes(model: dict, layout_name: str) -> list[dict]:
     layout = _layout(analysis, project, layout_name)
     if not layout.probes:
         raise InputError("--layout", f"layout {layout_name!r} has no probes")
-    names = project.ground.boundary_names
-    return [
-        {
-            "id": plan.probe.id,
-            "method": plan.probe.method,
-            "x": plan.probe.x,
-            "y": plan.probe.y,
-            "depth_m": float(plan.depth_m),
-            "target": names[plan.target] if plan.target is not None else "",
-            "observes": [names[k] for k in plan.observes],
-        }
-        for plan in analysis.plan(layout)
-    ]
+    return probe_rows(project, analysis.plan(layout))
 
 
 def posterior_grid(model: dict, layout_name: str | None):
@@ -180,7 +169,7 @@ def run(args: argparse.Namespace) -> int:
     if args.what == "schedule":
         if not args.layout:
             raise InputError("--layout", "name the layout whose schedule to export")
-        rows = exports.schedule_rows(plan_layout_probes(model, args.layout), model)
+        rows = schedule_probe_rows(model, args.layout)
         if fmt == "csv":
             exports.write_schedule_csv(rows, args.output)
         elif fmt == "geojson":

@@ -157,7 +157,7 @@ def schedule_download_rows(
     chosen = chosen_layout(entry, layout)
     if chosen is None:
         raise InputError("layout", "the project has no layout to schedule")
-    return entry, chosen, probe_rows(entry.project, entry.result_named(chosen))
+    return entry, chosen, probe_rows(entry.project, entry.result_named(chosen).plans)
 
 
 def download_name(entry: ProjectResults, layout: str, suffix: str) -> str:
