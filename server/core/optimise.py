@@ -35,6 +35,7 @@ from __future__ import annotations
 
 import itertools
 import math
+import threading
 import time
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
@@ -53,6 +54,10 @@ from server.core.grid import EvaluationGrid, evaluation_grid_capped
 from server.core.model import Layout, PlannedProbe, Project
 from server.core.planning import plan_probes, planned_observations
 
+# The search runs on all cores; numba's fallback thread pool ("workqueue", used where no
+# OpenMP or TBB library is found) aborts the process if two threads enter it at once, and the
+# web may run optimisers for two projects concurrently, so searches take turns.
+KERNEL_LOCK = threading.Lock()
 MIN_GAIN_BITS = 1e-9  # a candidate that buys less than this is not worth a pick
 FINALISTS = 4  # layouts re-evaluated on the full grid before choosing
 # Each candidate location holds a row of covariances with every target and is planned per
@@ -492,26 +497,27 @@ class GreedyProblem:
         V = state.V
         inv_v = np.where(V > 0, 1.0 / np.maximum(V, 1e-300), 0.0)
         gain = np.full(active.shape, -1.0)
-        best, _ = self.kernel.search(
-            *state.M,  # one array per boundary
-            inv_v,
-            self.group_start,
-            self.group_stop,
-            self.targets.run_omega,
-            state.P,
-            self.noise,
-            self.observes,
-            np.ascontiguousarray(active),
-            self.cand.cost,
-            state.G,
-            state.H,
-            state.pending,
-            Q_MIN,
-            MIN_GAIN_BITS,
-            BOUND_SLACK,
-            score_all,
-            gain,
-        )
+        with KERNEL_LOCK:
+            best, _ = self.kernel.search(
+                *state.M,  # one array per boundary
+                inv_v,
+                self.group_start,
+                self.group_stop,
+                self.targets.run_omega,
+                state.P,
+                self.noise,
+                self.observes,
+                np.ascontiguousarray(active),
+                self.cand.cost,
+                state.G,
+                state.H,
+                state.pending,
+                Q_MIN,
+                MIN_GAIN_BITS,
+                BOUND_SLACK,
+                score_all,
+                gain,
+            )
         state.pending = False  # the kernel applied it to every row still read
         return int(best), gain
 

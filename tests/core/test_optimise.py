@@ -17,6 +17,7 @@ from __future__ import annotations
 
 import math
 import sys
+import threading
 from pathlib import Path
 
 import numpy as np
@@ -213,6 +214,28 @@ def test_prepared_setup_gives_the_same_answer():
         (p.method, p.x, p.y) for p in b.layout.probes
     ]
     assert a.result.information_gain_bits == pytest.approx(b.result.information_gain_bits)
+
+
+def test_optimisers_in_two_threads_run_side_by_side():
+    """The web may optimise two projects at once: the compiled search's thread pool must not
+    be entered twice (it would abort the process), and both answers stay exact."""
+    project = tiny_project()
+    options = OptimiseOptions(budget=6000.0, candidate_spacing_m=20.0)
+    alone = optimise(project, options)
+    answers: list = [None, None]
+
+    def run(k: int) -> None:
+        answers[k] = optimise(project, options)
+
+    threads = [threading.Thread(target=run, args=(k,)) for k in range(2)]
+    for t in threads:
+        t.start()
+    for t in threads:
+        t.join()
+    for out in answers:
+        assert [(p.method, p.x, p.y) for p in out.layout.probes] == [
+            (p.method, p.x, p.y) for p in alone.layout.probes
+        ]
 
 
 def test_progress_is_monotone_and_ends_at_one():
