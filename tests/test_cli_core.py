@@ -5,10 +5,10 @@ from __future__ import annotations
 
 import json
 import subprocess
-import sys
 from pathlib import Path
 
 import pytest
+from cli_helpers import run_cli
 
 ROOT = Path(__file__).resolve().parents[1]
 TINY = ROOT / "tests" / "data" / "tiny-model.json"
@@ -31,13 +31,7 @@ BOUNDARIES = ["Made ground", "Alluvial clay", "River gravel"]
 
 
 def cli(*args: str) -> subprocess.CompletedProcess:
-    return subprocess.run(
-        [sys.executable, "-m", "server.cli", *args],
-        capture_output=True,
-        text=True,
-        cwd=ROOT,
-        timeout=120,
-    )
+    return run_cli(*args, timeout=120)
 
 
 def test_evaluate_json_has_the_documented_fields():

@@ -4,11 +4,10 @@ contract"), readable output, -o, and bad input (exit 2, one line naming the opti
 from __future__ import annotations
 
 import json
-import subprocess
-import sys
 from pathlib import Path
 
 import pytest
+from cli_helpers import run_cli
 
 from server import cli
 
@@ -39,16 +38,6 @@ OPTION_KEYS = {
     "gain_per_cost",
     "pareto",
 }
-
-
-def run_cli(*args: str) -> subprocess.CompletedProcess:
-    return subprocess.run(
-        [sys.executable, "-m", "server.cli", *args],
-        capture_output=True,
-        text=True,
-        cwd=ROOT,
-        timeout=300,
-    )
 
 
 def test_optimise_json_has_the_documented_fields():

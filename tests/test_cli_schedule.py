@@ -8,11 +8,11 @@ import csv
 import io
 import json
 import subprocess
-import sys
 from datetime import date
 from pathlib import Path
 
 import pytest
+from cli_helpers import run_cli
 
 from server.core.evaluate import GridEvaluator, evaluate_project, with_pareto
 from server.exports import CAUTION
@@ -41,13 +41,7 @@ TOTAL_KEYS = {"probes", "metres", "cost", "duration_days", "mobilisation"}
 
 
 def cli(*args: str) -> subprocess.CompletedProcess:
-    return subprocess.run(
-        [sys.executable, "-m", "server.cli", "schedule", *args],
-        capture_output=True,
-        text=True,
-        cwd=ROOT,
-        timeout=180,
-    )
+    return run_cli("schedule", *args, timeout=180)
 
 
 def model_of(path: Path) -> dict:

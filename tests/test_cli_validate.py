@@ -6,10 +6,10 @@ from __future__ import annotations
 import copy
 import json
 import subprocess
-import sys
 from pathlib import Path
 
 import pytest
+from cli_helpers import run_cli
 
 ROOT = Path(__file__).resolve().parents[1]
 DATA = Path(__file__).resolve().parent / "data"
@@ -17,13 +17,7 @@ TINY = json.loads((DATA / "tiny-model.json").read_text())
 
 
 def run_validate(path: Path) -> subprocess.CompletedProcess:
-    return subprocess.run(
-        [sys.executable, "-m", "server.cli", "validate", str(path)],
-        cwd=ROOT,
-        capture_output=True,
-        text=True,
-        timeout=120,
-    )
+    return run_cli("validate", str(path), timeout=120)
 
 
 def write_model(tmp_path: Path, model: object, name: str = "model.json") -> Path:
