@@ -54,12 +54,12 @@ def metres_text(value: float) -> str:
 
 
 def days_text(value: float) -> str:
+    """Fieldwork days as the schedule's tables show them (one decimal below ten days), so the
+    text and the tables agree."""
     if value < 1:
         return "under a day"
     if value < 10:
-        rounded = round(value * 2) / 2  # to half a day
-        text = f"{rounded:g}"
-        return f"about {text} day{'s' if rounded != 1 else ''}"
+        return f"about {value:.1f} days"
     return f"about {value:.0f} days"
 
 

@@ -121,7 +121,7 @@ def test_justification_against_the_cheapest_alternative():
     cheap = figures("Lean", 7928.0, 2.07, width=2.54)
     text = " ".join(justification(chosen, main, [cheap], "GBP"))
     assert "Mixed costs about GBP 35,170" in text  # to the nearest 10 above 1,000
-    assert "about 3 days" in text  # 3.2 days to the nearest half day
+    assert "about 3.2 days" in text  # as the tables show it: one decimal
     assert "from 3.04 m to 2.31 m" in text
     assert "from 0% to 12%" in text
     assert "gains 2.58 bits" in text
