@@ -9,13 +9,13 @@ from __future__ import annotations
 import copy
 import json
 import math
-import re
 from pathlib import Path
 
 import pytest
 import shapely
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
+from model_edits import DELETE, edited, json_paths
 
 from server.errors import InputError
 from server.model_file import (
@@ -36,28 +36,11 @@ from server.model_file import (
 
 DATA = Path(__file__).resolve().parent / "data"
 TINY = json.loads((DATA / "tiny-model.json").read_text())
-DELETE = object()
-
-
-def parse_path(path: str | list) -> list:
-    """``units[2].thickness_m`` -> ``["units", 2, "thickness_m"]`` (the field-path syntax)."""
-    if isinstance(path, list):
-        return path
-    return [int(i) if i else k for k, i in re.findall(r"([^.\[\]]+)|\[(\d+)\]", path)]
 
 
 def changed(path: str | list, value: object) -> dict:
     """A deep copy of the tiny model with the item at ``path`` replaced (or deleted)."""
-    path = parse_path(path)
-    model = copy.deepcopy(TINY)
-    target = model
-    for part in path[:-1]:
-        target = target[part]
-    if value is DELETE:
-        del target[path[-1]]
-    else:
-        target[path[-1]] = value
-    return model
+    return edited(TINY, path, value)
 
 
 def problem_of(model: object) -> InputError:
@@ -644,19 +627,7 @@ def test_demo_existing_depths_fit_the_conceptual_model(demo_model):
 # ---------------------------------------------------------------- property test
 
 
-def _paths(value: object, prefix: tuple = ()) -> list[tuple]:
-    """Every path into the model (leaves and containers alike)."""
-    out = [prefix] if prefix else []
-    if isinstance(value, dict):
-        for k, v in value.items():
-            out += _paths(v, (*prefix, k))
-    elif isinstance(value, list):
-        for i, v in enumerate(value):
-            out += _paths(v, (*prefix, i))
-    return out
-
-
-PATHS = _paths(TINY)
+PATHS = json_paths(TINY)
 JSON_SCALARS = (
     st.none()
     | st.booleans()
@@ -679,17 +650,7 @@ JSON_VALUES = st.recursive(
 @settings(max_examples=300, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(path=st.sampled_from(PATHS), value=JSON_VALUES | st.just(DELETE))
 def test_random_mutation_validates_or_raises_input_error(path, value):
-    model = copy.deepcopy(TINY)
-    target = model
-    for part in path[:-1]:
-        target = target[part]
-    if value is DELETE:
-        if isinstance(target, list):
-            target.pop(path[-1])
-        else:
-            del target[path[-1]]
-    else:
-        target[path[-1]] = value
+    model = edited(TINY, path, value)
     try:
         normal = validate_model(model)
     except InputError as exc:

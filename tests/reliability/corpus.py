@@ -26,19 +26,18 @@ To add form cases for a new page, append ``Case(..., "form", {"path": ..., "data
 
 from __future__ import annotations
 
-import copy
 import io
 import json
 import math
-import re
 import zipfile
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+from model_edits import DELETE, edited
+
 DATA = Path(__file__).resolve().parents[1] / "data"
 TINY: dict = json.loads((DATA / "tiny-model.json").read_text())
-DELETE = object()
 MILLION = 10**6
 
 
@@ -70,23 +69,9 @@ def resolve(value: Any) -> Any:
 # ---------------------------------------------------------------- builders
 
 
-def parse_path(path: str) -> list:
-    """``units[2].thickness_m`` -> ``["units", 2, "thickness_m"]``."""
-    return [int(i) if i else k for k, i in re.findall(r"([^.\[\]]+)|\[(\d+)\]", path)]
-
-
 def mutated(path: str, value: object, base: dict | None = None) -> dict:
     """A deep copy of the tiny model (or ``base``) with the item at ``path`` replaced."""
-    model = copy.deepcopy(base if base is not None else TINY)
-    parts = parse_path(path)
-    target = model
-    for part in parts[:-1]:
-        target = target[part]
-    if value is DELETE:
-        del target[parts[-1]]
-    else:
-        target[parts[-1]] = value
-    return model
+    return edited(base if base is not None else TINY, path, value)
 
 
 def model_bytes(model: dict) -> bytes:

@@ -14,7 +14,6 @@
 from __future__ import annotations
 
 import atexit
-import copy
 import json
 import shutil
 import tempfile
@@ -27,6 +26,7 @@ from corpus import TINY
 from fastapi.testclient import TestClient
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
+from model_edits import DELETE, edited, json_paths
 from reliability_helpers import BASE_URL, store_snapshot
 from schemathesis.checks import not_a_server_error
 from schemathesis.specs.openapi.checks import response_schema_conformance
@@ -88,19 +88,7 @@ def test_enough_cases_were_generated():
 # ---------------------------------------------------------------- mutated models through PUT
 
 
-def _paths(value: object, prefix: tuple = ()) -> list[tuple]:
-    out = [prefix] if prefix else []
-    if isinstance(value, dict):
-        for k, v in value.items():
-            out += _paths(v, (*prefix, k))
-    elif isinstance(value, list):
-        for i, v in enumerate(value):
-            out += _paths(v, (*prefix, i))
-    return out
-
-
-PATHS = _paths(TINY)
-DELETE = object()
+PATHS = json_paths(TINY)
 SCALARS = (
     st.none()
     | st.booleans()
@@ -114,21 +102,6 @@ VALUES = st.recursive(
     lambda inner: st.lists(inner, max_size=4) | st.dictionaries(st.text(max_size=6), inner),
     max_leaves=8,
 )
-
-
-def apply(model: dict, path: tuple, value: object) -> dict:
-    model = copy.deepcopy(model)
-    target = model
-    for part in path[:-1]:
-        target = target[part]
-    if value is DELETE:
-        if isinstance(target, list):
-            target.pop(path[-1])
-        else:
-            del target[path[-1]]
-    else:
-        target[path[-1]] = value
-    return model
 
 
 @pytest.fixture(scope="module")
@@ -149,9 +122,9 @@ def test_random_edits_are_saved_whole_or_refused_whole(put_client, path, value, 
     client, db_path, pid = put_client
     current = client.get(f"/api/projects/{pid}").json()
     revision = current["revision"]
-    edited = apply(TINY, path, value)
+    edited_model = edited(TINY, path, value)
     body = json.dumps(
-        {"model": edited, "expected_revision": revision - 1 if stale else revision},
+        {"model": edited_model, "expected_revision": revision - 1 if stale else revision},
         allow_nan=True,
     )
     before = store_snapshot(db_path)
@@ -172,7 +145,7 @@ def test_random_edits_are_saved_whole_or_refused_whole(put_client, path, value, 
     assert answer.json()["revision"] == revision + 1
     stored = client.get(f"/api/projects/{pid}").json()
     try:
-        expected = validate_model(edited)
+        expected = validate_model(edited_model)
     except InputError as error:  # pragma: no cover - a 200 for an invalid model is the bug
         pytest.fail(f"saved a model the validator refuses: {error}")
     assert stored["model"] == expected
