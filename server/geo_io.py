@@ -496,17 +496,6 @@ def read_polygons(
 # Putting polygons into a model
 
 
-def _unique_name(name: str, taken: set[str]) -> str:
-    if name not in taken:
-        taken.add(name)
-        return name
-    k = 2
-    while f"{name} ({k})" in taken:
-        k += 1
-    taken.add(f"{name} ({k})")
-    return f"{name} ({k})"
-
-
 def apply_polygons(model: dict, role: str, features: list[dict], mode: str = "replace") -> dict:
     """A new model with the features as its site, zones, areas of interest or exclusions.
 
@@ -519,6 +508,8 @@ def apply_polygons(model: dict, role: str, features: list[dict], mode: str = "re
     """
     import shapely
     from shapely.geometry import shape
+
+    from server.model_file import unique_name
 
     if role not in ROLE_KEYS:
         raise InputError("role", f"'{role}' is not one of site, zones, areas, exclusions")
@@ -545,8 +536,10 @@ def apply_polygons(model: dict, role: str, features: list[dict], mode: str = "re
             parts = list(geom.geoms) if geom.geom_type == "MultiPolygon" else [geom]
             for j, part in enumerate(parts, start=1):
                 name = f["name"] if len(parts) == 1 else f"{f['name']} (part {j})"
+                name = unique_name(name, taken)
+                taken.add(name)
                 entry: dict[str, Any] = {
-                    "name": _unique_name(name, taken),
+                    "name": name,
                     "geometry": geojson_of(part),
                 }
                 if key == "zones":

@@ -19,7 +19,7 @@ from __future__ import annotations
 import json
 import math
 import re
-from collections.abc import Iterator
+from collections.abc import Iterable, Iterator
 from functools import lru_cache
 from pathlib import Path
 from typing import Annotated, Any, Literal
@@ -945,3 +945,19 @@ def list_notes(model: dict) -> list[str]:
                     f"exclusion {_show(name)}"
                 )
     return notes
+
+
+def unique_name(wanted: str, taken: Iterable[str]) -> str:
+    """``wanted``, or ``wanted (2)``, ``(3)``... when that name is already taken."""
+    taken = set(taken)
+    if wanted not in taken:
+        return wanted
+    n = 2
+    while f"{wanted} ({n})" in taken:
+        n += 1
+    return f"{wanted} ({n})"
+
+
+def unique_layout_name(model: dict, wanted: str) -> str:
+    """A layout name not yet used in ``model`` (``wanted`` or ``wanted (n)``)."""
+    return unique_name(wanted, (layout["name"] for layout in model.get("layouts") or []))

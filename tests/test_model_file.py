@@ -685,3 +685,12 @@ def test_lone_surrogate_text_is_refused(tiny_model, where, field):
         validate_model(tiny_model)
     assert err.value.field == field
     assert "not valid Unicode" in err.value.problem
+
+
+def test_unique_names_number_repeats(tiny_model):
+    from server.model_file import unique_layout_name, unique_name
+
+    assert unique_name("Stage 1", []) == "Stage 1"
+    assert unique_name("Stage 1", ["Stage 1", "Stage 1 (2)"]) == "Stage 1 (3)"
+    assert unique_layout_name(tiny_model, "Four boreholes") == "Four boreholes (2)"
+    assert unique_layout_name(tiny_model, "New") == "New"

@@ -24,6 +24,7 @@ from server.commands.evaluate import (
     probe_table,
 )
 from server.errors import InputError
+from server.model_file import unique_layout_name
 
 # OptimiseError.field -> the command-line option to name in the message
 OPTION_OF_FIELD = {
@@ -139,17 +140,6 @@ class ProgressBar:
             self.shown = False
 
 
-def unique_layout_name(wanted: str, taken) -> str:
-    """``wanted``, or ``wanted (2)``, ``(3)``... when a layout already has that name."""
-    taken = set(taken)
-    if wanted not in taken:
-        return wanted
-    n = 2
-    while f"{wanted} ({n})" in taken:
-        n += 1
-    return f"{wanted} ({n})"
-
-
 def layout_model_entry(layout) -> dict:
     """A core Layout as a model-file layout (depths left to the model, as the optimiser
     planned them)."""
@@ -244,7 +234,7 @@ def run(args: argparse.Namespace) -> int:
     if args.name is not None and not args.name.strip():
         raise InputError("--name", "must not be empty")
     wanted = args.name.strip() if args.name else f"Optimised for {budget:g}"
-    name = unique_layout_name(wanted, (lay["name"] for lay in model.get("layouts", [])))
+    name = unique_layout_name(model, wanted)
     bar = ProgressBar(sys.stderr.isatty())
     try:
         setup = prepare_optimisation(project, options, bar)

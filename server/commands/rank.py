@@ -22,9 +22,9 @@ from server.commands.optimise import (
     optimiser_input_error,
     optimiser_options,
     parse_positive,
-    unique_layout_name,
 )
 from server.errors import InputError
+from server.model_file import unique_name
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -67,7 +67,7 @@ def guidance_layouts(items: list[str] | None, project, taken: set[str]):
             layout = guidance_grid_layout(project, method.strip(), value)
         except ValueError as exc:
             raise InputError("--guidance", f"{item}: {exc}") from None
-        layout = replace(layout, name=unique_layout_name(layout.name, taken))
+        layout = replace(layout, name=unique_name(layout.name, taken))
         taken.add(layout.name)
         out.append(layout)
     return out
@@ -158,7 +158,7 @@ def run(args: argparse.Namespace) -> int:
             def progress(fraction, message, n=n, budget=budget):
                 bar((n + fraction) / len(budgets), f"budget {budget:g}: {message}")
 
-            name = unique_layout_name(f"Optimised for {budget:g}", taken)
+            name = unique_name(f"Optimised for {budget:g}", taken)
             taken.add(name)
             try:
                 out = optimise(

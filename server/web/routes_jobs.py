@@ -28,6 +28,7 @@ from starlette.responses import RedirectResponse, Response
 
 from server.core.optimise import OptimiseCancelled, OptimiseError, OptimiseOptions, optimise
 from server.errors import InputError
+from server.model_file import unique_layout_name
 from server.store import (
     Job,
     StaleRevision,
@@ -85,16 +86,6 @@ def thin_curve(curve, limit: int = MAX_CURVE_POINTS) -> list[dict[str, float]]:
     return [{"cost": round(c, 2), "information_gain_bits": round(g, 6)} for c, g in points]
 
 
-def unique_name(model: dict[str, Any], wanted: str) -> str:
-    names = {layout["name"] for layout in model.get("layouts") or []}
-    if wanted not in names:
-        return wanted
-    n = 2
-    while f"{wanted} ({n})" in names:
-        n += 1
-    return f"{wanted} ({n})"
-
-
 def save_result(
     db: sqlite_utils.Database, project_id: int, layout_doc: dict[str, Any]
 ) -> tuple[str, int]:
@@ -102,7 +93,7 @@ def save_result(
     for attempt in range(2):
         stored = get_project(db, project_id)
         model = copy.deepcopy(stored.model)
-        doc = dict(layout_doc, name=unique_name(model, layout_doc["name"]))
+        doc = dict(layout_doc, name=unique_layout_name(model, layout_doc["name"]))
         model.setdefault("layouts", []).append(doc)
         try:
             revision = save_project(

@@ -27,7 +27,7 @@ from starlette.responses import Response
 
 from server.core.options import GUIDANCE_SPACINGS, guidance_grid_layout
 from server.errors import InputError
-from server.model_file import to_shapely
+from server.model_file import to_shapely, unique_layout_name
 from server.store import StoredProject, get_project
 from server.web.deps import Db
 from server.web.edits import (
@@ -94,16 +94,6 @@ def next_probe_id(layout: dict[str, Any], method_id: str) -> str:
     while f"{method_id}-{n:02d}" in used:
         n += 1
     return f"{method_id}-{n:02d}"
-
-
-def unique_layout_name(model: dict[str, Any], wanted: str) -> str:
-    names = {layout["name"] for layout in layouts_of(model)}
-    if wanted not in names:
-        return wanted
-    n = 2
-    while f"{wanted} ({n})" in names:
-        n += 1
-    return f"{wanted} ({n})"
 
 
 def exclusion_hits(model: dict[str, Any], x: float, y: float) -> list[str]:
