@@ -6,15 +6,7 @@
 
   var current = null; // {handle, layer, ends: [LatLng]}
 
-  function readJson(id) {
-    var el = document.getElementById(id);
-    if (!el) return null;
-    try {
-      return JSON.parse(el.textContent);
-    } catch (e) {
-      return null;
-    }
-  }
+  var readJson = window.Probewise.readJson;
 
   function drawLine(points) {
     current.layer.clearLayers();

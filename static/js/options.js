@@ -9,23 +9,8 @@
   var LABELS_UP_TO = 30; // probes labelled at the first view
   var pendingPost = false; // a POST into #options is on its way: show its message as a flash
 
-  function setFlash(kind, text) {
-    var flash = document.getElementById("flash");
-    if (!flash) return;
-    flash.textContent = text;
-    flash.className = kind ? "flash flash-" + kind : "flash";
-    flash.setAttribute("role", kind === "error" ? "alert" : "status");
-  }
-
-  function readJson(id) {
-    var el = document.getElementById(id);
-    if (!el) return null;
-    try {
-      return JSON.parse(el.textContent);
-    } catch (e) {
-      return null;
-    }
-  }
+  var setFlash = window.Probewise.setFlash;
+  var readJson = window.Probewise.readJson;
 
   function probesData() {
     return readJson("options-probes-data") || { probes: [] };

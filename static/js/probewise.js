@@ -10,6 +10,20 @@
     flash.setAttribute("role", kind === "error" ? "alert" : "status");
   }
 
+  // The JSON data island with this id (a hidden element: htmx drops swapped <script>s).
+  function readJson(id) {
+    var el = document.getElementById(id);
+    if (!el) return null;
+    try {
+      return JSON.parse(el.textContent);
+    } catch (e) {
+      return null;
+    }
+  }
+
+  // Shared with the page scripts (loaded after this one: deferred scripts run in order).
+  window.Probewise = { setFlash: setFlash, readJson: readJson };
+
   // A new action clears the message left by the previous one.
   document.addEventListener("htmx:beforeRequest", function () {
     setFlash("", "");
