@@ -98,6 +98,14 @@ def chosen_layout(entry: ProjectResults, wanted: str | None) -> str | None:
     return entry.default_layout()
 
 
+def section_layout(entry: ProjectResults, wanted: str | None) -> str:
+    """The layout a section shows; a project without layouts has no section (InputError)."""
+    chosen = chosen_layout(entry, wanted)
+    if chosen is None:
+        raise InputError("layout", "the project has no layout to show in a section")
+    return chosen
+
+
 def boundary_title(name: str) -> str:
     return f"Base of {name}"
 
@@ -467,9 +475,7 @@ def compare_section(
 ) -> Response:
     """The section figure for a line (``_compare_section_figure.html``)."""
     entry = project_results(db, project_id)
-    chosen = chosen_layout(entry, layout)
-    if chosen is None:
-        raise InputError("layout", "the project has no layout to show in a section")
+    chosen = section_layout(entry, layout)
     status = 200
     notice = None
     try:
@@ -523,9 +529,7 @@ def compare_section_png(
     request: Request, project_id: int, db: Db, layout: str | None = None
 ) -> Response:
     entry = project_results(db, project_id)
-    chosen = chosen_layout(entry, layout)
-    if chosen is None:
-        raise InputError("layout", "the project has no layout to show in a section")
+    chosen = section_layout(entry, layout)
     line = read_section(dict(request.query_params), entry.model)
     png = section_png(entry, chosen, line)
     return image_response(png, "image/png", current_revision_named(request, entry))
