@@ -3,8 +3,8 @@
 
     python benchmarks/evaluate.py [SIZE] [--repeat N] [--extra-layouts N]
 
-SIZE is S, M or L (default L) of ``benchmarks/make_case.py`` (a copy of
-``../shared/bench/make_case.py``, imported so this runs without ../shared). The case is
+SIZE is S, M or L (default L) of ``benchmarks/make_case.py`` (the invented benchmark
+cases). The case is
 validated and converted as the CLI does, then ``evaluate_project`` runs on it: the first
 (cold) run and the best of ``--repeat`` warm runs are timed with ``time.perf_counter``; peak
 memory is the traced peak of the evaluation (``tracemalloc``, numpy buffers included) and the
@@ -31,9 +31,9 @@ sys.path.insert(0, str(HERE.parent))
 
 from make_case import make  # noqa: E402
 
+from server.app.to_core import to_core  # noqa: E402
 from server.core.evaluate import evaluate_project  # noqa: E402
-from server.model_file import validate_model  # noqa: E402
-from server.to_core import to_core  # noqa: E402
+from server.io.model_file import validate_model  # noqa: E402
 
 
 def extra_layouts(model: dict, count: int) -> list[dict]:

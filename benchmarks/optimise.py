@@ -17,8 +17,8 @@
     5, float64 as the method keeps it): the memory-bandwidth floor of any exact method.
 
 Figures are printed and written to ``benchmarks/out/optimise.json``. Cases are built by
-``make_case.py`` (a copy of ``../shared/bench/make_case.py``), so ../shared is not needed.
-Acceptance (issue 4): (a) at most 20 s and 2 GiB on the project's 2-core machine; (b) ratio at
+``make_case.py`` (the invented benchmark cases).
+Targets: (a) at most 20 s and 2 GiB on the project's 2-core machine; (b) ratio at
 least 100 with identical picks; (c) per-pick time within 3x of the floor.
 """
 
@@ -43,8 +43,8 @@ from make_case import make  # noqa: E402
 
 
 def load_case(size: str):
-    from server.model_file import validate_model
-    from server.to_core import to_core
+    from server.app.to_core import to_core
+    from server.io.model_file import validate_model
 
     return to_core(validate_model(make(size, 1)))
 

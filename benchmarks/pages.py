@@ -1,5 +1,5 @@
 #!/usr/bin/env python3
-"""Benchmark: median server time of each project page on the demo (issue 5: <= 200 ms).
+"""Benchmark: median server time of each project page on the demo (target: <= 200 ms).
 
     python benchmarks/pages.py [--repeat N] [--json OUT]
 

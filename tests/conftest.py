@@ -12,7 +12,7 @@ SHARED = ROOT.parent / "shared"
 
 @pytest.fixture
 def tiny_model() -> dict:
-    """The small invented floodplain model (a copy of shared/examples/tiny-model.json)."""
+    """The small invented floodplain model (tests/data)."""
     return json.loads((DATA / "tiny-model.json").read_text())
 
 

@@ -1,4 +1,4 @@
-"""`probewise evaluate` and `probewise posterior`: the JSON of MODEL-FILE.md ("CLI output
+"""`probewise evaluate` and `probewise posterior`: the JSON of docs/model-file.md ("CLI output
 contract"), readable tables, and bad input (exit 2, one line naming the field)."""
 
 from __future__ import annotations
@@ -62,9 +62,9 @@ def test_evaluate_json_has_the_documented_fields():
 
 
 def test_evaluate_json_round_trips_the_core_numbers():
-    from server.commands.evaluate import evaluation_json
+    from server.app.contract import evaluation_json
+    from server.app.to_core import to_core
     from server.core.evaluate import evaluate_project
-    from server.to_core import to_core
 
     run = cli("evaluate", str(TINY), "--json")
     expected = evaluation_json(evaluate_project(to_core(json.loads(TINY.read_text()))))

@@ -15,7 +15,7 @@ from pyproj import Transformer
 from shapely.geometry import Polygon, box, shape
 
 from server.cli import main
-from server.model_file import load_model_file
+from server.io.model_file import load_model_file
 
 
 @pytest.fixture

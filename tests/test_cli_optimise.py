@@ -1,4 +1,4 @@
-"""`probewise optimise` and `probewise rank`: the JSON of MODEL-FILE.md ("CLI output
+"""`probewise optimise` and `probewise rank`: the JSON of docs/model-file.md ("CLI output
 contract"), readable output, -o, and bad input (exit 2, one line naming the option)."""
 
 from __future__ import annotations
@@ -152,7 +152,7 @@ def test_ctrl_c_cancels_with_status_130(monkeypatch, capsys):
 
 
 def test_progress_bar_draws_on_a_terminal(monkeypatch, capsys):
-    from server.commands.optimise import ProgressBar
+    from server.commands.options import ProgressBar
 
     bar = ProgressBar(True)
     bar(0.0, "start")

@@ -1,5 +1,5 @@
 """`probewise schedule`: the printable schedule, its JSON, the probe list as CSV, GeoJSON and
-GeoPackage, and bad input (exit 2, one line naming the field); plus ``server.schedule``
+GeoPackage, and bad input (exit 2, one line naming the field); plus ``server.app.schedule``
 itself against the core's numbers."""
 
 from __future__ import annotations
@@ -14,10 +14,10 @@ from pathlib import Path
 import pytest
 from cli_helpers import run_cli
 
+from server.app.schedule import build_schedule
+from server.app.to_core import to_core
+from server.caution import CAUTION_LINE as CAUTION
 from server.core.evaluate import GridEvaluator, evaluate_project, with_pareto
-from server.exports import CAUTION
-from server.schedule import build_schedule
-from server.to_core import to_core
 
 ROOT = Path(__file__).resolve().parents[1]
 TINY = ROOT / "tests" / "data" / "tiny-model.json"
@@ -145,7 +145,7 @@ def test_json_numbers_match_the_core(tiny_json):
     assert [p["depth_m"] for p in doc["probes"]] == pytest.approx(
         [plan.depth_m for plan in result.plans]
     )
-    # DESIGN.md "Numbers reported": mobilisation once per method used + per location + per
+    # docs/model.md "Numbers reported": mobilisation once per method used + per location + per
     # metre x planned depth; each method row adds up, and the rows add up to the total.
     methods = {m["id"]: m for m in model["methods"]}
     by_method = doc["by_method"]
@@ -224,7 +224,7 @@ def test_geopackage_needs_a_file():
     one_line_error(cli(str(TINY), "--format", "gpkg"), "-o")
 
 
-# ---------------------------------------------------------------- server.schedule
+# ---------------------------------------------------------------- server.app.schedule
 
 
 def test_given_results_give_the_same_schedule():

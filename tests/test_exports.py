@@ -1,4 +1,4 @@
-"""Schedule and posterior-grid writers (server/exports.py): CSV, GeoJSON and GeoPackage.
+"""Schedule and posterior-grid writers (server/io/exports.py): CSV, GeoJSON and GeoPackage.
 
 Round trips read the files back with the csv module and geopandas; WGS 84 coordinates are
 checked against pyproj's Transformer.
@@ -17,7 +17,7 @@ import pytest
 from io_builders import placed_model
 from pyproj import Transformer
 
-from server import exports
+from server.io import exports
 
 PLANNED = [
     {

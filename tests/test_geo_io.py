@@ -1,4 +1,4 @@
-"""Site polygons in from GIS files (server/geo_io.py).
+"""Site polygons in from GIS files (server/io/geo_io.py).
 
 Files are written in the test by geopandas (GeoPackage, Shapefile), zipfile and json; areas
 after reprojection are checked against pyproj's own Transformer applied to the same vertices.
@@ -21,10 +21,10 @@ from io_builders import BNG_OFFSET, placed_model
 from pyproj import Transformer
 from shapely.geometry import LineString, Polygon, box, mapping, shape
 
-from server import geo_io
 from server.errors import InputError
-from server.geo_io import apply_polygons, check_project_crs, list_layers, read_polygons
-from server.model_file import validate_model
+from server.io import geo_io
+from server.io.geo_io import apply_polygons, check_project_crs, list_layers, read_polygons
+from server.io.model_file import validate_model
 
 # Frames written without a CRS on purpose (site-grid data) make pyogrio warn.
 pytestmark = pytest.mark.filterwarnings("ignore:'crs' was not provided")

@@ -1,7 +1,7 @@
 """The model file (schema "probewise/1"): every validation rule, the demo, the canonical dump.
 
 Each broken case is a copy of tests/data/tiny-model.json with one change; the rule it breaks
-is the contract in shared MODEL-FILE.md (or the brief's rules for the validator).
+is the contract in docs/model-file.md.
 """
 
 from __future__ import annotations
@@ -18,7 +18,7 @@ from hypothesis import strategies as st
 from model_edits import DELETE, edited, json_paths
 
 from server.errors import InputError
-from server.model_file import (
+from server.io.model_file import (
     MAX_EXISTING,
     MAX_LAYOUT_PROBES,
     MAX_LAYOUTS,
@@ -321,7 +321,7 @@ def test_broken_copy_names_field_and_problem(path, value, field, words):
     assert "Input should" not in error.problem  # no pydantic jargon
 
 
-def test_brief_example_message_min_above_max():
+def test_message_for_min_above_max():
     model = changed(["units", 2, "thickness_m"], rng(4.0, 3.5, 3.0))
     assert str(problem_of(model)) == "units[2].thickness_m: min 4.0 is above max 3.0"
 
@@ -565,7 +565,7 @@ def test_demo_validates_and_is_marked_invented(demo_model):
     assert list_notes(model) == []  # no planned probe in an exclusion
 
 
-def test_demo_has_the_scenario_the_brief_asks_for(demo_model):
+def test_demo_has_its_invented_scenario(demo_model):
     model = validate_model(demo_model)
     assert model["crs"] == "EPSG:27700"
     assert len(model["units"]) >= 5
@@ -688,7 +688,7 @@ def test_lone_surrogate_text_is_refused(tiny_model, where, field):
 
 
 def test_unique_names_number_repeats(tiny_model):
-    from server.model_file import unique_layout_name, unique_name
+    from server.io.model_file import unique_layout_name, unique_name
 
     assert unique_name("Stage 1", []) == "Stage 1"
     assert unique_name("Stage 1", ["Stage 1", "Stage 1 (2)"]) == "Stage 1 (3)"

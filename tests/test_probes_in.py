@@ -1,4 +1,4 @@
-"""Existing probes in from CSV/XLSX tables and AGS4 files (server/probes_in.py).
+"""Existing probes in from CSV/XLSX tables and AGS4 files (server/io/probes_in.py).
 
 Every file is built by the test. AGS4 text follows the published AGS4 layout (GROUP, HEADING,
 UNIT, TYPE and DATA rows) and is read back with the python-ags4 library itself.
@@ -22,8 +22,8 @@ from io_builders import (
 )
 
 from server.errors import InputError
-from server.model_file import validate_model
-from server.probes_in import (
+from server.io.model_file import validate_model
+from server.io.probes_in import (
     ags4_legends,
     ags4_to_existing,
     merge_existing,

@@ -8,10 +8,8 @@
   GeoPackage (one point layer per boundary);
 - model: the validated model file itself (JSON).
 
-The format comes from ``--format`` or the extension of OUT. The few functions here that reach
-into the core (``schedule_probe_rows``, ``posterior_grid``) are the only coupling to it.
-Shared helpers for the import commands live here too (``read_model``, ``write_model``,
-``parse_pairs``).
+The format comes from ``--format`` or the extension of OUT; the rows and grids come from
+``server.app.outputs``.
 """
 
 from __future__ import annotations
@@ -20,6 +18,9 @@ import argparse
 import json
 from pathlib import Path
 
+from server.app.outputs import posterior_grid, schedule_probe_rows
+from server.app.project import read_model, write_model
+from server.caution import CAUTION_LINE
 from server.errors import InputError
 
 FORMATS = {
@@ -30,36 +31,6 @@ FORMATS = {
 SUFFIX_FORMATS = {".csv": "csv", ".geojson": "geojson", ".json": "json", ".gpkg": "gpkg"}
 
 
-# ---------------------------------------------------------------------------------------------
-# Helpers shared with import-probes and import-gis
-
-
-def read_model(path: str) -> dict:
-    """Read and validate a model file (InputError naming MODEL on any fault)."""
-    from server.model_file import load_model_file
-
-    return load_model_file(path)
-
-
-def write_model(model: dict, path: str) -> None:
-    """Write a model file in canonical form (validated), replacing OUT only when complete."""
-    from server.exports import write_text_file
-    from server.model_file import dump_model
-
-    write_text_file(dump_model(model), path)
-
-
-def parse_pairs(items: list[str] | None, option: str) -> dict[str, str]:
-    """``["A=B", ...]`` -> {"A": "B"}; the first "=" splits; InputError naming the option."""
-    out: dict[str, str] = {}
-    for item in items or []:
-        key, sep, value = item.partition("=")
-        if not sep or not key.strip():
-            raise InputError(option, f"expected KEY=VALUE, got {item!r}")
-        out[key.strip()] = value.strip()
-    return out
-
-
 def output_format(given: str | None, out: str, what: str) -> str:
     """The output format: ``--format``, else the extension of OUT; checked against ``what``."""
     fmt = given or SUFFIX_FORMATS.get(Path(out).suffix.lower())
@@ -68,70 +39,6 @@ def output_format(given: str | None, out: str, what: str) -> str:
     if fmt not in FORMATS[what]:
         raise InputError("--format", f"{what} exports as {', '.join(FORMATS[what])}, not {fmt}")
     return fmt
-
-
-# ---------------------------------------------------------------------------------------------
-# Adapters to the core
-
-
-def _layout(analysis, project, name: str):
-    try:
-        return analysis.layout(name)
-    except KeyError:
-        known = ", ".join(repr(lay.name) for lay in project.layouts) or "(none)"
-        raise InputError("--layout", f"no layout named {name!r}; layouts are: {known}") from None
-
-
-def schedule_probe_rows(model: dict, layout_name: str) -> list[dict]:
-    """The schedule rows of a layout (the same rows ``probewise schedule`` writes).
-
-    Adapter to the core: planned depth and observed set against the existing probes
-    (DESIGN.md "Planned depth", "Observed set").
-    """
-    from server.core.analysis import ProjectAnalysis
-    from server.schedule import probe_rows
-    from server.to_core import to_core
-
-    project = to_core(model)
-    analysis = ProjectAnalysis(project)
-    layout = _layout(analysis, project, layout_name)
-    if not layout.probes:
-        raise InputError("--layout", f"layout {layout_name!r} has no probes")
-    return probe_rows(project, analysis.plan(layout))
-
-
-def posterior_grid(model: dict, layout_name: str | None):
-    """(xy (n, 2) project coordinates, boundary names, fields {name: (n, B)}) on the grid.
-
-    Adapter to the core: the evaluation grid of the site, conditioned on the existing probes
-    and, when named, the layout's planned probes; P50 is the median of the truncated
-    posterior, like P5 and P95.
-    """
-    import numpy as np
-
-    from server.core.analysis import ProjectAnalysis
-    from server.core.bounds import truncated_quantiles
-    from server.core.grid import EmptyGridError, evaluation_grid
-    from server.to_core import to_core
-
-    project = to_core(model)
-    analysis = ProjectAnalysis(project)
-    layout = _layout(analysis, project, layout_name) if layout_name else None
-    try:
-        grid = evaluation_grid(project.site, analysis.origin)
-    except EmptyGridError as exc:
-        raise InputError("grid_spacing_m", str(exc)) from None
-    xy = grid.xy + np.asarray(analysis.origin)
-    post = analysis.at_points(xy, layout)
-    p50 = truncated_quantiles(post.mean_m, post.std_m, post.lo_m, post.hi_m, 0.5)
-    fields = {
-        "mean_m": post.mean_m,
-        "std_m": post.std_m,
-        "p05_m": post.p05_m,
-        "p50_m": p50,
-        "p95_m": post.p95_m,
-    }
-    return xy, project.ground.boundary_names, fields
 
 
 # ---------------------------------------------------------------------------------------------
@@ -156,7 +63,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    from server import exports
+    from server.io import exports
 
     model = read_model(args.model)
     fmt = output_format(args.format, args.output, args.what)
@@ -193,5 +100,5 @@ def run(args: argparse.Namespace) -> int:
         )
     for note in notes:
         print(f"note: {note}")
-    print(exports.CAUTION)
+    print(CAUTION_LINE)
     return 0

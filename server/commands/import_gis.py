@@ -13,7 +13,7 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from server.commands.export import read_model, write_model
+from server.app.project import read_model, write_model
 from server.errors import InputError
 
 # The flag that sets each reader option a message calls for (server.errors.OptionNeededError).
@@ -60,7 +60,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 def run(args: argparse.Namespace) -> int:
     from server.errors import OptionNeededError
-    from server.geo_io import (
+    from server.io.geo_io import (
         apply_polygons,
         check_project_crs,
         features_outside_site,

@@ -15,7 +15,8 @@ import argparse
 import json
 from pathlib import Path
 
-from server.commands.export import parse_pairs, read_model, write_model
+from server.app.project import read_model, write_model
+from server.commands.options import parse_pairs
 from server.errors import InputError
 
 FORMAT_SUFFIXES = {".csv": "csv", ".txt": "csv", ".xlsx": "xlsx", ".ags": "ags4"}
@@ -169,14 +170,14 @@ def _run(args: argparse.Namespace) -> int:
             "fix them or leave them out (--skip-problems)",
         )
     if outside and not args.leave_outside:
-        from server.probes_in import outside_error
+        from server.io.probes_in import outside_error
 
         raise outside_error(name, outside)
     importable = [p for p in probes if p["id"] not in set(outside)]
     if not importable:
         raise InputError(name, "no probe left to import")
 
-    from server.probes_in import merge_existing
+    from server.io.probes_in import merge_existing
 
     updated = merge_existing(model, importable, mode="replace" if args.replace else "append")
     write_model(updated, args.output)
@@ -194,7 +195,7 @@ def _run(args: argparse.Namespace) -> int:
 
 
 def _from_table(args, model, data, name, mapping):
-    from server.probes_in import preview_csv
+    from server.io.probes_in import preview_csv
 
     preview = preview_csv(
         data,
@@ -222,7 +223,7 @@ def _from_table(args, model, data, name, mapping):
 
 
 def _from_ags4(args, model, data, name, mapping):
-    from server.probes_in import ags4_legends, ags4_to_existing, read_ags4
+    from server.io.probes_in import ags4_legends, ags4_to_existing, read_ags4
 
     holes = read_ags4(data, filename=name)
     legends = ags4_legends(holes)

@@ -4,7 +4,7 @@ Boundary depths at points: prior mean and std, posterior mean and std (Gaussian)
 P5/P95 of the truncated posterior. Without ``--layout`` only the existing probes condition
 it; with one, the layout's planned probes reduce the uncertainty too (the mean stays where
 the existing probes put it). Points outside the site are answered (and marked so in the table).
-With ``--json`` it prints exactly the document of MODEL-FILE.md ("CLI output contract").
+With ``--json`` it prints exactly the document of docs/model-file.md ("CLI output contract").
 """
 
 from __future__ import annotations
@@ -69,7 +69,8 @@ def posterior_json(names: tuple[str, ...], post) -> dict:
 
 
 def posterior_text(names, post, inside, layout_name: str | None) -> str:
-    from server.commands.evaluate import CAUTION, format_table
+    from server.caution import CAUTION_LINE
+    from server.commands.tables import format_table
 
     given = f"existing probes and layout '{layout_name}'" if layout_name else "existing probes"
     parts = [f"Boundary depths (m below ground level) given {given}"]
@@ -94,14 +95,14 @@ def posterior_text(names, post, inside, layout_name: str | None) -> str:
             for k, name in enumerate(names)
         ]
         parts += ["", f"Point X {x:.2f} m, Y {y:.2f} m{where}", format_table(headers, rows)]
-    parts += ["", CAUTION]
+    parts += ["", CAUTION_LINE]
     return "\n".join(parts)
 
 
 def run(args: argparse.Namespace) -> int:
     import numpy as np
 
-    from server.commands.evaluate import load_project
+    from server.app.project import load_project
     from server.core.analysis import ProjectAnalysis
     from server.core.geometry import points_in_polygon
     from server.errors import InputError

@@ -15,16 +15,18 @@ import json
 import sys
 from dataclasses import replace
 
-from server.commands.evaluate import CAUTION, format_table, load_project
-from server.commands.optimise import (
+from server.app.project import load_project
+from server.caution import CAUTION_LINE
+from server.commands.options import (
     ProgressBar,
     add_optimiser_arguments,
     optimiser_input_error,
     optimiser_options,
     parse_positive,
 )
+from server.commands.tables import format_table
 from server.errors import InputError
-from server.model_file import unique_name
+from server.io.model_file import unique_name
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -123,7 +125,7 @@ def ranking_text(ranked, currency: str) -> str:
             "Options ranked by cost (Pareto: no other option gains as much for less)",
             format_table(headers, rows, left=2),
             "",
-            CAUTION,
+            CAUTION_LINE,
         ]
     )
 

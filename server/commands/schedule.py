@@ -1,6 +1,6 @@
 """`probewise schedule MODEL [--layout NAME] [--format text|csv|geojson|gpkg|json] [-o OUT]`.
 
-The scoping schedule of one layout, built by ``server.schedule`` (the same as the web page's
+The scoping schedule of one layout, built by ``server.app.schedule`` (the same as the web page's
 Schedule): the probe list with target depths and the boundaries each probe is expected to
 reveal, cost and duration by method, totals, the justification written from the numbers
 and the caution. Without ``--layout`` the layout is the one the web page shows first: the
@@ -8,7 +8,7 @@ Pareto-efficient option that buys the most information per unit cost.
 
 - text (default): a printable schedule;
 - json: ``{"project", "layout", "currency", "crs", "date", "probes", "by_method", "totals",
-  "main_boundary", "justification", "caution"}`` (``server.schedule.schedule_json``);
+  "main_boundary", "justification", "caution"}`` (``server.app.schedule.schedule_json``);
 - csv, geojson, gpkg: the probe list as ``probewise export --what schedule`` writes it
   (a GeoPackage needs ``-o``).
 
@@ -24,6 +24,7 @@ import sys
 import textwrap
 from datetime import date
 
+from server.caution import CAUTION_LINE
 from server.errors import InputError
 
 FORMATS = ("text", "csv", "geojson", "gpkg", "json")
@@ -60,7 +61,7 @@ def _wrap(text: str) -> str:
 
 def schedule_text(schedule, today: str) -> str:
     """The schedule as plain text for a printer: header, probes, methods, totals, why, caution."""
-    from server.commands.evaluate import format_table
+    from server.commands.tables import format_table
 
     cur = f" ({schedule.currency})" if schedule.currency else ""
     t = schedule.totals
@@ -253,15 +254,15 @@ def _emit(text: str, out: str | None) -> None:
     if out is None:
         sys.stdout.write(text)
     else:
-        from server.exports import write_text_file
+        from server.io.exports import write_text_file
 
         write_text_file(text, out)
 
 
 def run(args: argparse.Namespace) -> int:
-    from server import exports
-    from server.commands.evaluate import load_project
-    from server.schedule import build_schedule, evaluator_of, schedule_json
+    from server.app.project import load_project
+    from server.app.schedule import build_schedule, evaluator_of, schedule_json
+    from server.io import exports
 
     if args.format == "gpkg" and not args.output:
         raise InputError("-o", "a GeoPackage is a file: name it with -o OUT")
@@ -306,10 +307,10 @@ def run(args: argparse.Namespace) -> int:
         for note in notes:
             print(f"note: {note}")
         if args.format in ("csv", "gpkg"):
-            print(exports.CAUTION)
+            print(CAUTION_LINE)
     else:
         for note in notes:
             sys.stderr.write(f"note: {note}\n")
         if args.format == "csv":
-            sys.stderr.write(f"{exports.CAUTION}\n")
+            sys.stderr.write(f"{CAUTION_LINE}\n")
     return 0

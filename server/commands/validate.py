@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import argparse
 
-from server.model_file import list_notes, load_model_file, summarise_model
+from server.io.model_file import list_notes, load_model_file, summarise_model
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:

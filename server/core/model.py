@@ -1,7 +1,7 @@
 """Frozen dataclasses that carry a project into the numerical core.
 
-The model file (``server/model_file.py``) is validated with pydantic and converted to these
-by ``server/to_core.py``; nothing in ``server/core`` sees JSON, the database or the web.
+The model file (``server/io/model_file.py``) is validated with pydantic and converted to these
+by ``server/app/to_core.py``; nothing in ``server/core`` sees JSON, the database or the web.
 
 Conventions
 -----------

@@ -67,7 +67,7 @@ class RevisionInfo:
 
 def _validate(model: dict) -> dict:
     """The store never holds an invalid model: raises server.errors.InputError, else normalises."""
-    from server.model_file import validate_model
+    from server.io.model_file import validate_model
 
     return validate_model(model)
 

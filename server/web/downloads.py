@@ -9,7 +9,7 @@ from urllib.parse import quote
 import sqlite_utils
 from starlette.responses import Response
 
-from server.model_file import dump_model
+from server.io.model_file import dump_model
 from server.store import export_project
 
 

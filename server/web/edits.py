@@ -32,7 +32,7 @@ from fastapi import Depends, Request
 from starlette.datastructures import FormData, UploadFile
 
 from server.errors import InputError
-from server.model_file import validate_all
+from server.io.model_file import validate_all
 from server.store import (
     StoredProject,
     get_project,
@@ -435,7 +435,7 @@ def run_edit(
 
 def _same_model(edited: dict, stored: dict) -> bool:
     """Equal after the validator's normalisation (5 and 5.0 are the same number)."""
-    from server.model_file import validate_model
+    from server.io.model_file import validate_model
 
     try:
         return validate_model(edited) == stored

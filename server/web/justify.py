@@ -1,6 +1,6 @@
 """The schedule's template filters; the justification text itself is built outside the web.
 
-``server.justification`` writes the paragraph from the numbers (shared with
+``server.app.justification`` writes the paragraph from the numbers (shared with
 ``probewise schedule``); its names are re-exported here for the pages that used them.
 """
 
@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import math
 
-from server.justification import (
+from server.app.justification import (
     MainBoundary,
     OptionFigures,
     bits_text,

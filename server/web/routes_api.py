@@ -4,7 +4,7 @@ Errors: ``{"detail": "message"}``, or ``{"detail": [{"field", "problem"}]}`` for
 (422). A stale ``expected_revision`` gives 409 and changes nothing.
 
 ``GET /api/projects/{id}/evaluation`` answers the document of ``probewise evaluate --json``
-(MODEL-FILE.md), computed once per project revision (server/web/evaluation_cache.py).
+(docs/model-file.md), computed once per project revision (server/app/results.py).
 """
 
 from __future__ import annotations
@@ -17,7 +17,8 @@ from fastapi import Path as PathParam
 from pydantic import BaseModel, Field
 from starlette.responses import JSONResponse, Response
 
-from server.commands.evaluate import evaluation_json
+from server.app.contract import evaluation_json
+from server.app.results import project_results
 from server.core.evaluate import Evaluation
 from server.errors import InputError
 from server.store import (
@@ -33,7 +34,6 @@ from server.store import (
 )
 from server.web.deps import Db
 from server.web.downloads import model_file_response
-from server.web.evaluation_cache import project_results
 
 SQLITE_MAX_INTEGER = 2**63 - 1  # a larger id cannot even be looked up
 

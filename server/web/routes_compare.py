@@ -3,33 +3,40 @@ the uncertainty before and after the chosen option, and a section along a line.
 
 The page itself answers at once: it is a shell whose heavy part (``_compare_results.html``)
 loads with ``hx-get`` on load, computed from the shared per-revision results
-(``evaluation_cache``). Figures are images served by their own routes and cached per revision:
+(``server.app.results``). Figures are images served by their own routes and cached per revision:
 ``chart.svg``, ``map.png`` (one boundary, before and after) and ``section.png``.
 """
 
 from __future__ import annotations
 
-import math
-from dataclasses import dataclass
 from typing import Any
 from urllib.parse import urlencode
 
 import numpy as np
-import shapely
 import sqlite_utils
 from fastapi import APIRouter, Request
 from starlette.responses import Response
 
+from server.app.layouts import KIND_LABELS
+from server.app.results import ProjectResults, project_results, results_of
+from server.app.sections import SectionLine, default_section, read_section
 from server.core.bounds import truncated_quantiles
 from server.core.evaluate import LayoutResult
 from server.errors import InputError
-from server.model_file import to_shapely
 from server.store import get_project
 from server.web import plots
 from server.web.deps import Db
-from server.web.evaluation_cache import KIND_LABELS, ProjectResults, project_results, results_of
 from server.web.justify import register_template_filters
-from server.web.routes_options import map_data
+from server.web.map_data import map_data
+from server.web.result_figures import (
+    chosen_layout,
+    current_revision_named,
+    existing_points,
+    image_response,
+    planned_points,
+    raster_of,
+    section_layout,
+)
 from server.web.templating import render, render_page_or_fragment
 from server.web.workflow import project_context
 
@@ -42,68 +49,10 @@ QUANTITIES = {
 }
 QUANTITY_PHRASES = {"std": "posterior standard deviation", "width": "P5\u2013P95 width"}
 SECTION_SAMPLES = 200
-MIN_SECTION_M = 1.0
-IMAGE_CACHE = "private, max-age=3600"
-
-
-# ---------------------------------------------------------------- shared with the schedule
 
 
 def quantity_of(value: str | None) -> str:
     return value if value in QUANTITIES else "std"
-
-
-def image_response(content: bytes, media_type: str, current: bool) -> Response:
-    """An image; cacheable when the URL named the current revision (it never changes)."""
-    headers = {"Cache-Control": IMAGE_CACHE if current else "no-store"}
-    return Response(content, media_type=media_type, headers=headers)
-
-
-def raster_of(entry: ProjectResults) -> plots.GridRaster:
-    grid = entry.evaluator.grid
-    corner = np.vstack(entry.project.site.outline.rings).min(axis=0)
-    return plots.GridRaster(
-        grid.index, grid.shape, (float(corner[0]), float(corner[1])), grid.spacing_m
-    )
-
-
-def existing_points(entry: ProjectResults) -> list[plots.MapProbePoint]:
-    methods = entry.project.methods
-    return [
-        plots.MapProbePoint(
-            p.id,
-            p.x,
-            p.y,
-            methods[p.method].kind if p.method in methods else "other",
-            existing=True,
-        )
-        for p in entry.project.existing
-    ]
-
-
-def planned_points(entry: ProjectResults, result: LayoutResult) -> list[plots.MapProbePoint]:
-    methods = entry.project.methods
-    return [
-        plots.MapProbePoint(
-            plan.probe.id, plan.probe.x, plan.probe.y, methods[plan.probe.method].kind
-        )
-        for plan in result.plans
-    ]
-
-
-def chosen_layout(entry: ProjectResults, wanted: str | None) -> str | None:
-    """The layout asked for when it exists, else the page's default option."""
-    if wanted and wanted in entry.layout_names:
-        return wanted
-    return entry.default_layout()
-
-
-def section_layout(entry: ProjectResults, wanted: str | None) -> str:
-    """The layout a section shows; a project without layouts has no section (InputError)."""
-    chosen = chosen_layout(entry, wanted)
-    if chosen is None:
-        raise InputError("layout", "the project has no layout to show in a section")
-    return chosen
 
 
 def boundary_title(name: str) -> str:
@@ -166,71 +115,6 @@ def chart_svg(entry: ProjectResults, chosen: str | None) -> bytes:
 
 
 # ---------------------------------------------------------------- section
-
-
-@dataclass(frozen=True)
-class SectionLine:
-    x1: float
-    y1: float
-    x2: float
-    y2: float
-
-    @property
-    def length_m(self) -> float:
-        return math.hypot(self.x2 - self.x1, self.y2 - self.y1)
-
-    def query(self) -> dict[str, str]:
-        return {k: f"{getattr(self, k):.2f}" for k in ("x1", "y1", "x2", "y2")}
-
-
-def default_section(model: dict[str, Any]) -> SectionLine:
-    """Along the site's long axis, through its centre, clipped to the outline."""
-    site = to_shapely(model["site"])
-    rect = site.minimum_rotated_rectangle
-    coords = np.asarray(rect.exterior.coords)[:4] if rect.geom_type == "Polygon" else None
-    centre = site.representative_point()
-    if coords is None:
-        minx, miny, maxx, maxy = site.bounds
-        return SectionLine(minx, (miny + maxy) / 2, maxx, (miny + maxy) / 2)
-    edges = [coords[(i + 1) % 4] - coords[i] for i in range(4)]
-    long_edge = max(edges, key=lambda e: float(np.hypot(*e)))
-    direction = long_edge / max(float(np.hypot(*long_edge)), 1e-9)
-    reach = float(np.hypot(*long_edge))
-    a = np.array([centre.x, centre.y]) - direction * reach
-    b = np.array([centre.x, centre.y]) + direction * reach
-    clipped = site.intersection(shapely.LineString([a, b]))
-    parts = getattr(clipped, "geoms", [clipped])
-    longest = max(parts, key=lambda g: g.length, default=None)
-    if longest is None or longest.is_empty or longest.length < MIN_SECTION_M:
-        minx, miny, maxx, maxy = site.bounds
-        return SectionLine(minx, (miny + maxy) / 2, maxx, (miny + maxy) / 2)
-    (x1, y1), (x2, y2) = longest.coords[0], longest.coords[-1]
-    if x2 < x1:  # read west to east
-        x1, y1, x2, y2 = x2, y2, x1, y1
-    return SectionLine(round(x1, 1), round(y1, 1), round(x2, 1), round(y2, 1))
-
-
-def read_section(params: dict[str, str], model: dict[str, Any]) -> SectionLine:
-    """The line from query parameters (all four or none: the default line)."""
-    keys = ("x1", "y1", "x2", "y2")
-    given = {k: (params.get(k) or "").strip() for k in keys}
-    if not any(given.values()):
-        return default_section(model)
-    values = {}
-    for k in keys:
-        try:
-            value = float(given[k].replace("\u2212", "-"))
-        except ValueError:
-            raise InputError(
-                k, f"{given[k]!r} is not a number" if given[k] else "is required"
-            ) from None
-        if not math.isfinite(value):
-            raise InputError(k, "must be a finite number")
-        values[k] = value
-    line = SectionLine(**values)
-    if line.length_m < MIN_SECTION_M:
-        raise InputError("section", f"the two ends must be at least {MIN_SECTION_M:g} m apart")
-    return line
 
 
 def section_png(entry: ProjectResults, layout: str, line: SectionLine) -> bytes:
@@ -489,10 +373,6 @@ def compare_section(
         **section_context(entry, project_id, chosen, line, notice),
     }
     return render(request, "_compare_section_figure.html", context, status_code=status)
-
-
-def current_revision_named(request: Request, entry: ProjectResults) -> bool:
-    return request.query_params.get("rev") == str(entry.revision)
 
 
 @router.get("/projects/{project_id}/compare/chart.svg")

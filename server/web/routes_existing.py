@@ -3,7 +3,7 @@
 Rows are edited one at a time (``?edit=N`` opens row N), added and deleted; probes come in
 from CSV/XLSX tables (preview, then import) or AGS4 files (a mapping step assigns each
 geology code to a project unit and each location type to a method, then preview, then
-import) through server.probes_in. Probes outside the site are listed and only left out when
+import) through server.io.probes_in. Probes outside the site are listed and only left out when
 the user ticks that box; a bad file stores nothing.
 """
 
@@ -16,8 +16,8 @@ import sqlite_utils
 from fastapi import APIRouter, Request
 from starlette.responses import Response
 
-from server import probes_in
 from server.errors import InputError
+from server.io import probes_in
 from server.store import StoredProject, get_project
 from server.web.deps import Db
 from server.web.edits import (
@@ -29,7 +29,7 @@ from server.web.edits import (
     PostedForm,
     item_at,
 )
-from server.web.routes_site import build_map_data
+from server.web.map_data import build_map_data
 
 router = APIRouter(include_in_schema=False)
 

@@ -21,7 +21,7 @@ from starlette.responses import Response
 from server.core.model import ThicknessRange
 from server.core.priors import thickness_moments
 from server.errors import InputError
-from server.model_file import CORRELATION_MODELS, SHAPES
+from server.io.model_file import CORRELATION_MODELS, SHAPES
 from server.store import StoredProject, get_project, get_revision
 from server.web.charts import thickness_chart_svg, thickness_charts
 from server.web.deps import Db
@@ -33,7 +33,7 @@ from server.web.edits import (
     PostedForm,
     item_at,
 )
-from server.web.routes_site import parse_polygon_text, polygon_text
+from server.web.polygon_text import parse_polygon_text, polygon_text
 from server.web.summary import depth_limits
 
 router = APIRouter(include_in_schema=False)

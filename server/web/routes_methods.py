@@ -13,7 +13,7 @@ import sqlite_utils
 from fastapi import APIRouter, Request
 from starlette.responses import Response
 
-from server.model_file import METHOD_KINDS
+from server.io.model_file import METHOD_KINDS
 from server.store import StoredProject
 from server.web.deps import Db
 from server.web.edits import EditPage, EditRefused, EditResult, FormReader, PostedForm, item_at

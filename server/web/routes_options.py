@@ -1,5 +1,5 @@
 """Options: the project's layouts, edited on a map or in a table, a guidance grid generator and
-the optimiser (started here, run by routes_jobs.py).
+the optimiser (started here, run by server/app/optimiser_jobs.py).
 
 The page's fragment is ``_options.html`` (root ``#options``); every action answers with it
 whole, so the layouts list, the probe table, the revision and the undo button always agree.
@@ -25,9 +25,12 @@ import sqlite_utils
 from fastapi import APIRouter, Request
 from starlette.responses import Response
 
+from server.app.layouts import KIND_LABELS, layout_kind
+from server.app.optimiser_jobs import latest_optimiser_job
+from server.app.results import results_of
 from server.core.options import GUIDANCE_SPACINGS, guidance_grid_layout
 from server.errors import InputError
-from server.model_file import to_shapely, unique_layout_name
+from server.io.model_file import to_shapely, unique_layout_name
 from server.store import StoredProject, get_project
 from server.web.deps import Db
 from server.web.edits import (
@@ -40,9 +43,7 @@ from server.web.edits import (
     run_edit,
     run_undo,
 )
-from server.web.evaluation_cache import KIND_LABELS, layout_kind, results_of
-from server.web.routes_jobs import latest_optimiser_job
-from server.web.routes_site import build_map_data
+from server.web.map_data import map_data
 from server.web.summary import layout_rows
 from server.web.templating import kind_label, render_action, render_page_or_fragment
 
@@ -127,11 +128,6 @@ def layout_warnings(model: dict[str, Any], name: str | None) -> list[str]:
 
 
 # ---------------------------------------------------------------- page context
-
-
-def map_data(model: dict[str, Any]) -> dict[str, Any]:
-    """What static/js/sitemap.js draws besides the layout's probes (project coordinates)."""
-    return build_map_data(model, include_layouts=False)
 
 
 def probes_data(

@@ -13,7 +13,7 @@ from fastapi import APIRouter, File, Request, UploadFile
 from starlette.responses import Response
 
 from server.errors import InputError
-from server.model_file import parse_model_text
+from server.io.model_file import parse_model_text
 from server.store import (
     create_project,
     delete_project,

@@ -5,7 +5,7 @@ kept out of tables and figures, navigation and buttons hidden): a header with th
 the date and the revision; the probe table (id, method, coordinates, target depth, the
 boundaries each probe is expected to reveal, its estimated cost); cost and duration by method;
 the site plan and the uncertainty map after the option; a justification written from the
-numbers (server/schedule.py, server/justification.py); and the caution.
+numbers (server/app/schedule.py, server/app/justification.py); and the caution.
 """
 
 from __future__ import annotations
@@ -21,16 +21,16 @@ import sqlite_utils
 from fastapi import APIRouter, Request
 from starlette.responses import Response
 
+from server.app.results import ProjectResults, project_results, results_of
+from server.app.schedule import Schedule, build_schedule, main_boundary_index, probe_rows
 from server.errors import InputError
-from server.exports import write_schedule_csv, write_schedule_geojson, write_schedule_gpkg
-from server.schedule import Schedule, build_schedule, main_boundary_index, probe_rows
+from server.io.exports import write_schedule_csv, write_schedule_geojson, write_schedule_gpkg
 from server.store import get_project
 from server.web import plots
 from server.web.deps import Db
 from server.web.downloads import attachment_headers, slug_of
-from server.web.evaluation_cache import ProjectResults, project_results, results_of
 from server.web.justify import register_template_filters
-from server.web.routes_compare import (
+from server.web.result_figures import (
     chosen_layout,
     current_revision_named,
     existing_points,

@@ -5,8 +5,8 @@ Geometry as text: one "x, y" pair per line (commas, semicolons, tabs or spaces b
 two numbers); the ring is closed automatically. A blank line starts a hole in the polygon
 above it; for the site outline, a line "---" starts a further polygon (a MultiPolygon).
 
-``build_map_data(model)`` is what static/js/sitemap.js draws; GET /projects/{id}/site.json
-serves it for any page (the Options map reuses it).
+GET /projects/{id}/site.json serves what static/js/sitemap.js draws
+(``server.web.map_data``) for any page.
 """
 
 from __future__ import annotations
@@ -23,13 +23,14 @@ import sqlite_utils
 from fastapi import APIRouter, Request
 from starlette.responses import JSONResponse, Response
 
-from server import geo_io
 from server.core.grid import MAX_GRID_CELLS as CORE_MAX_GRID_CELLS
 from server.errors import InputError
+from server.io import geo_io
 from server.store import StoredProject, get_project
 from server.web.deps import Db
 from server.web.edits import EditPage, EditResult, FormReader, ImportArea, PostedForm, item_at
-from server.web.site_map import feature_bounds, label_point, polygon_rings
+from server.web.map_data import build_map_data
+from server.web.polygon_text import parse_polygon_text, polygon_text
 
 router = APIRouter(include_in_schema=False)
 
@@ -45,91 +46,6 @@ IMPORT_ROLES = (
     ("areas", "Areas of interest"),
     ("exclusions", "Exclusions"),
 )
-MAX_TEXT_POSITIONS = 20_000
-MULTI_SEPARATOR = "---"
-
-
-# ---------------------------------------------------------------- geometry as text
-
-
-def _position_text(position: list[float]) -> str:
-    def exact(value: float) -> str:
-        text = repr(float(value))
-        return text[:-2] if text.endswith(".0") else text
-
-    return f"{exact(position[0])}, {exact(position[1])}"
-
-
-def polygon_text(geometry: dict | None) -> str:
-    """A GeoJSON Polygon/MultiPolygon as editable lines (closing positions left out)."""
-    if not geometry:
-        return ""
-    kind = geometry.get("type")
-    polygons = (
-        [geometry.get("coordinates") or []]
-        if kind == "Polygon"
-        else geometry.get("coordinates") or []
-    )
-    blocks = []
-    for rings in polygons:
-        ring_texts = []
-        for ring in rings:
-            points = ring[:-1] if len(ring) > 1 and ring[0] == ring[-1] else ring
-            ring_texts.append("\n".join(_position_text(p) for p in points))
-        blocks.append("\n\n".join(ring_texts))
-    return f"\n{MULTI_SEPARATOR}\n".join(blocks)
-
-
-def parse_polygon_text(text: str, path: str, *, allow_multi: bool = False) -> dict:
-    """Lines of "x, y" -> a GeoJSON Polygon (or MultiPolygon); InputError names the line."""
-    polygons: list[list[list[list[float]]]] = [[[]]]
-    count = 0
-    for number, raw in enumerate(text.splitlines(), start=1):
-        line = raw.strip()
-        if line == MULTI_SEPARATOR:
-            if not allow_multi:
-                raise InputError(path, f"line {number}: only the site outline may have parts")
-            polygons.append([[]])
-            continue
-        if not line:
-            if polygons[-1][-1]:
-                polygons[-1].append([])  # a blank line after a ring: a hole follows
-            continue
-        parts = [p for p in re.split(r"[,;\t ]+", line) if p]
-        if len(parts) != 2:
-            raise InputError(path, f"line {number}: '{line[:40]}' is not one 'x, y' pair")
-        values = []
-        for part in parts:
-            try:
-                value = float(part)
-            except ValueError:
-                raise InputError(path, f"line {number}: '{part[:20]}' is not a number") from None
-            if not math.isfinite(value):
-                raise InputError(path, f"line {number}: '{part[:20]}' is not a finite number")
-            values.append(value)
-        count += 1
-        if count > MAX_TEXT_POSITIONS:
-            raise InputError(path, f"has more than {MAX_TEXT_POSITIONS} positions")
-        polygons[-1][-1].append(values)
-    out = []
-    for rings in polygons:
-        rings = [r for r in rings if r]
-        if not rings:
-            continue
-        closed = []
-        for r, ring in enumerate(rings):
-            if len(ring) > 1 and ring[0] == ring[-1]:
-                ring = ring[:-1]
-            what = "the outline" if r == 0 else f"hole {r}"
-            if len({tuple(p) for p in ring}) < 3:
-                raise InputError(path, f"{what} needs at least 3 different points")
-            closed.append([*ring, ring[0]])
-        out.append(closed)
-    if not out:
-        raise InputError(path, "is empty: give at least 3 'x, y' lines")
-    if len(out) == 1:
-        return {"type": "Polygon", "coordinates": out[0]}
-    return {"type": "MultiPolygon", "coordinates": out}
 
 
 # ---------------------------------------------------------------- derived figures
@@ -176,64 +92,6 @@ def vertex_count(geometry: dict | None) -> int:
     kind = geometry.get("type")
     polygons = [geometry["coordinates"]] if kind == "Polygon" else geometry.get("coordinates", [])
     return sum(max(len(ring) - 1, 0) for rings in polygons for ring in rings)
-
-
-# ---------------------------------------------------------------- map data (sitemap.js)
-
-
-def build_map_data(model: dict, *, include_layouts: bool = True) -> dict[str, Any]:
-    """Everything static/js/sitemap.js draws, in project coordinates (metres).
-
-    ``origin``: a round point at the lower left of everything, subtracted on the map to keep
-    numbers small. Probes carry their method's kind for the symbol.
-    """
-    methods = {
-        m["id"]: {"name": m.get("name", m["id"]), "kind": m.get("kind", "other")}
-        for m in model.get("methods") or []
-    }
-
-    def probe(p: dict, depth_key: str) -> dict[str, Any]:
-        """A probe on the map, with its method's kind and its depth under ``depth_key``."""
-        kind = methods.get(p["method"], {}).get("kind", "other")
-        return {
-            "id": p["id"],
-            "method": p["method"],
-            "kind": kind,
-            "x": p["x"],
-            "y": p["y"],
-            depth_key: p.get(depth_key),
-        }
-
-    def features(key: str, tag: str) -> list[dict[str, Any]]:
-        out = []
-        for n, item in enumerate(model.get(key) or [], start=1):
-            entry = {"tag": f"{tag}{n}", "name": item.get("name", ""), "geometry": item["geometry"]}
-            rings = polygon_rings(item["geometry"])
-            if rings:
-                entry["label"] = list(label_point(item["geometry"], rings))
-            if "weight" in item:
-                entry["weight"] = item["weight"]
-            out.append(entry)
-        return out
-
-    min_x, min_y, max_x, max_y = feature_bounds(model)
-    layouts = []
-    if include_layouts:
-        for layout in model.get("layouts") or []:
-            probes = [probe(p, "depth_m") for p in layout.get("probes") or []]
-            layouts.append({"name": layout["name"], "probes": probes})
-    return {
-        "crs": model.get("crs"),
-        "origin": [math.floor(min_x), math.floor(min_y)],
-        "bounds": [min_x, min_y, max_x, max_y],
-        "site": model.get("site"),
-        "zones": features("zones", "Z"),
-        "areas": features("areas_of_interest", "A"),
-        "exclusions": features("exclusions", "X"),
-        "existing": [probe(p, "final_depth_m") for p in model.get("existing") or []],
-        "layouts": layouts,
-        "methods": methods,
-    }
 
 
 # ---------------------------------------------------------------- the page
@@ -343,7 +201,7 @@ def save_settings(request: Request, project_id: int, form: PostedForm, db: Db) -
         old_crs = model.get("crs")
         if crs_text != old_crs:
             if crs_text and old_crs and reader.raw("crs_change") == "reproject":
-                from server.model_file import validate_all
+                from server.io.model_file import validate_all
 
                 problems = [p for p in validate_all({**model, "crs": crs_text}) if p.field == "crs"]
                 if problems:

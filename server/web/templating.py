@@ -18,15 +18,12 @@ from fastapi import Request
 from fastapi.templating import Jinja2Templates
 from starlette.responses import RedirectResponse, Response
 
+from server.caution import CAUTION
+
 REPO_ROOT = Path(__file__).resolve().parents[2]
 TEMPLATES_DIR = REPO_ROOT / "templates"
 STATIC_DIR = REPO_ROOT / "static"
 
-CAUTION = (
-    "probewise supports, and does not replace, the judgement of a qualified geotechnical "
-    "professional. Local codes, standards and licensed practice govern. Clear buried services "
-    "and obtain permits before any intrusive work."
-)
 
 METHOD_KIND_LABELS = {
     "borehole": "Borehole",

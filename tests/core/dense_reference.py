@@ -1,9 +1,9 @@
-"""An independent, plain implementation of DESIGN.md's probability model and metrics.
+"""An independent, plain implementation of docs/model.md's probability model and metrics.
 
 It reads the model-file dict directly (not the core dataclasses), builds dense covariance
 matrices entry by entry, solves with ``np.linalg.solve`` and takes truncated quantiles from
 ``scipy.stats.truncnorm``. Slow and simple on purpose: the fast path in ``server.core`` is
-checked against it. Source of every formula: DESIGN.md "Probability model" and "Numbers
+checked against it. Source of every formula: docs/model.md "Probability model" and "Numbers
 reported for a layout".
 """
 

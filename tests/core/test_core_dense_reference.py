@@ -1,6 +1,6 @@
-"""The fast path against an independent dense implementation of DESIGN.md (to 1e-6 m).
+"""The fast path against an independent dense implementation of docs/model.md (to 1e-6 m).
 
-Source: DESIGN.md "Probability model" and "Numbers reported for a layout", implemented plainly
+Source: docs/model.md "Probability model" and "Numbers reported for a layout", implemented plainly
 in tests/core/dense_reference.py (dense matrices, np.linalg.solve, scipy.stats.truncnorm).
 """
 
@@ -11,10 +11,10 @@ import pytest
 from core_helpers import shift_model, tiny_dict
 from dense_reference import Dense
 
-from server.commands.evaluate import evaluation_json
+from server.app.contract import evaluation_json
+from server.app.to_core import core_layout, to_core
 from server.core.analysis import ProjectAnalysis
 from server.core.evaluate import evaluate_project
-from server.to_core import core_layout, to_core
 
 TOL = 1e-6
 

@@ -1,4 +1,4 @@
-"""Geometry, evaluation grid and the reported numbers (DESIGN.md "Numbers reported")."""
+"""Geometry, evaluation grid and the reported numbers (docs/model.md "Numbers reported")."""
 
 from __future__ import annotations
 
@@ -6,11 +6,11 @@ import numpy as np
 import pytest
 from core_helpers import tiny_dict
 
+from server.app.to_core import core_polygon, to_core
 from server.core.evaluate import evaluate_project, information_gain_bits, pareto_flags
 from server.core.geometry import points_in_polygon, polygon_area_m2
 from server.core.grid import EmptyGridError, evaluation_grid
 from server.core.model import Layout, PlannedProbe, Polygon, Site
-from server.to_core import core_polygon, to_core
 
 SHAPE_WITH_HOLE = {
     "type": "MultiPolygon",
@@ -87,7 +87,7 @@ def test_grid_too_coarse_is_an_error():
 
 
 def test_cost_metres_and_duration_by_hand():
-    """Mobilisation once per method used + per location + per metre x depth (DESIGN.md)."""
+    """Mobilisation once per method used + per location + per metre x depth (docs/model.md)."""
     model = tiny_dict()
     model["layouts"] = [
         {

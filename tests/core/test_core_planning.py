@@ -1,4 +1,4 @@
-"""Planned depth and observed set of planned probes (DESIGN.md "Probability model": "Observed
+"""Planned depth and observed set of planned probes (docs/model.md "Probability model": "Observed
 set of a planned probe" and "Planned depth"), checked rule by rule on the tiny model with the
 P95 depths read from the existing-probes posterior at the same spot."""
 
@@ -8,9 +8,9 @@ import numpy as np
 import pytest
 from core_helpers import tiny_dict
 
+from server.app.to_core import to_core
 from server.core.analysis import ProjectAnalysis
 from server.core.model import Layout, PlannedProbe
-from server.to_core import to_core
 
 SPOT = (100.0, 60.0)
 

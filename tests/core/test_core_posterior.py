@@ -1,6 +1,6 @@
 """Posterior, covariance, zones, bounds and coincident probes; invariants with hypothesis.
 
-Sources: DESIGN.md "Probability model" for the rules; Gaussian conditioning identities
+Sources: docs/model.md "Probability model" for the rules; Gaussian conditioning identities
 (Rasmussen & Williams 2006, eq. 2.19-2.24) for the properties: the posterior variance lies
 between 0 and the prior, never grows when a reading is added, and is 0 at an exact reading.
 """
@@ -15,6 +15,7 @@ from core_helpers import one_unit_ground, tiny_dict
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
+from server.app.to_core import to_core
 from server.core.analysis import ProjectAnalysis
 from server.core.bounds import depth_bounds
 from server.core.covariance import boundary_covariance, cross_covariance_all
@@ -31,7 +32,6 @@ from server.core.model import (
     Zone,
 )
 from server.core.posterior import Observations, condition
-from server.to_core import to_core
 
 
 def square(x0, y0, x1, y1) -> Polygon:
@@ -41,7 +41,7 @@ def square(x0, y0, x1, y1) -> Polygon:
 # --- zones ----------------------------------------------------------------------------------
 def test_zone_override_applies_inside_the_zone_only():
     """Tiny model: the Old channel zone (80 <= x <= 120) gives Alluvial clay PERT(3, 6, 9):
-    mean (3 + 24 + 9)/6 = 6, variance (6-3)(9-6)/7 = 9/7 (DESIGN.md PERT moments); elsewhere
+    mean (3 + 24 + 9)/6 = 6, variance (6-3)(9-6)/7 = 9/7 (docs/model.md PERT moments); elsewhere
     the default triangular(1, 3, 6): mean 10/3, variance (1+9+36-3-6-18)/18 = 19/18."""
     project = to_core(tiny_dict())
     fields = unit_fields(project.ground, np.array([[100.0, 60.0], [30.0, 60.0]]))

@@ -138,7 +138,7 @@ def test_correlation_matches_gstools_correlation(model):
 
 
 def test_practical_range_is_about_five_percent():
-    """DESIGN.md: the practical range is where correlation falls to about 5% (exp(-3))."""
+    """docs/model.md: the practical range is where correlation falls to about 5% (exp(-3))."""
     r = 80.0
     assert correlate("exponential", np.array(r), r) == pytest.approx(math.exp(-3.0))
     assert correlate("gaussian", np.array(r), r) == pytest.approx(math.exp(-3.0))

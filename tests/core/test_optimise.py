@@ -26,6 +26,7 @@ from core_helpers import tiny_dict
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
+from server.app.to_core import to_core
 from server.core.analysis import ProjectAnalysis
 from server.core.evaluate import GridEvaluator, evaluate_project
 from server.core.geometry import points_in_polygon
@@ -45,8 +46,7 @@ from server.core.optimise import (
     upper_envelope,
 )
 from server.core.optimise_reference import greedy_reference
-from server.model_file import validate_model
-from server.to_core import to_core
+from server.io.model_file import validate_model
 
 ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT / "benchmarks"))

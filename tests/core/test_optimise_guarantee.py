@@ -17,10 +17,10 @@ from pathlib import Path
 
 import pytest
 
+from server.app.to_core import to_core
 from server.core.evaluate import GridEvaluator
 from server.core.optimise import OptimiseOptions, optimise, prepare_optimisation
-from server.model_file import validate_model
-from server.to_core import to_core
+from server.io.model_file import validate_model
 
 ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT / "benchmarks"))

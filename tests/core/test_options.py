@@ -2,7 +2,7 @@
 
 Checks against hand-computed values on the tiny example (tests/data/tiny-model.json, a
 200 m x 120 m site with a gas-main exclusion at x 150-200, y 90-120) and against the Pareto
-definition of DESIGN.md ("Numbers reported for a layout") written out independently.
+definition of docs/model.md ("Numbers reported for a layout") written out independently.
 """
 
 from __future__ import annotations
@@ -13,6 +13,7 @@ import numpy as np
 import pytest
 from core_helpers import tiny_dict
 
+from server.app.to_core import to_core
 from server.core.evaluate import GridEvaluator, evaluate_project
 from server.core.geometry import points_in_polygon
 from server.core.model import Layout, PlannedProbe
@@ -23,8 +24,7 @@ from server.core.options import (
     guidance_grid_layout,
     rank_options,
 )
-from server.model_file import validate_model
-from server.to_core import to_core
+from server.io.model_file import validate_model
 
 
 @pytest.fixture(scope="module")
@@ -81,7 +81,7 @@ def test_guidance_spacings_cite_their_source():
 
 
 def pareto_by_definition(costs, gains):
-    """DESIGN.md: efficient when no other option has at least its gain for at most its
+    """docs/model.md: efficient when no other option has at least its gain for at most its
     cost, with one of the two strictly better (written out independently of the code)."""
     out = []
     for i in range(len(costs)):

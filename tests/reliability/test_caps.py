@@ -16,6 +16,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from reliability_helpers import BASE_URL, store_snapshot
 
+from server.app.to_core import to_core
 from server.cli import main
 from server.core.evaluate import GridEvaluator, evaluate_project
 from server.core.geometry import points_in_polygon
@@ -33,7 +34,6 @@ from server.core.optimise import (
     OptimiseOptions,
     optimise,
 )
-from server.to_core import to_core
 from server.web.app import create_app
 
 

@@ -1,5 +1,5 @@
 """GET /api/projects/{id}/evaluation: the document of `probewise evaluate --json`
-(MODEL-FILE.md) for the project's current revision, recomputed when the project changes."""
+(docs/model-file.md) for the project's current revision, recomputed when the project changes."""
 
 from __future__ import annotations
 

@@ -255,12 +255,12 @@ def test_an_optimiser_run_that_cannot_run_fails_and_changes_nothing(client):
 
 def test_an_optimiser_run_that_crashes_fails_and_changes_nothing(client, monkeypatch):
     """An unexpected error inside the optimiser: the job ends "failed", nothing is saved."""
-    import server.web.routes_jobs as routes_jobs
+    import server.app.optimiser_jobs as optimiser_jobs
 
     def broken(*args, **kwargs):
         raise FloatingPointError("invented fault for the test")
 
-    monkeypatch.setattr(routes_jobs, "optimise", broken)
+    monkeypatch.setattr(optimiser_jobs, "optimise", broken)
     pid = client.post("/api/projects", json=TINY).json()["id"]
     before = project_state(client.db_path)
     job = wait_for_job(client, pid, start_job(client, pid, "20000"))

@@ -32,7 +32,7 @@ from schemathesis.checks import not_a_server_error
 from schemathesis.specs.openapi.checks import response_schema_conformance
 
 from server.errors import InputError
-from server.model_file import validate_model
+from server.io.model_file import validate_model
 from server.store import open_db, seed_demo_if_empty
 from server.web.app import DEMO_PROJECT_PATH, create_app
 

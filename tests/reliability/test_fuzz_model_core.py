@@ -6,7 +6,7 @@ contract's (0 <= min <= likely <= max, min < max). tests/test_model_file.py alre
 one path of a valid model at a time; here whole texts are corrupted and ranges are checked
 against the rule written out independently.
 
-The core: for random layouts on the tiny model, the numbers DESIGN.md reports keep their
+The core: for random layouts on the tiny model, the numbers docs/model.md reports keep their
 invariants: a probe never raises a posterior variance (so adding one never lowers the
 information gain, and gain >= 0); cost rises with every probe; widths and stds are positive
 and confident fractions lie in [0, 1]; the order of probes does not matter; Pareto flags
@@ -25,11 +25,11 @@ from corpus import TINY
 from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 
+from server.app.to_core import to_core
 from server.core.evaluate import GridEvaluator, pareto_flags
 from server.core.model import Layout, PlannedProbe
 from server.errors import InputError
-from server.model_file import MAX_DEPTH_M, parse_model_text, validate_all, validate_model
-from server.to_core import to_core
+from server.io.model_file import MAX_DEPTH_M, parse_model_text, validate_all, validate_model
 
 SETTINGS = settings(max_examples=80, deadline=None, suppress_health_check=list(HealthCheck))
 TINY_TEXT = json.dumps(TINY)
@@ -85,7 +85,7 @@ NUMBERS = st.one_of(
 @SETTINGS
 @given(a=NUMBERS, b=NUMBERS, c=NUMBERS, shape=st.sampled_from(["pert", "triangular", "uniform"]))
 def test_range_rule_is_the_contract(a, b, c, shape):
-    """MODEL-FILE.md: 0 <= a <= b <= c and a < c (finite depths, at most MAX_DEPTH_M)."""
+    """docs/model-file.md: 0 <= a <= b <= c and a < c (finite depths, at most MAX_DEPTH_M)."""
     model = copy.deepcopy(TINY)
     model["units"][2]["thickness_m"] = {"min": a, "likely": b, "max": c, "shape": shape}
     finite = all(math.isfinite(v) and 0 <= v <= MAX_DEPTH_M for v in (a, b, c))

@@ -29,7 +29,7 @@ from fastapi.testclient import TestClient
 from reliability_helpers import BASE_URL, free_port, links_of, served, store_snapshot
 
 from server.errors import InputError
-from server.geo_io import _extract_zip
+from server.io.geo_io import _extract_zip
 from server.web.app import create_app
 
 # ---------------------------------------------------------------- archives
@@ -140,7 +140,7 @@ def hostile_model() -> dict:
 
 
 def test_hostile_model_is_valid():
-    from server.model_file import validate_model
+    from server.io.model_file import validate_model
 
     validate_model(hostile_model())
 

@@ -6,7 +6,7 @@ from server.errors import InputError
 
 
 def stand_in_validate_model(model):
-    """Checks a few fields of the contract only; used while server/model_file.py is absent."""
+    """Checks a few fields of the contract only; used while server/io/model_file.py is absent."""
     if not isinstance(model, dict):
         raise InputError("", "the model file must be a JSON object")
     if model.get("schema") != "probewise/1":

@@ -21,11 +21,11 @@ ROOT = HERE.parents[1]
 CHILD = r"""
 import copy, importlib.util, json, sys, types
 sys.path[:0] = [sys.argv[1], sys.argv[2]]
-if importlib.util.find_spec("server.model_file") is None:  # stand-in until it exists
+if importlib.util.find_spec("server.io.model_file") is None:  # stand-in until it exists
     from store_helpers import stand_in_validate_model
-    module = types.ModuleType("server.model_file")
+    module = types.ModuleType("server.io.model_file")
     module.validate_model = stand_in_validate_model
-    sys.modules["server.model_file"] = module
+    sys.modules["server.io.model_file"] = module
 from server.store import get_project, open_db, save_project
 
 db = open_db(sys.argv[3])

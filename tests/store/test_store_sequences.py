@@ -58,7 +58,7 @@ models = st.builds(
 class StoreMachine(RuleBasedStateMachine):
     def __init__(self):
         super().__init__()
-        from server.model_file import validate_model  # stand-in via conftest until it exists
+        from server.io.model_file import validate_model  # stand-in via conftest until it exists
 
         self.validate = validate_model
         self.folder = tempfile.mkdtemp(prefix="probewise-store-")

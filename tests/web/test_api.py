@@ -8,7 +8,7 @@ import pytest
 from web_helpers import project_count
 
 from server.errors import InputError
-from server.model_file import validate_model
+from server.io.model_file import validate_model
 
 
 def field_problems(answer) -> list[dict]:

@@ -11,10 +11,10 @@ import pytest
 from decision_helpers import attribute_values, import_model, stored
 from web_helpers import htmx
 
+from server.app.layouts import layout_kind
+from server.app.to_core import to_core
 from server.core.evaluate import evaluate_project
 from server.core.options import rank_options
-from server.to_core import to_core
-from server.web.evaluation_cache import layout_kind
 from server.web.justify import format_money_whole
 from server.web.templating import CAUTION
 

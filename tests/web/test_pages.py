@@ -10,7 +10,7 @@ import pytest
 from web_helpers import htmx, links_of, project_count
 
 from server.errors import InputError
-from server.model_file import validate_model
+from server.io.model_file import validate_model
 from server.web.templating import CAUTION, STATIC_DIR
 
 CAUTION_HTML = html.escape(CAUTION, quote=False)

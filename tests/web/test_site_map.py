@@ -114,7 +114,7 @@ def test_labels_are_spread_apart():
 
 
 def test_depth_limits_are_sums_of_minima_and_maxima(tiny_model):
-    # DESIGN.md "Hard bounds": D_k lies in [sum of minima, sum of maxima] of units 1..k.
+    # docs/model.md "Hard bounds": D_k lies in [sum of minima, sum of maxima] of units 1..k.
     # Tiny model: Made ground 0.3-2.0, Alluvial clay 1.0-6.0, River gravel 0.5-4.0.
     limits = depth_limits(tiny_model)
     assert limits["Made ground"] == pytest.approx((0.3, 2.0))

@@ -24,7 +24,7 @@ from edit_helpers import (
 from web_helpers import htmx
 
 from server.web.edits import field_id
-from server.web.routes_site import parse_polygon_text, polygon_text
+from server.web.polygon_text import parse_polygon_text, polygon_text
 
 SITE = "/projects/{}/site"
 
@@ -68,8 +68,8 @@ def test_site_json_serves_the_map_data(client, demo_model):
 
 
 def test_grid_cells_shown_match_the_core_grid(client, demo_model):
+    from server.app.to_core import to_core
     from server.core.grid import evaluation_grid
-    from server.to_core import to_core
 
     project = to_core(demo_model)
     grid = evaluation_grid(project.site, (0.0, 0.0))

@@ -1,9 +1,9 @@
 """The scoping schedule of one layout, built from the numbers: shared by the web page and the CLI.
 
-DESIGN.md workflow step 7. From a core Project and its evaluation results: the probe list
+docs/model.md workflow step 7. From a core Project and its evaluation results: the probe list
 (target depth, the boundaries each probe is expected to reveal, its cost), the cost and
 duration by method, the totals, and the justification written from the numbers
-(``server.justification``). Nothing here knows of a database, a request or a template:
+(``server.app.justification``). Nothing here knows of a database, a request or a template:
 ``build_schedule`` takes the project and, optionally, results already computed (the web
 passes its per-revision cache; the CLI lets it compute them).
 """
@@ -14,14 +14,15 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Any
 
+from server.app.justification import MainBoundary, OptionFigures, justification
+from server.caution import CAUTION_LINE
 from server.core.evaluate import GridEvaluator, LayoutResult, with_pareto
 from server.core.grid import EmptyGridError
 from server.core.model import Project
 from server.core.options import RankedOption, rank_options
 from server.core.planning import ProbePlan
 from server.errors import InputError
-from server.exports import CAUTION, schedule_rows
-from server.justification import MainBoundary, OptionFigures, justification
+from server.io.exports import schedule_rows
 
 
 @dataclass(frozen=True)
@@ -61,7 +62,7 @@ class Totals:
 class Schedule:
     """The scoping schedule of one layout.
 
-    ``probes`` are the rows ``server.exports`` writes (``schedule_rows``: id, method,
+    ``probes`` are the rows ``server.io.exports`` writes (``schedule_rows``: id, method,
     method_name, kind, x, y, depth_m, target ("" when none), observes, cost without
     mobilisation); ``refusals`` the ids of probes expected to stop on a unit they cannot
     penetrate; ``main_boundary`` the boundary of interest the justification speaks of.
@@ -77,7 +78,7 @@ class Schedule:
     totals: Totals
     main_boundary: str | None
     justification: tuple[str, ...]
-    caution: str = CAUTION
+    caution: str = CAUTION_LINE
 
 
 # ---------------------------------------------------------------- parts

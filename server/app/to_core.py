@@ -1,7 +1,7 @@
 """Validated model-file dict ("probewise/1") -> ``server.core.model.Project``.
 
 Names become indices: unit ``i`` is the i-th unit top down and boundary ``k`` is the base of
-unit ``k``. The dict is assumed valid (``server.model_file.validate_model``); optional fields
+unit ``k``. The dict is assumed valid (``server.io.model_file.validate_model``); optional fields
 may be absent. Coordinates stay in project coordinates; the core localises them itself.
 """
 

@@ -27,13 +27,9 @@ from contextlib import contextmanager
 from pathlib import Path
 from typing import IO, Any
 
+from server.caution import CAUTION_LINE
 from server.errors import InputError
 
-CAUTION = (
-    "Caution: results support, and do not replace, the judgement of a qualified geotechnical "
-    "professional; local codes, standards and licensed practice govern; clear buried services "
-    "and obtain permits before any intrusive work."
-)
 NO_CRS_NOTE = "coordinates are metres on a local site grid (the project has no CRS)"
 
 SCHEDULE_COLUMNS = (
@@ -158,7 +154,7 @@ def write_schedule_geojson(rows: Sequence[dict], crs: str | None, *, rfc7946: bo
         out["project_crs"] = crs
     else:
         out["coordinates_note"] = NO_CRS_NOTE
-    out["caution"] = CAUTION
+    out["caution"] = CAUTION_LINE
     return out
 
 
@@ -194,7 +190,7 @@ def write_schedule_gpkg(rows: Sequence[dict], crs: str | None, path: str | Path)
 
 def _description(crs: str | None, what: str) -> str:
     where = f"coordinates in {crs}" if crs else NO_CRS_NOTE
-    return f"{what} from probewise; {where}. {CAUTION}"
+    return f"{what} from probewise; {where}. {CAUTION_LINE}"
 
 
 def _write_gpkg(layers: dict[str, Any], path: str | Path, description: str) -> None:

@@ -509,7 +509,7 @@ def apply_polygons(model: dict, role: str, features: list[dict], mode: str = "re
     import shapely
     from shapely.geometry import shape
 
-    from server.model_file import unique_name
+    from server.io.model_file import unique_name
 
     if role not in ROLE_KEYS:
         raise InputError("role", f"'{role}' is not one of site, zones, areas, exclusions")
@@ -564,6 +564,6 @@ def features_outside_site(model: dict, features: list[dict]) -> list[str]:
 
 def _validate(model: dict) -> None:
     """Check the result against the model-file schema (raises InputError when it fails)."""
-    from server.model_file import validate_model
+    from server.io.model_file import validate_model
 
     validate_model(model)

@@ -1,6 +1,6 @@
 """The model file (schema "probewise/1"): pydantic schema, validation and canonical dump.
 
-One JSON document holds a whole project (see shared MODEL-FILE.md). ``validate_model`` turns
+One JSON document holds a whole project (docs/model-file.md). ``validate_model`` turns
 any decoded JSON value into a normalised plain dict or raises ``InputError`` naming the first
 problem as ``field: problem`` with a path such as ``units[2].thickness_m``.
 
@@ -432,9 +432,23 @@ class PlannedProbe(_Base):
     depth_m: PositiveDepth | None = None
 
 
+class CurvePoint(_Base):
+    cost: Annotated[float, Field(ge=0)]
+    information_gain_bits: Number
+
+
+LAYOUT_OPTIONAL_KEYS = ("origin", "description", "budget", "optimiser_curve")
+
+
 class Layout(_Base):
     name: Name
     probes: list[PlannedProbe]
+    # Where the layout came from (absent: drawn by hand); the optimiser also records the
+    # budget it was given and its cost-gain curve. Absent fields are left out on export.
+    origin: Literal["hand", "guidance", "optimised"] | None = None
+    description: str | None = None
+    budget: Annotated[float, Field(gt=0)] | None = None
+    optimiser_curve: list[CurvePoint] | None = None
 
 
 class ModelFile(_Base):
@@ -806,6 +820,10 @@ def _validate(data: object, first_only: bool) -> tuple[dict | None, list[InputEr
     if problems:
         return None, problems
     normal = model.model_dump(mode="json", by_alias=True)
+    for layout in normal["layouts"]:  # optional layout fields stay absent, not null
+        for key in LAYOUT_OPTIONAL_KEYS:
+            if layout.get(key) is None:
+                layout.pop(key, None)
     for problem in _reference_problems(normal):
         problems.append(problem)
         if stop():

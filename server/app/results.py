@@ -16,37 +16,20 @@ from typing import Any, TypeVar
 
 import sqlite_utils
 
+from server.app.layouts import layout_kind
+from server.app.schedule import default_layout_name
+from server.app.to_core import to_core
 from server.core.evaluate import GridEvaluator, LayoutResult, with_pareto
 from server.core.grid import EmptyGridError
 from server.core.model import Layout, Project
-from server.core.options import KINDS, RankedOption, rank_options
+from server.core.options import RankedOption, rank_options
 from server.errors import InputError
-from server.schedule import default_layout_name
 from server.store import StoredProject, get_project
-from server.to_core import to_core
 
 MAX_ENTRIES = 16  # project revisions kept (a few MB each on the demo)
 MAX_MEMO = 96  # figures and other derived values kept per revision
 
 T = TypeVar("T")
-
-KIND_LABELS = {"hand": "Drawn by hand", "guidance": "Guidance grid", "optimised": "Optimiser"}
-# A layout's optional "origin" field says where it came from (extra fields are allowed).
-ORIGIN_KINDS = {"optimiser": "optimised", "optimized": "optimised"}
-
-
-def layout_kind(layout: dict[str, Any]) -> str:
-    """Where a model-file layout came from: its "origin" field, else guessed from its name."""
-    origin = str(layout.get("origin") or "").strip().lower()
-    origin = ORIGIN_KINDS.get(origin, origin)
-    if origin in KINDS:
-        return origin
-    name = str(layout.get("name", "")).lower()
-    if name.startswith("guidance"):
-        return "guidance"
-    if name.startswith("optimised") or name.startswith("optimized"):
-        return "optimised"
-    return "hand"
 
 
 class ProjectResults:

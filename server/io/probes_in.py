@@ -900,7 +900,7 @@ def merge_existing(model: dict, probes: list[dict], mode: str = "append") -> dic
             "or rename the imported ones",
         )
     out["existing"] = current + copy.deepcopy(probes)
-    from server.model_file import validate_model
+    from server.io.model_file import validate_model
 
     validate_model(out)
     return out

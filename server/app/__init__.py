@@ -1,0 +1,1 @@
+"""Application logic shared by the command line and the web."""

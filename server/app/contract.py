@@ -1,0 +1,112 @@
+"""The JSON documents the command line prints and the web serves (docs/model-file.md, "CLI
+output contract"), and the one model-file entry of an optimised layout, whichever door made it."""
+
+from __future__ import annotations
+
+from typing import Any
+
+MAX_CURVE_POINTS = 400  # points of the cost-gain curve kept with an optimised layout
+
+
+def metrics_json(boundaries: dict) -> dict:
+    return {
+        "boundaries": {
+            name: {
+                "std_mean_m": m.std_mean_m,
+                "width90_mean_m": m.width90_mean_m,
+                "uncertain_volume_m3": m.uncertain_volume_m3,
+                "confident_fraction": m.confident_fraction,
+            }
+            for name, m in boundaries.items()
+        }
+    }
+
+
+def layout_json(result, boundary_names: tuple[str, ...]) -> dict:
+    """One entry of evaluate's ``layouts`` (also used by the optimiser's output)."""
+    out = {"name": result.name}
+    out.update(metrics_json(result.boundaries))
+    out.update(
+        cost=result.cost,
+        metres=result.metres,
+        duration_days=result.duration_days,
+        information_gain_bits=result.information_gain_bits,
+        gain_per_cost=result.gain_per_cost,
+        pareto=result.pareto,
+        probes=[
+            {
+                "id": p.probe.id,
+                "method": p.probe.method,
+                "x": p.probe.x,
+                "y": p.probe.y,
+                "depth_m": p.depth_m,
+                "observes": [boundary_names[k] for k in p.observes],
+            }
+            for p in result.plans
+        ],
+    )
+    return out
+
+
+def evaluation_json(evaluation) -> dict:
+    """The ``--json`` document; ``notice`` only when the grid was coarsened."""
+    names = evaluation.boundary_names
+    out = {
+        "baseline": metrics_json(evaluation.baseline.boundaries),
+        "layouts": [layout_json(r, names) for r in evaluation.layouts],
+    }
+    notice = getattr(evaluation, "grid_notice", None)
+    if notice:
+        out["notice"] = notice
+    return out
+
+
+def optimise_json(out, boundary_names, notice: str | None = None) -> dict:
+    """The ``--json`` document of one optimisation."""
+    doc = {
+        "layout": layout_json(out.result, boundary_names),
+        "curve": [{"cost": c, "information_gain_bits": g} for c, g in out.curve],
+        "optimisation": {
+            "cells": out.optimisation_cells,
+            "spacing_m": out.optimisation_spacing_m,
+            "candidate_locations": int(len(out.candidates.xy)),
+            "candidate_spacing_m": out.candidate_spacing_m,
+            "min_spacing_m": out.min_spacing_m,
+            "runs": len(out.runs),
+            "seconds": out.seconds,
+        },
+    }
+    if notice:
+        doc["notice"] = notice
+    return doc
+
+
+def thin_curve(curve, limit: int = MAX_CURVE_POINTS) -> list[dict[str, float]]:
+    """The cost-gain curve as JSON points, thinned evenly to at most ``limit`` (ends kept)."""
+    points = [(float(c), float(g)) for c, g in curve]
+    if len(points) > limit:
+        step = (len(points) - 1) / (limit - 1)
+        points = [points[round(i * step)] for i in range(limit)]
+    return [{"cost": round(c, 2), "information_gain_bits": round(g, 6)} for c, g in points]
+
+
+def optimised_layout_entry(
+    out, name: str, budget: float, methods: tuple[str, ...] | None = None
+) -> dict[str, Any]:
+    """The model-file entry of an optimised layout: probes (coordinates to 0.01 m, depth
+    overrides kept), where it came from, the budget and the cost-gain curve."""
+    return {
+        "name": name,
+        "origin": "optimised",
+        "description": (
+            f"Proposed by the optimiser for a budget of {budget:,.0f}"
+            + (f" with {', '.join(methods)}" if methods else "")
+        ),
+        "budget": float(budget),
+        "optimiser_curve": thin_curve(out.curve),
+        "probes": [
+            {"id": p.id, "method": p.method, "x": round(p.x, 2), "y": round(p.y, 2)}
+            | ({} if p.depth_m is None else {"depth_m": p.depth_m})
+            for p in out.layout.probes
+        ],
+    }

@@ -1,0 +1,123 @@
+"""Command-line options shared by several commands, and the parsing of their values."""
+
+from __future__ import annotations
+
+import argparse
+import math
+import sys
+import time
+
+from server.errors import InputError
+
+# OptimiseError.field -> the command-line option to name in the message
+OPTION_OF_FIELD = {
+    "budget": "--budget",
+    "methods": "--methods",
+    "candidate_spacing_m": "--candidate-spacing",
+    "min_spacing_m": "--min-spacing",
+}
+
+
+def add_optimiser_arguments(parser: argparse.ArgumentParser) -> None:
+    """Options shared by ``optimise`` and ``rank``."""
+    parser.add_argument(
+        "--methods", metavar="ID,ID", help="method ids the optimiser may use (default: all)"
+    )
+    parser.add_argument(
+        "--candidate-spacing",
+        metavar="M",
+        help="spacing of candidate locations, m (default: about 600 locations over the site)",
+    )
+    parser.add_argument(
+        "--min-spacing",
+        metavar="M",
+        help="least distance between chosen probes, m (default: the candidate spacing)",
+    )
+
+
+def parse_positive(text: str | None, option: str, what: str = "number") -> float | None:
+    """A finite number > 0 from a command-line value (None stays None); else InputError."""
+    if text is None:
+        return None
+    try:
+        value = float(text)
+    except ValueError:
+        raise InputError(option, f"must be a positive {what}, not {text!r}") from None
+    if not (math.isfinite(value) and value > 0):
+        raise InputError(option, f"must be a positive {what}, not {text}")
+    return value
+
+
+def parse_methods(text: str | None, project) -> tuple[str, ...] | None:
+    """``ID,ID`` -> method ids, each one of the model's; None when not given."""
+    if text is None:
+        return None
+    ids = tuple(dict.fromkeys(part.strip() for part in text.split(",") if part.strip()))
+    if not ids:
+        raise InputError("--methods", "give at least one method id")
+    for mid in ids:
+        if mid not in project.methods:
+            raise InputError(
+                "--methods", f"no method with id {mid!r}; methods are {', '.join(project.methods)}"
+            )
+    return ids
+
+
+def optimiser_options(args: argparse.Namespace, project, budget: float):
+    """OptimiseOptions from the shared command-line options."""
+    from server.core.optimise import OptimiseOptions
+
+    return OptimiseOptions(
+        budget=budget,
+        methods=parse_methods(args.methods, project),
+        candidate_spacing_m=parse_positive(
+            args.candidate_spacing, "--candidate-spacing", "spacing in m"
+        ),
+        min_spacing_m=parse_positive(args.min_spacing, "--min-spacing", "spacing in m"),
+    )
+
+
+def optimiser_input_error(exc) -> InputError:
+    """InputError naming the option behind an OptimiseError or EmptyGridError."""
+    field = getattr(exc, "field", "grid_spacing_m")
+    return InputError(OPTION_OF_FIELD.get(field, field), str(exc))
+
+
+class ProgressBar:
+    """A one-line progress bar on stderr, redrawn at most every 0.1 s; silent when off."""
+
+    def __init__(self, enabled: bool, width: int = 30):
+        self.enabled = enabled
+        self.width = width
+        self.last = 0.0
+        self.shown = False
+
+    def __call__(self, fraction: float, message: str) -> None:
+        if not self.enabled:
+            return
+        now = time.monotonic()
+        if fraction < 1.0 and now - self.last < 0.1:
+            return
+        self.last = now
+        filled = int(round(self.width * max(0.0, min(fraction, 1.0))))
+        bar = "#" * filled + "-" * (self.width - filled)
+        sys.stderr.write(f"\r[{bar}] {100 * fraction:3.0f}% {message[:60]:<60}")
+        sys.stderr.flush()
+        self.shown = True
+
+    def close(self) -> None:
+        if self.shown:
+            sys.stderr.write("\n")
+            sys.stderr.flush()
+            self.shown = False
+
+
+def parse_pairs(items: list[str] | None, option: str) -> dict[str, str]:
+    """``["A=B", ...]`` -> {"A": "B"}; the first "=" splits; InputError naming the option."""
+    out: dict[str, str] = {}
+    for item in items or []:
+        key, sep, value = item.partition("=")
+        if not sep or not key.strip():
+            raise InputError(option, f"expected KEY=VALUE, got {item!r}")
+        out[key.strip()] = value.strip()
+    return out
