@@ -15,6 +15,7 @@ from pathlib import Path
 from fastapi import FastAPI
 from fastapi.staticfiles import StaticFiles
 
+from server.resources import DEMO_PROJECT_PATH, STATIC_DIR
 from server.store import mark_interrupted_jobs, seed_demo_if_empty
 from server.web import (
     routes_api,
@@ -32,11 +33,9 @@ from server.web import (
 from server.web.deps import database_of
 from server.web.errors import install_error_handlers
 from server.web.security import MAX_BODY_BYTES, SecurityMiddleware, allowed_hosts_for
-from server.web.templating import REPO_ROOT, STATIC_DIR
 
 log = logging.getLogger(__name__)
 
-DEMO_PROJECT_PATH = REPO_ROOT / "seed_data" / "demo-project.json"
 ROUTERS = (
     routes_projects.router,
     routes_overview.router,

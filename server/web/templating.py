@@ -19,11 +19,7 @@ from fastapi.templating import Jinja2Templates
 from starlette.responses import RedirectResponse, Response
 
 from server.caution import CAUTION
-
-REPO_ROOT = Path(__file__).resolve().parents[2]
-TEMPLATES_DIR = REPO_ROOT / "templates"
-STATIC_DIR = REPO_ROOT / "static"
-
+from server.resources import STATIC_DIR, TEMPLATES_DIR
 
 METHOD_KIND_LABELS = {
     "borehole": "Borehole",

@@ -33,8 +33,9 @@ from schemathesis.specs.openapi.checks import response_schema_conformance
 
 from server.errors import InputError
 from server.io.model_file import validate_model
+from server.resources import DEMO_PROJECT_PATH
 from server.store import open_db, seed_demo_if_empty
-from server.web.app import DEMO_PROJECT_PATH, create_app
+from server.web.app import create_app
 
 MIN_GENERATED_CASES = 500
 EXAMPLES_PER_OPERATION = 60
