@@ -10,6 +10,7 @@ import zipfile
 
 import geopandas
 import pytest
+from csv_helpers import caution_line, data_lines
 from io_builders import TINY_EXPECTED, TINY_MAPPING, ags4_text, placed_model
 from pyproj import Transformer
 from shapely.geometry import Polygon, box, shape
@@ -281,7 +282,8 @@ def test_export_schedule_csv_and_geojson(placed_path, tmp_path):
         )
         == 0
     )
-    assert csv_out.read_text().splitlines()[0].startswith("id,method,method_name")
+    caution_line(csv_out.read_text())
+    assert data_lines(csv_out.read_text())[0].startswith("id,method,method_name")
     gj = tmp_path / "s.geojson"
     assert (
         main(["export", str(placed_path), "--what", "schedule", "--layout", name, "-o", str(gj)])
@@ -294,7 +296,8 @@ def test_export_schedule_csv_and_geojson(placed_path, tmp_path):
 def test_export_posterior_grid(placed_path, tmp_path):
     csv_out = tmp_path / "grid.csv"
     assert main(["export", str(placed_path), "--what", "posterior", "-o", str(csv_out)]) == 0
-    lines = csv_out.read_text().splitlines()
+    caution_line(csv_out.read_text())
+    lines = data_lines(csv_out.read_text())
     assert lines[0] == "x,y,boundary,mean_m,std_m,p05_m,p50_m,p95_m,width90_m"
     gpkg = tmp_path / "grid.gpkg"
     assert (

@@ -5,7 +5,6 @@ itself against the core's numbers."""
 from __future__ import annotations
 
 import csv
-import io
 import json
 import subprocess
 from datetime import date
@@ -13,6 +12,7 @@ from pathlib import Path
 
 import pytest
 from cli_helpers import run_cli
+from csv_helpers import data_lines
 
 from server.app.schedule import build_schedule
 from server.app.to_core import to_core
@@ -175,7 +175,7 @@ def test_json_numbers_match_the_core(tiny_json):
 def test_csv_parses_with_every_probe():
     run = cli(str(DEMO), "--layout", LEAN, "--format", "csv")
     assert run.returncode == 0, run.stderr
-    rows = list(csv.DictReader(io.StringIO(run.stdout)))
+    rows = list(csv.DictReader(data_lines(run.stdout)))
     ids = [p["id"] for p in layout_doc(model_of(DEMO), LEAN)["probes"]]
     assert [r["id"] for r in rows] == ids
     assert all(float(r["depth_m"]) > 0 and float(r["cost"]) > 0 for r in rows)

@@ -14,6 +14,7 @@ import geopandas
 import numpy as np
 import pyogrio
 import pytest
+from csv_helpers import caution_line, data_lines
 from io_builders import placed_model
 from pyproj import Transformer
 
@@ -57,7 +58,7 @@ def test_schedule_rows_cost_and_names(rows):
 def test_schedule_csv_round_trip(rows, tmp_path):
     path = tmp_path / "schedule.csv"
     exports.write_schedule_csv(rows, path)
-    back = list(csv.DictReader(path.open(newline="")))
+    back = list(csv.DictReader(data_lines(path.read_text())))
     assert [r["id"] for r in back] == ["BH01", "CPT01"]
     assert list(back[0]) == list(exports.SCHEDULE_COLUMNS)
     assert float(back[0]["depth_m"]) == 9.12  # depths to the centimetre
@@ -143,7 +144,7 @@ def test_posterior_grid_csv_long_rows(tmp_path):
     fields = grid_fields(3, 2)
     path = tmp_path / "grid.csv"
     exports.write_posterior_grid_csv(xy, names, fields, path)
-    back = list(csv.DictReader(path.open(newline="")))
+    back = list(csv.DictReader(data_lines(path.read_text())))
     assert len(back) == 6
     assert list(back[0]) == [
         "x",
@@ -185,3 +186,28 @@ def test_posterior_grid_shape_checked():
         exports.write_posterior_grid_csv(
             np.zeros((2, 2)), ["a"], {"var": np.zeros((2, 1))}, io.StringIO()
         )
+
+
+def test_csv_files_carry_the_caution_and_sensible_precision(rows, tmp_path):
+    buf = io.StringIO()
+    exports.write_schedule_csv(rows, buf)
+    caution_line(buf.getvalue())
+    grid = io.StringIO()
+    xy = np.array([[530_002.123456, 180_002.987654]])
+    exports.write_posterior_grid_csv(xy, ["Made ground"], grid_fields(1, 1), grid)
+    caution_line(grid.getvalue())
+    [row] = list(csv.DictReader(data_lines(grid.getvalue())))
+    assert (row["x"], row["y"]) == ("530002.12", "180002.99")  # coordinates to the centimetre
+
+
+def test_geojson_numbers_are_rounded_to_the_centimetre(rows):
+    doc = exports.write_schedule_geojson(rows, None)
+    props = doc["features"][0]["properties"]
+    assert props["depth_m"] == 9.12 and props["x"] == round(rows[0]["x"], 2)
+    assert doc["features"][0]["geometry"]["coordinates"] == [
+        round(rows[0]["x"], 2),
+        round(rows[0]["y"], 2),
+    ]
+    for key in ("x", "y", "depth_m", "cost"):
+        text = repr(props[key])
+        assert len(text.split(".")[-1]) <= 2, (key, text)

@@ -83,16 +83,24 @@ def schedule_rows(probes: Sequence[dict], model: dict) -> list[dict]:
     return rows
 
 
+def _rounded(key: str, value: Any) -> Any:
+    """Coordinates, depths (m) and money to two decimals: a centimetre is finer than any
+    setting-out or depth reading, and a cent finer than any rate."""
+    if isinstance(value, float) and (key in ("x", "y", "cost") or key.endswith("_m")):
+        return round(value, 2)
+    return value
+
+
 def _cell(key: str, value: Any) -> Any:
-    """A schedule value as one flat cell: lists joined, depths to cm, coordinates to mm."""
+    """A schedule value as one flat cell: lists joined, numbers rounded."""
     if isinstance(value, list | tuple):
         return "; ".join(str(v) for v in value)
-    if isinstance(value, float):
-        if key in ("x", "y"):
-            return round(value, 3)
-        if key.endswith("_m") or key == "cost":
-            return round(value, 2)
-    return value
+    return _rounded(key, value)
+
+
+def _write_caution_row(out: IO[str]) -> None:
+    """A comment line first, so every CSV that informs design carries the caution."""
+    out.write(f"# {CAUTION_LINE}\n")
 
 
 def _columns(rows: Sequence[dict]) -> list[str]:
@@ -109,6 +117,7 @@ def write_schedule_csv(rows: Sequence[dict], path_or_buffer: str | Path | IO[str
     """The schedule as CSV, one probe per row; ``observes`` joined with "; "."""
     columns = _columns(rows) or list(SCHEDULE_COLUMNS)
     with _text_out(path_or_buffer) as out:
+        _write_caution_row(out)
         writer = csv.writer(out, lineterminator="\n")
         writer.writerow(columns)
         for row in rows:
@@ -137,8 +146,8 @@ def write_schedule_geojson(rows: Sequence[dict], crs: str | None, *, rfc7946: bo
             lon, lat = transform.transform(x, y)
             coords = [round(lon, 8), round(lat, 8)]
         else:
-            coords = [x, y]
-        props = {k: _json_value(v) for k, v in row.items()}
+            coords = [round(x, 2), round(y, 2)]
+        props = {k: _json_value(_rounded(k, v)) for k, v in row.items()}
         features.append(
             {
                 "type": "Feature",
@@ -254,12 +263,13 @@ def write_posterior_grid_csv(
     if "p05_m" in arrays and "p95_m" in arrays:
         columns.append("width90_m")
     with _text_out(path_or_buffer) as out:
+        _write_caution_row(out)
         writer = csv.writer(out, lineterminator="\n")
         writer.writerow(columns)
         for k, name in enumerate(names):
             for i in range(xy.shape[0]):
                 rec = _grid_record(arrays, i, k)
-                x, y = round(float(xy[i, 0]), 3), round(float(xy[i, 1]), 3)
+                x, y = round(float(xy[i, 0]), 2), round(float(xy[i, 1]), 2)
                 writer.writerow([x, y, name, *(rec[c] for c in columns[3:])])
 
 

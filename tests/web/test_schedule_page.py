@@ -5,11 +5,11 @@ from __future__ import annotations
 
 import csv
 import html
-import io
 import json
 from datetime import date
 
 import pytest
+from csv_helpers import data_lines
 from decision_helpers import attribute_values, import_model
 from web_helpers import htmx
 
@@ -67,7 +67,7 @@ def test_csv_download(client, demo_model):
     assert answer.status_code == 200
     assert "attachment" in answer.headers["content-disposition"]
     assert ".csv" in answer.headers["content-disposition"]
-    rows = list(csv.DictReader(io.StringIO(answer.text)))
+    rows = list(csv.DictReader(data_lines(answer.text)))
     layout = next(lay for lay in demo_model["layouts"] if lay["name"] == LEAN)
     assert [r["id"] for r in rows] == [p["id"] for p in layout["probes"]]
     assert all(float(r["depth_m"]) > 0 and float(r["cost"]) > 0 for r in rows)
