@@ -15,6 +15,7 @@ from server.errors import InputError
 # sub-command -> (module in server.commands, one-line help)
 COMMANDS = {
     "serve": ("serve", "run the web app (loads the demo project into a fresh database)"),
+    "init": ("init", "write a new model file to start a project from nothing"),
     "validate": ("validate", "check a model file; exit 0 when valid, 2 otherwise"),
     "posterior": ("posterior", "boundary depths and their uncertainty at points"),
     "evaluate": ("evaluate", "cost, duration and information gain of every layout"),

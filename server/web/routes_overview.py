@@ -21,6 +21,7 @@ from server.web.summary import (
     boundary_rows,
     existing_by_method,
     layout_rows,
+    readiness_steps,
     resolution_rows,
     zone_overrides,
 )
@@ -51,6 +52,7 @@ def overview_context(
         "existing_mix": existing_by_method(model),
         "layouts": layout_rows(model),
         "revisions": revisions,
+        "readiness": readiness_steps(model),
         "notice": notice,
     }
 

@@ -10,8 +10,9 @@ from typing import Annotated, Any
 
 import sqlite_utils
 from fastapi import APIRouter, File, Request, UploadFile
-from starlette.responses import Response
+from starlette.responses import RedirectResponse, Response
 
+from server.app.new_project import STARTING_POINTS, new_model
 from server.errors import InputError
 from server.io.model_file import parse_model_text
 from server.store import (
@@ -24,7 +25,9 @@ from server.store import (
 )
 from server.web.deps import Db
 from server.web.downloads import model_file_response
-from server.web.templating import render_action, render_page_or_fragment
+from server.web.edits import PostedForm
+from server.web.polygon_text import parse_polygon_text
+from server.web.templating import is_htmx, render_action, render_page_or_fragment
 
 router = APIRouter(include_in_schema=False)
 
@@ -38,6 +41,9 @@ def projects_context(db: sqlite_utils.Database, **extra: Any) -> dict[str, Any]:
         "deleted_projects": [p for p in everything if p.deleted],
         "notice": None,
         "import_error": None,
+        "new_errors": {},
+        "new_values": {"start": "blank"},
+        "starting_points": STARTING_POINTS,
         **extra,
     }
 
@@ -99,6 +105,40 @@ def import_project(
         "project_id": project_id,
     }
     return answer(request, db, notice=notice)
+
+
+def model_from_form(db: sqlite_utils.Database, form: Any) -> dict[str, Any]:
+    """The new project's model from the form; InputError names the form field at fault."""
+    name = str(form.get("name") or "").strip()
+    if name and any(p.name == name for p in list_projects(db, include_deleted=True)):
+        raise InputError("name", f"a project named \u201c{name}\u201d already exists")
+    outline_text = str(form.get("outline") or "")
+    outline = parse_polygon_text(outline_text, "outline") if outline_text.strip() else None
+    try:
+        return new_model(
+            name,
+            crs=str(form.get("crs") or ""),
+            currency=str(form.get("currency") or ""),
+            outline=outline,
+            start=str(form.get("start") or "blank"),
+        )
+    except InputError as error:
+        field = error.field.split(".")[0].split("[")[0]
+        raise InputError("outline" if field == "site" else field, error.problem) from None
+
+
+@router.post("/projects/new")
+def new_project(request: Request, db: Db, form: PostedForm) -> Response:
+    values = {k: str(form.get(k) or "") for k in ("name", "crs", "currency", "outline", "start")}
+    try:
+        model = model_from_form(db, form)
+    except InputError as error:
+        errors = {error.field: error.problem}
+        return answer(request, db, status_code=400, new_errors=errors, new_values=values)
+    project_id = create_project(db, model, message="New project")
+    if is_htmx(request):
+        return Response(status_code=200, headers={"HX-Redirect": f"/projects/{project_id}"})
+    return RedirectResponse(f"/projects/{project_id}", status_code=303)
 
 
 @router.post("/projects/{project_id}/duplicate")

@@ -108,3 +108,52 @@ def resolution_rows(model: dict[str, Any]) -> list[ResolutionRow]:
             )
         )
     return rows
+
+
+@dataclass(frozen=True)
+class ReadinessStep:
+    label: str
+    done: bool
+    page: str  # the workflow page that completes it (slug under /projects/{id}/)
+    hint: str
+
+
+def readiness_steps(model: dict[str, Any]) -> list[ReadinessStep]:
+    """What a project still lacks before its options can be compared, in workflow order."""
+    units = model.get("units") or []
+    placeholders = [
+        u["name"] for u in units if str(u.get("description", "")).startswith("Placeholder")
+    ]
+    interest = {b["base_of"] for b in model.get("boundaries_of_interest") or []}
+    reading = [
+        m["id"] for m in model.get("methods") or [] if interest & set(m.get("precision_m") or {})
+    ]
+    probes = [lay for lay in model.get("layouts") or [] if lay.get("probes")]
+    return [
+        ReadinessStep(
+            "Units described",
+            len(units) >= 2 and not placeholders,
+            "ground",
+            "replace the placeholder units: " + ", ".join(placeholders)
+            if placeholders
+            else "units top to bottom, the last one basal",
+        ),
+        ReadinessStep(
+            "A boundary that matters to design",
+            bool(interest),
+            "ground",
+            "mark the boundaries of interest, with weight and tolerance",
+        ),
+        ReadinessStep(
+            "A method that reads it",
+            bool(reading),
+            "methods",
+            "a method with a precision for a boundary of interest",
+        ),
+        ReadinessStep(
+            "A layout with probes",
+            bool(probes),
+            "options",
+            "draw one, place a guidance grid, or run the optimiser",
+        ),
+    ]
