@@ -1,0 +1,252 @@
+"""Existing probes in from AGS4 files (parsed by python-ags4).
+
+LOCA gives position, type, ground level and final depth, GEOL the layers. The user maps each
+geology code (GEOL_GEOL, else GEOL_LEG, else GEOL_DESC) to a project unit; the layer rules of
+server/io/probes_common.py turn the layers into observed bases. AGS4 rows are counted within
+their group, with the file's line number beside them.
+"""
+
+from __future__ import annotations
+
+import io
+from collections import Counter
+from typing import Any
+
+from server.errors import InputError, OptionNeededError
+from server.io.probes_common import (
+    Ags4Hole,
+    Ags4Holes,
+    Ags4Layer,
+    ImportResult,
+    _decode,
+    _ids,
+    _method_lookup,
+    _number,
+    _unit_lookup,
+    observed_from_layers,
+    probes_outside_site,
+    resolve_mapping,
+)
+
+
+def read_ags4(data: bytes, *, filename: str = "file.ags") -> Ags4Holes:
+    """Locations (LOCA) and their layers (GEOL) from an AGS4 file, parsed by python-ags4."""
+    from python_ags4 import AGS4
+
+    if not data or not data.strip():
+        raise InputError(filename, "is empty")
+    text = _decode(data)
+    try:
+        tables, _headings, _lines = AGS4.AGS4_to_dataframe(io.StringIO(text), get_line_numbers=True)
+    except AGS4.AGS4Error as exc:
+        raise InputError(filename, f"is not a readable AGS4 file: {exc}") from None
+    except Exception as exc:  # a DATA row before any HEADING, ragged rows and the like
+        raise InputError(filename, f"is not a readable AGS4 file ({type(exc).__name__})") from None
+    if not tables:
+        raise InputError(filename, "has no AGS4 GROUP rows; is it an AGS4 file?")
+    for group, what in (("LOCA", "locations"), ("GEOL", "geology layers")):
+        if group not in tables:
+            raise InputError(
+                filename, f"has no {group} group ({what}); both LOCA and GEOL are needed"
+            )
+
+    loca = _ags_rows(
+        tables["LOCA"], "LOCA", filename, ("LOCA_ID", "LOCA_NATE", "LOCA_NATN", "LOCA_FDEP")
+    )
+    geol = _ags_rows(tables["GEOL"], "GEOL", filename, ("LOCA_ID", "GEOL_TOP", "GEOL_BASE"))
+    if not any(h in tables["GEOL"].columns for h in ("GEOL_GEOL", "GEOL_LEG", "GEOL_DESC")):
+        raise InputError(f"{filename} GEOL", "has none of GEOL_GEOL, GEOL_LEG, GEOL_DESC to map")
+
+    holes: dict[str, dict] = {}
+    for where, row in loca:
+        hid = row["LOCA_ID"].strip()
+        if not hid:
+            raise InputError(f"{filename} {where}, LOCA_ID", "empty")
+        if hid in holes:
+            raise InputError(
+                f"{filename} {where}, LOCA_ID", f"'{hid}' repeats {holes[hid]['where']}"
+            )
+        holes[hid] = {
+            "id": hid,
+            "type": row.get("LOCA_TYPE", "").strip(),
+            "x": _number(row["LOCA_NATE"], f"{filename} {where}, LOCA_NATE"),
+            "y": _number(row["LOCA_NATN"], f"{filename} {where}, LOCA_NATN"),
+            "final_depth_m": _number(row["LOCA_FDEP"], f"{filename} {where}, LOCA_FDEP"),
+            "layers": [],
+            "where": where,
+        }
+    problems = []
+    for where, row in geol:
+        hid = row["LOCA_ID"].strip()
+        top = _number(row["GEOL_TOP"], f"{filename} {where}, GEOL_TOP")
+        base = _number(row["GEOL_BASE"], f"{filename} {where}, GEOL_BASE")
+        for heading, value in (("GEOL_TOP", top), ("GEOL_BASE", base)):
+            if value is None:
+                raise InputError(
+                    f"{filename} {where}, {heading}", "empty; a layer needs a top and a base"
+                )
+        geology = row.get("GEOL_GEOL", "").strip()
+        legend = row.get("GEOL_LEG", "").strip()
+        description = row.get("GEOL_DESC", "").strip()
+        layer = Ags4Layer(
+            top_m=top,
+            base_m=base,
+            code=geology or legend or description or "(blank)",
+            legend=legend,
+            geology=geology,
+            description=description,
+            where=where,
+        )
+        if hid not in holes:
+            problems.append(f"{filename} {where}: location '{hid}' is not in LOCA; layer left out")
+            continue
+        holes[hid]["layers"].append(layer)
+    return Ags4Holes(
+        filename=filename,
+        holes=tuple(Ags4Hole(**{**h, "layers": tuple(h["layers"])}) for h in holes.values()),
+        problems=tuple(problems),
+    )
+
+
+def _ags_rows(
+    frame: Any, group: str, filename: str, required: tuple[str, ...]
+) -> list[tuple[str, dict]]:
+    """DATA rows of one AGS4 group as (where, {heading: text}); required headings checked."""
+    missing = [h for h in required if h not in frame.columns]
+    if missing:
+        raise InputError(f"{filename} {group}", f"missing heading(s) {', '.join(missing)}")
+    out = []
+    n = 0
+    for record in frame.to_dict("records"):
+        if record.get("HEADING") != "DATA":
+            continue
+        n += 1
+        line = record.get("line_number")
+        where = f"{group} row {n}" + (f" (line {line})" if line else "")
+        out.append((where, {k: ("" if v is None else str(v)) for k, v in record.items()}))
+    return out
+
+
+def ags4_legends(holes: Ags4Holes) -> list[tuple[str, str, int]]:
+    """(code, description, layer count) per geology code, shallowest first, for mapping."""
+    tops: dict[str, list[float]] = {}
+    descriptions: dict[str, Counter] = {}
+    for hole in holes.holes:
+        for layer in hole.layers:
+            tops.setdefault(layer.code, []).append(layer.top_m)
+            descriptions.setdefault(layer.code, Counter())[layer.description] += 1
+
+    def median(v: list[float]) -> float:
+        s = sorted(v)
+        return s[len(s) // 2]
+
+    codes = sorted(tops, key=lambda c: (median(tops[c]), c))
+    return [(c, descriptions[c].most_common(1)[0][0], len(tops[c])) for c in codes]
+
+
+def ags4_to_existing(
+    holes: Ags4Holes,
+    model: dict,
+    mapping: dict[str, str],
+    method_by_type: dict[str, str] | None = None,
+    default_method: str | None = None,
+) -> ImportResult:
+    """Existing-probe dicts from AGS4 holes, with geology codes mapped to project units.
+
+    ``mapping``: geology code -> unit name, or "-"/"" to leave that code out. Every code in
+    the file must be mapped. ``method_by_type``: LOCA_TYPE -> method id; a type equal to a
+    method id maps to it; otherwise ``default_method``. Holes whose layers break the model's
+    rules (order of units, bases below the final depth...) are left out and listed in
+    ``problems``; holes outside the site are listed in ``outside_site`` and left out of
+    ``importable`` (the model file admits no probe outside the site).
+    """
+    units, _ = _unit_lookup(model)
+    methods = _method_lookup(model)
+    code_to_unit = resolve_mapping(mapping, model)
+    unmapped = [c for c, _d, _n in ags4_legends(holes) if c not in code_to_unit]
+    if unmapped:
+        raise InputError(
+            "mapping",
+            f"no unit for geology code(s) {', '.join(unmapped)}; map each one to a unit "
+            "or leave it out",
+        )
+    by_type = {}
+    for hole_type, method in (method_by_type or {}).items():
+        if method.lower() not in methods:
+            raise InputError(
+                f"method for {hole_type}",
+                f"'{method}' is not a method of the model ({_ids(model)})",
+            )
+        by_type[hole_type] = methods[method.lower()]
+    if default_method is not None:
+        if default_method.lower() not in methods:
+            raise InputError(
+                "default method", f"'{default_method}' is not a method of the model ({_ids(model)})"
+            )
+        default_method = methods[default_method.lower()]
+
+    def method_of(hole: Ags4Hole) -> str | None:
+        if hole.type in by_type:
+            return by_type[hole.type]
+        return methods.get(hole.type.lower()) or default_method
+
+    untyped = sorted({h.type or "(blank)" for h in holes.holes if method_of(h) is None})
+    if untyped:
+        raise OptionNeededError(
+            "method",
+            f"no method for location type(s) {', '.join(untyped)}; choose a method for each "
+            "type or a default method",
+            "method_by_type",
+        )
+
+    probes: list[dict] = []
+    problems = list(holes.problems)
+    notes: list[str] = []
+    name = holes.filename
+    for hole in holes.holes:
+        if hole.x is None or hole.y is None:
+            problems.append(f"{name} {hole.where}: {hole.id} has no LOCA_NATE/LOCA_NATN; left out")
+            continue
+        final = hole.final_depth_m
+        if final is None:
+            final = max((layer.base_m for layer in hole.layers), default=None)
+            if final is None:
+                problems.append(
+                    f"{name} {hole.where}: {hole.id} has no LOCA_FDEP and no layers; left out"
+                )
+                continue
+            notes.append(
+                f"{hole.id}: no LOCA_FDEP; final depth taken as the deepest layer base {final:g} m"
+            )
+        if final <= 0:
+            problems.append(
+                f"{name} {hole.where}, LOCA_FDEP: {final:g} is not > 0; {hole.id} left out"
+            )
+            continue
+        layers = [
+            (layer.top_m, layer.base_m, code_to_unit[layer.code], f"{name} {layer.where}")
+            for layer in hole.layers
+        ]
+        observed, layer_problems, hole_notes = observed_from_layers(
+            layers, final, units, f"{name} location {hole.id}"
+        )
+        if layer_problems:
+            problems.extend(f"{e}; {hole.id} left out" for e in layer_problems)
+            continue
+        notes.extend(f"{hole.id}: {n}" for n in hole_notes)
+        probes.append(
+            {
+                "id": hole.id,
+                "method": method_of(hole),
+                "x": hole.x,
+                "y": hole.y,
+                "final_depth_m": final,
+                "observed": observed,
+            }
+        )
+    return ImportResult(
+        probes=probes,
+        outside_site=probes_outside_site(model, probes),
+        problems=problems,
+        notes=notes,
+    )
