@@ -153,8 +153,10 @@ def observed_from_layers(
 
     ``layers``: (top_m or None, base_m, unit index or None for "left out", where). The base of
     the deepest layer mapped to a unit is that unit's observed base, unless the layer reaches
-    the final depth (the probe ended inside the unit). ``who`` names the probe in messages.
-    Returns (observed, problems, notes).
+    the final depth (the probe ended inside the unit). A unit the probe passed without meeting
+    it (a deeper unit was met) is absent there: its base is recorded at the base of the unit
+    above (ground level, 0 m, for the first unit), so equal depths record the absence, as the
+    model file says. ``who`` names the probe in messages. Returns (observed, problems, notes).
     """
     problems: list[InputError] = []
     notes: list[str] = []
@@ -186,29 +188,54 @@ def observed_from_layers(
             )
         last_unit = (unit, where)
         deepest[unit] = base
-    observed: dict[str, float] = {}
-    above: tuple[str, float] | None = None
-    for unit, base in sorted(deepest.items()):
-        if unit == len(units) - 1:
-            continue  # the basal unit has no base
-        if base >= final_depth_m - DEPTH_TOL_M:
-            notes.append(f"ended in {units[unit]} at {base:g} m, so its base was not reached")
-            continue
-        if above is not None and base <= above[1] + DEPTH_TOL_M and not problems:
-            problems.append(
-                InputError(
-                    f"{who}, base of {units[unit]}",
-                    f"{base:g} m is not below the base of {above[0]} ({above[1]:g} m); "
-                    "bases must deepen in unit order",
-                )
-            )
-        observed[units[unit]] = base
-        above = (units[unit], base)
+    observed = _bases_with_absent(deepest, final_depth_m, units, who, problems, notes)
     return observed, problems, notes
 
 
+def _bases_with_absent(
+    deepest: dict[int, float],
+    final_depth_m: float,
+    units: list[str],
+    who: str,
+    problems: list[InputError],
+    notes: list[str],
+) -> dict[str, float]:
+    """Observed bases in unit order from the deepest base met of each unit (see above)."""
+    observed: dict[str, float] = {}
+    deepest_met = max(deepest, default=-1)
+    above: tuple[str, float] | None = None
+    for k, name in enumerate(units[:-1]):  # the basal unit has no base
+        if k in deepest:
+            base = deepest[k]
+            if base >= final_depth_m - DEPTH_TOL_M:
+                notes.append(f"ended in {name} at {base:g} m, so its base was not reached")
+                break
+            if above is not None and base < above[1] - DEPTH_TOL_M and not problems:
+                problems.append(
+                    InputError(
+                        f"{who}, base of {name}",
+                        f"{base:g} m is above the base of {above[0]} ({above[1]:g} m); "
+                        "bases must not rise in unit order",
+                    )
+                )
+        elif k < deepest_met:
+            base = above[1] if above is not None else 0.0
+            notes.append(absent_note(name, base, above[0] if above is not None else None))
+        else:
+            break
+        observed[name] = base
+        above = (name, base)
+    return observed
+
+
+def absent_note(unit: str, base_m: float, unit_above: str | None) -> str:
+    """The note that says where an absent unit's base was recorded."""
+    where = f"the base of {unit_above}" if unit_above else "ground level"
+    return f"no {unit} met: absent, its base recorded at {base_m:g} m ({where})"
+
+
 # ---------------------------------------------------------------------------------------------
-# Tables (CSV, XLSX)
+# Cells and messages
 
 
 def _shown(value: Any) -> str:

@@ -29,6 +29,7 @@ from server.io.probes_common import (
     _shown,
     _text,
     _unit_lookup,
+    absent_note,
     observed_from_layers,
     outside_error,
     probes_outside_site,
@@ -246,6 +247,7 @@ def _parse_wide(
     units, _ = _unit_lookup(model)
     probes: list[dict] = []
     errors: list[InputError] = []
+    notes: list[str] = []
     seen: dict[str, str] = {}
     for row_number, cells in rows:
         where = f"{filename} row {row_number}"
@@ -257,30 +259,11 @@ def _parse_wide(
                 raise InputError(
                     f"{where}, column id", f"'{probe['id']}' repeats {seen[probe['id']]}"
                 )
-            observed: dict[str, float] = {}
-            last = None
-            for name in units:  # unit order, so depth order can be checked
-                if name not in bases:
-                    continue
-                col = header[bases[name]]
-                depth = _number(_cell(cells, bases[name]), f"{where}, column {col}", decimal_comma)
-                if depth is None:
-                    continue
-                if depth < 0:
-                    raise InputError(f"{where}, column {col}", f"{depth:g} is above ground level")
-                if depth > probe["final_depth_m"] + DEPTH_TOL_M:
-                    raise InputError(
-                        f"{where}, column {col}",
-                        f"{depth:g} m is below the final depth {probe['final_depth_m']:g} m",
-                    )
-                if last is not None and depth <= last[1] + DEPTH_TOL_M:
-                    raise InputError(
-                        f"{where}, column {col}",
-                        f"{depth:g} m is above the base of {last[0]} ({last[1]:g} m); "
-                        "bases must deepen in unit order",
-                    )
-                observed[name] = depth
-                last = (name, depth)
+            observed = _wide_bases(cells, header, bases, units, probe, where, decimal_comma)
+            notes.extend(
+                f"{probe['id']}: {absent_note(name, depth, above)}"
+                for name, depth, above in observed.pop(ABSENT_KEY, [])
+            )
             probe["observed"] = observed
             precision = {}
             for name, i in precisions.items():
@@ -297,7 +280,59 @@ def _parse_wide(
             continue
         seen[probe["id"]] = f"row {row_number}"
         probes.append(probe)
-    return probes, errors, []
+    return probes, errors, notes
+
+
+ABSENT_KEY = "\0absent"  # where _wide_bases hands back the absent units it inferred
+
+
+def _wide_bases(cells, header, bases, units, probe, where, decimal_comma) -> dict:
+    """Observed bases of one wide row, in unit order, with absent units filled in.
+
+    An empty cell of a unit whose column is present, above a unit whose base is given, means
+    the probe passed that unit's position without meeting it: the unit is absent and its base
+    is recorded at the base of the unit above (0 m for the first unit), when that is known.
+    Equal depths are accepted (an absent unit); rising depths are refused.
+    """
+    given: dict[int, float | None] = {}
+    for k, name in enumerate(units):  # unit order, so depth order can be checked
+        if name not in bases:
+            continue
+        col = header[bases[name]]
+        depth = _number(_cell(cells, bases[name]), f"{where}, column {col}", decimal_comma)
+        given[k] = depth
+        if depth is None:
+            continue
+        if depth < 0:
+            raise InputError(f"{where}, column {col}", f"{depth:g} is above ground level")
+        if depth > probe["final_depth_m"] + DEPTH_TOL_M:
+            raise InputError(
+                f"{where}, column {col}",
+                f"{depth:g} m is below the final depth {probe['final_depth_m']:g} m",
+            )
+    deepest_given = max((k for k, d in given.items() if d is not None), default=-1)
+    observed: dict = {}
+    absent = []
+    last: tuple[str, float] | None = None
+    for k, depth in given.items():
+        name = units[k]
+        if depth is None:
+            known_above = k == 0 or (last is not None and last[0] == units[k - 1])
+            if k > deepest_given or not known_above:
+                continue
+            depth = last[1] if last is not None else 0.0
+            absent.append((name, depth, last[0] if last is not None else None))
+        elif last is not None and depth < last[1] - DEPTH_TOL_M:
+            raise InputError(
+                f"{where}, column {header[bases[name]]}",
+                f"{depth:g} m is above the base of {last[0]} ({last[1]:g} m); "
+                "bases must not rise in unit order",
+            )
+        observed[name] = depth
+        last = (name, depth)
+    if absent:
+        observed[ABSENT_KEY] = absent
+    return observed
 
 
 def _parse_long(
