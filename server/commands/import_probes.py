@@ -1,12 +1,15 @@
-"""`probewise import-probes MODEL FILE [-o OUT]`: earlier probes from CSV, XLSX or AGS4.
+"""`probewise import-probes MODEL FILE [-o OUT]`: earlier probes from CSV, XLSX, AGS4 or AGS3.
 
 Tables follow docs/import-formats.md (wide: one row per probe; long: one row per layer).
-AGS4 files need every geology code mapped to a project unit (``--mapping CODE=UNIT``, or
-``CODE=-`` to leave it out) and every location type to a method (``--method-for TYPE=METHOD``
-or ``--default-method``). Without ``-o``, with ``--preview``, or while codes are unmapped, it
-prints what it read (and the mapping table) and writes nothing. Probes outside the site are
-refused, with their ids, unless ``--leave-outside`` leaves them out; locations whose layers
-break the model's rules are refused unless ``--skip-problems`` leaves them out.
+AGS files (AGS4 or AGS3, told apart by their first row) need every layer given a project
+unit: by its geology code (``--mapping CODE=UNIT``, ``CODE=-`` to leave it out) or by its
+description (``--mapping-text PATTERN=UNIT``, ordered rules, first match wins), and every
+location type a method (``--method-for TYPE=METHOD`` or ``--default-method``). Without ``-o``,
+with ``--preview``, or while layers are unmapped, it prints what it read (the mapping table,
+what each text rule caught, the thickness of each unit in the holes) and writes nothing.
+Probes outside the site are refused, with their ids, unless ``--leave-outside`` leaves them
+out; locations whose layers break the model's rules are refused unless ``--skip-problems``
+leaves them out.
 """
 
 from __future__ import annotations
@@ -19,7 +22,8 @@ from server.app.project import read_model, write_model
 from server.commands.options import parse_pairs
 from server.errors import InputError
 
-FORMAT_SUFFIXES = {".csv": "csv", ".txt": "csv", ".xlsx": "xlsx", ".ags": "ags4"}
+FORMAT_SUFFIXES = {".csv": "csv", ".txt": "csv", ".xlsx": "xlsx", ".ags": "ags"}
+AGS_FORMATS = ("ags", "ags4", "ags3")  # "ags": AGS4 or AGS3, told by the first row
 # The flags that set each reader option a message calls for (server.errors.OptionNeededError).
 OPTION_FLAGS = {
     "leave_outside": "--leave-outside",
@@ -29,8 +33,12 @@ OPTION_FLAGS = {
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("model", metavar="MODEL", help="model file (JSON, schema probewise/1)")
-    parser.add_argument("file", metavar="FILE", help="probes: .csv, .xlsx or AGS4 .ags")
-    parser.add_argument("--format", choices=("csv", "xlsx", "ags4"), help="default: extension")
+    parser.add_argument("file", metavar="FILE", help="probes: .csv, .xlsx or AGS4/AGS3 .ags")
+    parser.add_argument(
+        "--format",
+        choices=("csv", "xlsx", "ags4", "ags3"),
+        help="default: extension (.ags: AGS4 or AGS3, told by the first row)",
+    )
     parser.add_argument(
         "--mapping",
         action="append",
@@ -154,8 +162,8 @@ def _run(args: argparse.Namespace) -> int:
     data = _read_bytes(args.file)
     name = Path(args.file).name
     mapping = _mapping(args)
-    if fmt == "ags4":
-        probes, outside, problems, notes = _from_ags4(args, model, data, name, mapping)
+    if fmt in AGS_FORMATS:
+        probes, outside, problems, notes = _from_ags(args, model, data, name, mapping, fmt)
         if probes is None:
             return 0
     else:
@@ -222,16 +230,20 @@ def _from_table(args, model, data, name, mapping):
     return preview.probes, preview.outside_site, preview.problems, preview.notes
 
 
-def _from_ags4(args, model, data, name, mapping):
-    from server.io.probes_in import ags4_legends, ags4_to_existing, read_ags4
+def _from_ags(args, model, data, name, mapping, fmt):
+    from server.io.probes_in import ags4_legends, ags4_to_existing, read_ags, read_ags3, read_ags4
 
-    holes = read_ags4(data, filename=name)
+    reader = {"ags": read_ags, "ags4": read_ags4, "ags3": read_ags3}[fmt]
+    holes = reader(data, filename=name)
     legends = ags4_legends(holes)
     units = {u["name"].lower(): u["name"] for u in model["units"]}
     unmapped = [c for c, _d, _n in legends if c not in mapping]
     show = args.preview or not args.output or unmapped
     if show:
-        print(f"{name}: {len(holes.holes)} location(s), {sum(n for *_x, n in legends)} layer(s)")
+        print(
+            f"{name} ({holes.format}): {len(holes.holes)} location(s), "
+            f"{sum(n for *_x, n in legends)} layer(s)"
+        )
         rows = []
         for code, desc, count in legends:
             target = mapping.get(code)

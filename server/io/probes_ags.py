@@ -13,6 +13,7 @@ from collections import Counter
 from typing import Any
 
 from server.errors import InputError, OptionNeededError
+from server.io.probes_ags3 import group_records, looks_like_ags3, parse_ags3
 from server.io.probes_common import (
     Ags4Hole,
     Ags4Holes,
@@ -29,6 +30,15 @@ from server.io.probes_common import (
 )
 
 
+def read_ags(data: bytes, *, filename: str = "file.ags") -> Ags4Holes:
+    """Locations and layers from an AGS4 or an AGS3 file, told apart by their first row."""
+    if not data or not data.strip():
+        raise InputError(filename, "is empty")
+    if looks_like_ags3(_decode(data)):
+        return read_ags3(data, filename=filename)
+    return read_ags4(data, filename=filename)
+
+
 def read_ags4(data: bytes, *, filename: str = "file.ags") -> Ags4Holes:
     """Locations (LOCA) and their layers (GEOL) from an AGS4 file, parsed by python-ags4."""
     from python_ags4 import AGS4
@@ -43,41 +53,83 @@ def read_ags4(data: bytes, *, filename: str = "file.ags") -> Ags4Holes:
     except Exception as exc:  # a DATA row before any HEADING, ragged rows and the like
         raise InputError(filename, f"is not a readable AGS4 file ({type(exc).__name__})") from None
     if not tables:
-        raise InputError(filename, "has no AGS4 GROUP rows; is it an AGS4 file?")
+        why = " (it looks like AGS3: read it as AGS3)" if looks_like_ags3(text) else ""
+        raise InputError(filename, f"has no AGS4 GROUP rows; is it an AGS4 file?{why}")
     for group, what in (("LOCA", "locations"), ("GEOL", "geology layers")):
         if group not in tables:
             raise InputError(
                 filename, f"has no {group} group ({what}); both LOCA and GEOL are needed"
             )
-
-    loca = _ags_rows(
-        tables["LOCA"], "LOCA", filename, ("LOCA_ID", "LOCA_NATE", "LOCA_NATN", "LOCA_FDEP")
+    return _build_holes(
+        filename,
+        "AGS4",
+        (_ags_rows(tables["LOCA"], "LOCA"), set(tables["LOCA"].columns)),
+        (_ags_rows(tables["GEOL"], "GEOL"), set(tables["GEOL"].columns)),
     )
-    geol = _ags_rows(tables["GEOL"], "GEOL", filename, ("LOCA_ID", "GEOL_TOP", "GEOL_BASE"))
-    if not any(h in tables["GEOL"].columns for h in ("GEOL_GEOL", "GEOL_LEG", "GEOL_DESC")):
+
+
+def read_ags3(data: bytes, *, filename: str = "file.ags") -> Ags4Holes:
+    """Locations (HOLE) and their layers (GEOL) from an AGS3 file (server/io/probes_ags3.py)."""
+    if not data or not data.strip():
+        raise InputError(filename, "is empty")
+    groups = parse_ags3(_decode(data), filename)
+    if not groups:
+        raise InputError(filename, 'has no AGS3 group rows ("**GROUP"); is it an AGS3 file?')
+    for group, what in (("HOLE", "locations"), ("GEOL", "geology layers")):
+        if group not in groups:
+            raise InputError(
+                filename, f"has no {group} group ({what}); both HOLE and GEOL are needed"
+            )
+    return _build_holes(
+        filename,
+        "AGS3",
+        (group_records(groups["HOLE"]), set(groups["HOLE"].headings)),
+        (group_records(groups["GEOL"]), set(groups["GEOL"].headings)),
+    )
+
+
+Rows = tuple[list[tuple[str, dict[str, str]]], set[str]]  # (where, {heading: text}), headings
+
+
+def _required(headings: set[str], group: str, filename: str, names: tuple[str, ...]) -> None:
+    missing = [h for h in names if h not in headings]
+    if missing:
+        raise InputError(f"{filename} {group}", f"missing heading(s) {', '.join(missing)}")
+
+
+def _build_holes(filename: str, fmt: str, hole_rows: Rows, geol_rows: Rows) -> Ags4Holes:
+    """Holes with their layers from the rows of the location group and of GEOL."""
+    g = "HOLE" if fmt == "AGS3" else "LOCA"  # the location group and the prefix of its headings
+    key = f"{g}_ID"
+    _required(hole_rows[1], g, filename, (key, f"{g}_NATE", f"{g}_NATN", f"{g}_FDEP"))
+    _required(geol_rows[1], "GEOL", filename, (key, "GEOL_TOP", "GEOL_BASE"))
+    if not geol_rows[1] & {"GEOL_GEOL", "GEOL_LEG", "GEOL_DESC"}:
         raise InputError(f"{filename} GEOL", "has none of GEOL_GEOL, GEOL_LEG, GEOL_DESC to map")
 
     holes: dict[str, dict] = {}
-    for where, row in loca:
-        hid = row["LOCA_ID"].strip()
+    for where, row in hole_rows[0]:
+        hid = row[key].strip()
         if not hid:
-            raise InputError(f"{filename} {where}, LOCA_ID", "empty")
+            raise InputError(f"{filename} {where}, {key}", "empty")
         if hid in holes:
-            raise InputError(
-                f"{filename} {where}, LOCA_ID", f"'{hid}' repeats {holes[hid]['where']}"
-            )
+            raise InputError(f"{filename} {where}, {key}", f"'{hid}' repeats {holes[hid]['where']}")
+
+        def num(heading: str, row: dict = row, where: str = where) -> float | None:
+            return _number(row.get(heading, ""), f"{filename} {where}, {heading}")
+
         holes[hid] = {
             "id": hid,
-            "type": row.get("LOCA_TYPE", "").strip(),
-            "x": _number(row["LOCA_NATE"], f"{filename} {where}, LOCA_NATE"),
-            "y": _number(row["LOCA_NATN"], f"{filename} {where}, LOCA_NATN"),
-            "final_depth_m": _number(row["LOCA_FDEP"], f"{filename} {where}, LOCA_FDEP"),
+            "type": row.get(f"{g}_TYPE", "").strip(),
+            "x": num(f"{g}_NATE"),
+            "y": num(f"{g}_NATN"),
+            "final_depth_m": num(f"{g}_FDEP"),
+            "ground_level_m": num(f"{g}_GL"),
             "layers": [],
             "where": where,
         }
     problems = []
-    for where, row in geol:
-        hid = row["LOCA_ID"].strip()
+    for where, row in geol_rows[0]:
+        hid = row[key].strip()
         top = _number(row["GEOL_TOP"], f"{filename} {where}, GEOL_TOP")
         base = _number(row["GEOL_BASE"], f"{filename} {where}, GEOL_BASE")
         for heading, value in (("GEOL_TOP", top), ("GEOL_BASE", base)):
@@ -87,7 +139,7 @@ def read_ags4(data: bytes, *, filename: str = "file.ags") -> Ags4Holes:
                 )
         geology = row.get("GEOL_GEOL", "").strip()
         legend = row.get("GEOL_LEG", "").strip()
-        description = row.get("GEOL_DESC", "").strip()
+        description = " ".join(row.get("GEOL_DESC", "").split())
         layer = Ags4Layer(
             top_m=top,
             base_m=base,
@@ -98,23 +150,19 @@ def read_ags4(data: bytes, *, filename: str = "file.ags") -> Ags4Holes:
             where=where,
         )
         if hid not in holes:
-            problems.append(f"{filename} {where}: location '{hid}' is not in LOCA; layer left out")
+            problems.append(f"{filename} {where}: location '{hid}' is not in {g}; layer left out")
             continue
         holes[hid]["layers"].append(layer)
     return Ags4Holes(
         filename=filename,
         holes=tuple(Ags4Hole(**{**h, "layers": tuple(h["layers"])}) for h in holes.values()),
         problems=tuple(problems),
+        format=fmt,
     )
 
 
-def _ags_rows(
-    frame: Any, group: str, filename: str, required: tuple[str, ...]
-) -> list[tuple[str, dict]]:
-    """DATA rows of one AGS4 group as (where, {heading: text}); required headings checked."""
-    missing = [h for h in required if h not in frame.columns]
-    if missing:
-        raise InputError(f"{filename} {group}", f"missing heading(s) {', '.join(missing)}")
+def _ags_rows(frame: Any, group: str) -> list[tuple[str, dict]]:
+    """DATA rows of one AGS4 group as (where, {heading: text})."""
     out = []
     n = 0
     for record in frame.to_dict("records"):
@@ -203,24 +251,25 @@ def ags4_to_existing(
     problems = list(holes.problems)
     notes: list[str] = []
     name = holes.filename
+    g = holes.hole_group
     for hole in holes.holes:
         if hole.x is None or hole.y is None:
-            problems.append(f"{name} {hole.where}: {hole.id} has no LOCA_NATE/LOCA_NATN; left out")
+            problems.append(f"{name} {hole.where}: {hole.id} has no {g}_NATE/{g}_NATN; left out")
             continue
         final = hole.final_depth_m
         if final is None:
             final = max((layer.base_m for layer in hole.layers), default=None)
             if final is None:
                 problems.append(
-                    f"{name} {hole.where}: {hole.id} has no LOCA_FDEP and no layers; left out"
+                    f"{name} {hole.where}: {hole.id} has no {g}_FDEP and no layers; left out"
                 )
                 continue
             notes.append(
-                f"{hole.id}: no LOCA_FDEP; final depth taken as the deepest layer base {final:g} m"
+                f"{hole.id}: no {g}_FDEP; final depth taken as the deepest layer base {final:g} m"
             )
         if final <= 0:
             problems.append(
-                f"{name} {hole.where}, LOCA_FDEP: {final:g} is not > 0; {hole.id} left out"
+                f"{name} {hole.where}, {g}_FDEP: {final:g} is not > 0; {hole.id} left out"
             )
             continue
         layers = [
@@ -234,16 +283,17 @@ def ags4_to_existing(
             problems.extend(f"{e}; {hole.id} left out" for e in layer_problems)
             continue
         notes.extend(f"{hole.id}: {n}" for n in hole_notes)
-        probes.append(
-            {
-                "id": hole.id,
-                "method": method_of(hole),
-                "x": hole.x,
-                "y": hole.y,
-                "final_depth_m": final,
-                "observed": observed,
-            }
-        )
+        probe = {
+            "id": hole.id,
+            "method": method_of(hole),
+            "x": hole.x,
+            "y": hole.y,
+            "final_depth_m": final,
+            "observed": observed,
+        }
+        if hole.ground_level_m is not None:
+            probe["ground_level_m"] = hole.ground_level_m
+        probes.append(probe)
     return ImportResult(
         probes=probes,
         outside_site=probes_outside_site(model, probes),

@@ -66,6 +66,7 @@ class Ags4Hole:
     final_depth_m: float | None
     layers: tuple[Ags4Layer, ...]
     where: str  # "LOCA row 2 (line 14)"
+    ground_level_m: float | None = None  # LOCA_GL (AGS4), HOLE_GL (AGS3)
 
 
 @dataclass(frozen=True)
@@ -73,6 +74,12 @@ class Ags4Holes:
     filename: str
     holes: tuple[Ags4Hole, ...]
     problems: tuple[str, ...] = ()  # e.g. GEOL rows naming a location missing from LOCA
+    format: str = "AGS4"  # or "AGS3"
+
+    @property
+    def hole_group(self) -> str:
+        """The group of the locations: LOCA in AGS4, HOLE in AGS3."""
+        return "HOLE" if self.format == "AGS3" else "LOCA"
 
 
 @dataclass(frozen=True)

@@ -10,7 +10,7 @@ from __future__ import annotations
 import copy
 
 from server.errors import InputError
-from server.io.probes_ags import ags4_legends, ags4_to_existing, read_ags4
+from server.io.probes_ags import ags4_legends, ags4_to_existing, read_ags, read_ags3, read_ags4
 from server.io.probes_common import (
     DEPTH_TOL_M,
     Ags4Hole,
@@ -39,6 +39,8 @@ __all__ = [
     "parse_csv",
     "preview_csv",
     "probes_outside_site",
+    "read_ags",
+    "read_ags3",
     "read_ags4",
 ]
 

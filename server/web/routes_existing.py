@@ -371,6 +371,7 @@ def ags4_state(
     ]
     return {
         "filename": filename,
+        "format": holes.format,
         "n_holes": len(holes.holes),
         "codes": codes,
         "types": types,
@@ -383,7 +384,7 @@ def ags4_state(
 def _read_ags4(reader: FormReader, model: dict) -> tuple[probes_in.Ags4Holes, dict[str, Any]]:
     """The uploaded AGS4 file's holes and its mapping step (see ags4_state)."""
     data, filename = _upload(reader, "ags4_file", "an AGS4 file")
-    holes = probes_in.read_ags4(data, filename=filename)
+    holes = probes_in.read_ags(data, filename=filename)
     return holes, ags4_state(holes, reader, model, filename)
 
 
@@ -456,5 +457,8 @@ def import_ags4(request: Request, project_id: int, form: PostedForm, db: Db) -> 
     if result.problems:
         left_out.append(f"{len(result.problems)} with problems")
     n = len(result.importable)
-    message = f"Imported {n} existing probe{'s' if n != 1 else ''} from {state['filename']} (AGS4)"
+    message = (
+        f"Imported {n} existing probe{'s' if n != 1 else ''} from {state['filename']} "
+        f"({holes.format})"
+    )
     return _save_import(request, db, project, reader, "ags4", result.importable, message, left_out)
