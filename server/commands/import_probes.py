@@ -50,6 +50,14 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         "--mapping-file", metavar="JSON", help='mapping as a JSON object {"CODE": "UNIT"}'
     )
     parser.add_argument(
+        "--mapping-text",
+        action="append",
+        metavar="PATTERN=UNIT",
+        help="AGS layers whose description contains PATTERN (case-insensitive; /.../ for a "
+        "regular expression) -> project unit, where no --mapping decides; in order, first "
+        "match wins; PATTERN=- leaves the layer out; repeat",
+    )
+    parser.add_argument(
         "--method-for", action="append", metavar="TYPE=METHOD", help="AGS4 LOCA_TYPE -> method id"
     )
     parser.add_argument("--default-method", metavar="ID", help="method for rows/types not given")
@@ -205,6 +213,10 @@ def _run(args: argparse.Namespace) -> int:
 def _from_table(args, model, data, name, mapping):
     from server.io.probes_in import preview_csv
 
+    if args.mapping_text:
+        raise InputError(
+            "--mapping-text", "applies to AGS files (it matches layer descriptions), not tables"
+        )
     preview = preview_csv(
         data,
         model,
@@ -231,42 +243,24 @@ def _from_table(args, model, data, name, mapping):
 
 
 def _from_ags(args, model, data, name, mapping, fmt):
-    from server.io.probes_in import ags4_legends, ags4_to_existing, read_ags, read_ags3, read_ags4
+    from server.io.probes_common import resolve_mapping
+    from server.io.probes_in import ags4_to_existing, read_ags, read_ags3, read_ags4
+    from server.io.probes_mapping import decide_layers
 
     reader = {"ags": read_ags, "ags4": read_ags4, "ags3": read_ags3}[fmt]
     holes = reader(data, filename=name)
-    legends = ags4_legends(holes)
-    units = {u["name"].lower(): u["name"] for u in model["units"]}
-    unmapped = [c for c, _d, _n in legends if c not in mapping]
+    rules = _text_rules(args, model)
+    decided = decide_layers(holes, resolve_mapping(mapping, model), rules, model)
+    unmapped = list(decided.undecided)
     show = args.preview or not args.output or unmapped
     if show:
-        print(
-            f"{name} ({holes.format}): {len(holes.holes)} location(s), "
-            f"{sum(n for *_x, n in legends)} layer(s)"
-        )
-        rows = []
-        for code, desc, count in legends:
-            target = mapping.get(code)
-            shown = (
-                "?"
-                if target is None
-                else (
-                    "(left out)"
-                    if target.strip() in ("", "-")
-                    else units.get(target.lower(), target)
-                )
-            )
-            rows.append([code, desc[:60], str(count), shown])
-        print(_table(["code", "description", "layers", "unit"], rows, right=(2,)))
-        types = sorted({h.type or "(blank)" for h in holes.holes})
-        print(f"location types: {', '.join(types)}")
-        print(f"project units: {', '.join(u['name'] for u in model['units'])}")
-        _show_list("problems", list(holes.problems))
+        _print_mapping(holes, model, mapping, decided)
     if unmapped and not args.preview:
+        shown = ", ".join(f"{c} ({n} layer(s))" for c, n in decided.undecided.items())
         raise InputError(
             "--mapping",
-            f"no unit for geology code(s) {', '.join(unmapped)}; give CODE=UNIT for each "
-            "(or CODE=- to leave it out)",
+            f"no unit for geology code(s) {shown}; give CODE=UNIT for each (or CODE=- to "
+            "leave it out), or --mapping-text PATTERN=UNIT rules that match their descriptions",
         )
     result = None
     if not unmapped:
@@ -276,14 +270,66 @@ def _from_ags(args, model, data, name, mapping, fmt):
             mapping,
             method_by_type=parse_pairs(args.method_for, "--method-for"),
             default_method=args.default_method,
+            text_rules=rules,
         )
         if show or result.problems:
             print()
             _print_probes(result.probes, result.outside_site)
             _show_list("problems", result.problems)
             _show_list("notes", result.notes)
+            _print_thickness_summary(model, result.probes)
     if show:
         if not args.output and not args.preview:
             print("nothing written: give -o OUT to import")
         return None, None, None, None
     return result.probes, result.outside_site, result.problems, result.notes
+
+
+def _text_rules(args, model):
+    from server.io.probes_in import parse_text_rules
+
+    return parse_text_rules(args.mapping_text, model, "--mapping-text")
+
+
+def _print_mapping(holes, model, mapping, decided) -> None:
+    """The codes with their units, then what each text rule caught."""
+    from server.io.probes_in import ags4_legends
+
+    legends = ags4_legends(holes)
+    units = {u["name"].lower(): u["name"] for u in model["units"]}
+    print(
+        f"{holes.filename} ({holes.format}): {len(holes.holes)} location(s), "
+        f"{sum(n for *_x, n in legends)} layer(s)"
+    )
+    rows = []
+    for code, desc, count in legends:
+        target = mapping.get(code)
+        if target is not None:
+            shown = "(left out)" if target.strip() in ("", "-") else units.get(target.lower())
+        elif code in decided.undecided:
+            left = decided.undecided[code]
+            shown = "?" if left == count else f"? ({left} not matched by a text rule)"
+        else:
+            shown = "by text rules"
+        rows.append([code, desc[:60], str(count), shown or target])
+    print(_table(["code", "description", "layers", "unit"], rows, right=(2,)))
+    if decided.hits:
+        print()
+        print("text rules (first match wins; used where no code mapping decides):")
+        rule_rows = []
+        for hit in decided.hits:
+            example = hit.examples[0][:70] if hit.examples else "-"
+            rule_rows.append([hit.rule.pattern, hit.rule.unit_label, str(hit.layers), example])
+            rule_rows += [["", "", "", e[:70]] for e in hit.examples[1:]]
+        print(_table(["pattern", "unit", "layers", "examples"], rule_rows, right=(2,)))
+        idle = [h.rule.pattern for h in decided.hits if h.layers == 0]
+        if idle:
+            print(f"note: text rule(s) that caught no layer: {', '.join(idle)}")
+    types = sorted({h.type or "(blank)" for h in holes.holes})
+    print(f"location types: {', '.join(types)}")
+    print(f"project units: {', '.join(u['name'] for u in model['units'])}")
+    _show_list("problems", list(holes.problems))
+
+
+def _print_thickness_summary(model, probes) -> None:
+    """Placeholder until the thickness summary is in place."""

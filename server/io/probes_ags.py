@@ -28,6 +28,7 @@ from server.io.probes_common import (
     probes_outside_site,
     resolve_mapping,
 )
+from server.io.probes_mapping import TextRule, decide_layers, undecided_error
 
 
 def read_ags(data: bytes, *, filename: str = "file.ags") -> Ags4Holes:
@@ -198,11 +199,14 @@ def ags4_to_existing(
     mapping: dict[str, str],
     method_by_type: dict[str, str] | None = None,
     default_method: str | None = None,
+    text_rules: list[TextRule] | None = None,
 ) -> ImportResult:
-    """Existing-probe dicts from AGS4 holes, with geology codes mapped to project units.
+    """Existing-probe dicts from AGS holes, with layers mapped to project units.
 
-    ``mapping``: geology code -> unit name, or "-"/"" to leave that code out. Every code in
-    the file must be mapped. ``method_by_type``: LOCA_TYPE -> method id; a type equal to a
+    ``mapping``: geology code -> unit name, or "-"/"" to leave that code out. Layers of a code
+    not in ``mapping`` go by the first of ``text_rules`` that matches their description
+    (server/io/probes_mapping.py); every layer must be placed one way or the other.
+    ``method_by_type``: LOCA_TYPE -> method id; a type equal to a
     method id maps to it; otherwise ``default_method``. Holes whose layers break the model's
     rules (order of units, bases below the final depth...) are left out and listed in
     ``problems``; holes outside the site are listed in ``outside_site`` and left out of
@@ -211,13 +215,9 @@ def ags4_to_existing(
     units, _ = _unit_lookup(model)
     methods = _method_lookup(model)
     code_to_unit = resolve_mapping(mapping, model)
-    unmapped = [c for c, _d, _n in ags4_legends(holes) if c not in code_to_unit]
-    if unmapped:
-        raise InputError(
-            "mapping",
-            f"no unit for geology code(s) {', '.join(unmapped)}; map each one to a unit "
-            "or leave it out",
-        )
+    decided = decide_layers(holes, code_to_unit, list(text_rules or []), model)
+    if decided.undecided:
+        raise undecided_error(decided.undecided)
     by_type = {}
     for hole_type, method in (method_by_type or {}).items():
         if method.lower() not in methods:
@@ -273,8 +273,8 @@ def ags4_to_existing(
             )
             continue
         layers = [
-            (layer.top_m, layer.base_m, code_to_unit[layer.code], f"{name} {layer.where}")
-            for layer in hole.layers
+            (layer.top_m, layer.base_m, decided.unit_of[(hole.id, n)], f"{name} {layer.where}")
+            for n, layer in enumerate(hole.layers)
         ]
         observed, layer_problems, hole_notes = observed_from_layers(
             layers, final, units, f"{name} location {hole.id}"
@@ -299,4 +299,6 @@ def ags4_to_existing(
         outside_site=probes_outside_site(model, probes),
         problems=problems,
         notes=notes,
+        rule_hits=decided.hits,
+        layers_by_code=decided.by_code,
     )

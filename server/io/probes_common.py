@@ -88,6 +88,8 @@ class ImportResult:
     outside_site: list[str]
     problems: list[str]  # holes left out, with the reason
     notes: list[str] = field(default_factory=list)
+    rule_hits: list = field(default_factory=list)  # probes_mapping.RuleHits, per text rule
+    layers_by_code: int = 0  # layers placed by the code mapping
 
     @property
     def importable(self) -> list[dict]:

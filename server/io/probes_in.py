@@ -22,6 +22,7 @@ from server.io.probes_common import (
     outside_error,
     probes_outside_site,
 )
+from server.io.probes_mapping import RuleHits, TextRule, make_text_rule, parse_text_rules
 from server.io.probes_table import parse_csv, preview_csv
 
 __all__ = [
@@ -31,12 +32,16 @@ __all__ = [
     "Ags4Layer",
     "ImportResult",
     "ProbePreview",
+    "RuleHits",
+    "TextRule",
     "ags4_legends",
     "ags4_to_existing",
+    "make_text_rule",
     "merge_existing",
     "observed_from_layers",
     "outside_error",
     "parse_csv",
+    "parse_text_rules",
     "preview_csv",
     "probes_outside_site",
     "read_ags",
