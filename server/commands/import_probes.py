@@ -233,6 +233,7 @@ def _from_table(args, model, data, name, mapping):
             _print_probes(preview.probes, preview.outside_site)
         _show_list("problems", preview.problems)
         _show_list("notes", preview.notes)
+        _print_thickness_summary(model, preview.probes)
     if show:
         if not args.output and not args.preview:
             print("nothing written: give -o OUT to import")
@@ -332,4 +333,19 @@ def _print_mapping(holes, model, mapping, decided) -> None:
 
 
 def _print_thickness_summary(model, probes) -> None:
-    """Placeholder until the thickness summary is in place."""
+    """Each unit's thickness in the holes read, beside the model's range (docs/model.md)."""
+    from server.app.thickness_stats import display_rows, unit_thicknesses
+
+    summaries = unit_thicknesses(model, probes)
+    if not any(s.holes for s in summaries):
+        return
+    rows = [
+        [r["unit"], r["met"], r["quartiles"], r["mean_all"], r["model"], r["suggested"]]
+        for r in display_rows(model, summaries)
+    ]
+    print()
+    print("thickness in the holes read (m; holes that give the unit's top and base):")
+    headers = ["unit", "met (share)", "min / Q1 / median / Q3 / max where met", "mean"]
+    headers += ["model range", "suggested (P5 / median / P95)"]
+    print(_table(headers, rows))
+    _show_list("thickness warnings", [w for s in summaries for w in s.warnings])

@@ -136,6 +136,7 @@ def ags4_state(
         "rules_text": rules_text,
         "rules": rules,
         "rule_hits": decided.hits,
+        "thickness": None,
         "undecided": decided.undecided,
     }
 

@@ -15,6 +15,7 @@ import sqlite_utils
 from fastapi import APIRouter, Request
 from starlette.responses import Response
 
+from server.app.thickness_stats import thickness_view
 from server.errors import InputError
 from server.io import probes_in
 from server.store import StoredProject, get_project
@@ -229,8 +230,17 @@ def preview_csv(request: Request, project_id: int, form: PostedForm, db: Db) -> 
         _data, filename, preview = _read_csv(reader, project.model)
     except InputError as exc:
         return _import_answer(request, db, project, reader, "csv", exc)
+    thickness = thickness_view(project.model, preview.importable)
     return _import_answer(
-        request, db, project, reader, "csv", None, csv_preview=preview, preview_file=filename
+        request,
+        db,
+        project,
+        reader,
+        "csv",
+        None,
+        csv_preview=preview,
+        preview_file=filename,
+        thickness=thickness,
     )
 
 
@@ -304,6 +314,7 @@ def preview_ags4(request: Request, project_id: int, form: PostedForm, db: Db) ->
         holes, state = _read_ags4(reader, project.model)
         if reader.raw("step") == "preview":
             state["result"] = _ags4_result(holes, state, project.model)
+            state["thickness"] = thickness_view(project.model, state["result"].importable)
     except InputError as exc:
         return _import_answer(request, db, project, reader, "ags4", exc, ags4=state)
     return _import_answer(request, db, project, reader, "ags4", None, ags4=state)

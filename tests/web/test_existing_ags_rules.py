@@ -51,3 +51,25 @@ def test_layers_left_unplaced_or_a_bad_rule_store_nothing(client, tiny_model):
     assert "text_rules line 2" in text_of(answer.text)
     assert "not a valid regular expression" in text_of(answer.text)
     assert revision_of(client, pid) == 1
+
+
+def test_previews_show_the_thickness_in_the_holes(client, tiny_model):
+    pid = add_project(client, reclaimed_model_of(tiny_model))
+    url = f"/projects/{pid}/existing/import/ags4/preview"
+    shown = text_of(post(client, url, _form("preview", RULES), _files()).text)
+    assert "Thickness in these holes (m)" in shown
+    # marine deposit: met in BH1 (2.5 m) and absent in BH2, so 1 of 2 and a mean of 1.25 m
+    assert "Marine deposit 1 of 2 (0.50) 2.50 / 2.50 / 2.50 / 2.50 / 2.50 1.25" in shown
+    rows = "\n".join(
+        ["id,method,x,y,final_depth_m,base:Fill,base:Marine deposit,base:Alluvium"]
+        + [f"H{i},BH,{10 + 8 * i},20,20,{2 + 0.1 * i},{2 + 0.1 * i},9" for i in range(19)]
+        + ["DEEP,BH,170,20,20,14,14,16"]
+    )
+    files = {"csv_file": ("holes.csv", rows.encode(), "text/csv")}
+    answer = post(
+        client, f"/projects/{pid}/existing/import/csv/preview", {"expected_revision": "1"}, files
+    )
+    shown = text_of(answer.text)
+    assert "DEEP alone sets the max (14.00 m" in shown
+    assert "Marine deposit 0 of 20 (0.00)" in shown
+    assert revision_of(client, pid) == 1
