@@ -81,3 +81,31 @@ def test_unit_thicknesses_of_a_model(tiny_model):
     rows = unit_thicknesses(tiny_model, probes)
     assert [r.unit for r in rows] == ["Made ground", "Alluvial clay", "River gravel"]
     assert rows[1].quantiles_m == (3.0, 3.0, 3.0, 3.0, 3.0) and rows[2].holes == 0
+
+
+def test_cli_thickness_reports_presence_from_existing_probes(tiny_model, tmp_path, capsys):
+    import json
+
+    from server.cli import main
+
+    model = dict(tiny_model)
+    extra = [
+        {
+            "id": f"E{i}",
+            "method": "BH",
+            "x": 20.0 + 10 * i,
+            "y": 60.0,
+            "final_depth_m": 9.0,
+            # clay met in E0 only (2 m); elsewhere absent: equal depths
+            "observed": {"Made ground": 1.0, "Alluvial clay": 3.0 if i == 0 else 1.0},
+        }
+        for i in range(4)
+    ]
+    model["existing"] = [*tiny_model["existing"], *extra]
+    path = tmp_path / "model.json"
+    path.write_text(json.dumps(model))
+    assert main(["thickness", str(path), "--json"]) == 0
+    units = {u["unit"]: u for u in json.loads(capsys.readouterr().out)["units"]}
+    assert (units["Alluvial clay"]["holes"], units["Alluvial clay"]["met"]) == (6, 3)
+    assert units["Alluvial clay"]["presence"] == pytest.approx(0.5)
+    assert units["Made ground"]["holes"] == 6

@@ -233,7 +233,7 @@ def _from_table(args, model, data, name, mapping):
             _print_probes(preview.probes, preview.outside_site)
         _show_list("problems", preview.problems)
         _show_list("notes", preview.notes)
-        _print_thickness_summary(model, preview.probes)
+        print_thickness_summary(model, preview.probes)
     if show:
         if not args.output and not args.preview:
             print("nothing written: give -o OUT to import")
@@ -278,7 +278,7 @@ def _from_ags(args, model, data, name, mapping, fmt):
             _print_probes(result.probes, result.outside_site)
             _show_list("problems", result.problems)
             _show_list("notes", result.notes)
-            _print_thickness_summary(model, result.probes)
+            print_thickness_summary(model, result.probes)
     if show:
         if not args.output and not args.preview:
             print("nothing written: give -o OUT to import")
@@ -332,13 +332,13 @@ def _print_mapping(holes, model, mapping, decided) -> None:
     _show_list("problems", list(holes.problems))
 
 
-def _print_thickness_summary(model, probes) -> None:
+def print_thickness_summary(model, probes) -> bool:
     """Each unit's thickness in the holes read, beside the model's range (docs/model.md)."""
     from server.app.thickness_stats import display_rows, unit_thicknesses
 
     summaries = unit_thicknesses(model, probes)
     if not any(s.holes for s in summaries):
-        return
+        return False
     rows = [
         [r["unit"], r["met"], r["quartiles"], r["mean_all"], r["model"], r["suggested"]]
         for r in display_rows(model, summaries)
@@ -349,3 +349,4 @@ def _print_thickness_summary(model, probes) -> None:
     headers += ["model range", "suggested (P5 / median / P95)"]
     print(_table(headers, rows))
     _show_list("thickness warnings", [w for s in summaries for w in s.warnings])
+    return True
