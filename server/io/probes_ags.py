@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import io
 from collections import Counter
+from collections.abc import Callable
 from typing import Any
 
 from server.errors import InputError, OptionNeededError
@@ -206,71 +207,25 @@ def ags4_to_existing(
     ``mapping``: geology code -> unit name, or "-"/"" to leave that code out. Layers of a code
     not in ``mapping`` go by the first of ``text_rules`` that matches their description
     (server/io/probes_mapping.py); every layer must be placed one way or the other.
-    ``method_by_type``: LOCA_TYPE -> method id; a type equal to a
+    ``method_by_type``: location type (LOCA_TYPE, HOLE_TYPE) -> method id; a type equal to a
     method id maps to it; otherwise ``default_method``. Holes whose layers break the model's
     rules (order of units, bases below the final depth...) are left out and listed in
     ``problems``; holes outside the site are listed in ``outside_site`` and left out of
     ``importable`` (the model file admits no probe outside the site).
     """
     units, _ = _unit_lookup(model)
-    methods = _method_lookup(model)
     code_to_unit = resolve_mapping(mapping, model)
     decided = decide_layers(holes, code_to_unit, list(text_rules or []), model)
     if decided.undecided:
         raise undecided_error(decided.undecided)
-    by_type = {}
-    for hole_type, method in (method_by_type or {}).items():
-        if method.lower() not in methods:
-            raise InputError(
-                f"method for {hole_type}",
-                f"'{method}' is not a method of the model ({_ids(model)})",
-            )
-        by_type[hole_type] = methods[method.lower()]
-    if default_method is not None:
-        if default_method.lower() not in methods:
-            raise InputError(
-                "default method", f"'{default_method}' is not a method of the model ({_ids(model)})"
-            )
-        default_method = methods[default_method.lower()]
-
-    def method_of(hole: Ags4Hole) -> str | None:
-        if hole.type in by_type:
-            return by_type[hole.type]
-        return methods.get(hole.type.lower()) or default_method
-
-    untyped = sorted({h.type or "(blank)" for h in holes.holes if method_of(h) is None})
-    if untyped:
-        raise OptionNeededError(
-            "method",
-            f"no method for location type(s) {', '.join(untyped)}; choose a method for each "
-            "type or a default method",
-            "method_by_type",
-        )
-
+    method_of = _method_chooser(holes, model, method_by_type, default_method)
     probes: list[dict] = []
     problems = list(holes.problems)
     notes: list[str] = []
     name = holes.filename
-    g = holes.hole_group
     for hole in holes.holes:
-        if hole.x is None or hole.y is None:
-            problems.append(f"{name} {hole.where}: {hole.id} has no {g}_NATE/{g}_NATN; left out")
-            continue
-        final = hole.final_depth_m
+        final = _final_depth(hole, holes, problems, notes)
         if final is None:
-            final = max((layer.base_m for layer in hole.layers), default=None)
-            if final is None:
-                problems.append(
-                    f"{name} {hole.where}: {hole.id} has no {g}_FDEP and no layers; left out"
-                )
-                continue
-            notes.append(
-                f"{hole.id}: no {g}_FDEP; final depth taken as the deepest layer base {final:g} m"
-            )
-        if final <= 0:
-            problems.append(
-                f"{name} {hole.where}, {g}_FDEP: {final:g} is not > 0; {hole.id} left out"
-            )
             continue
         layers = [
             (layer.top_m, layer.base_m, decided.unit_of[(hole.id, n)], f"{name} {layer.where}")
@@ -302,3 +257,67 @@ def ags4_to_existing(
         rule_hits=decided.hits,
         layers_by_code=decided.by_code,
     )
+
+
+def _method_chooser(
+    holes: Ags4Holes,
+    model: dict,
+    method_by_type: dict[str, str] | None,
+    default_method: str | None,
+) -> Callable[[Ags4Hole], str | None]:
+    """hole -> method id, checked to give every location type a method of the model."""
+    methods = _method_lookup(model)
+    by_type = {}
+    for hole_type, method in (method_by_type or {}).items():
+        if method.lower() not in methods:
+            raise InputError(
+                f"method for {hole_type}",
+                f"'{method}' is not a method of the model ({_ids(model)})",
+            )
+        by_type[hole_type] = methods[method.lower()]
+    if default_method is not None:
+        if default_method.lower() not in methods:
+            raise InputError(
+                "default method", f"'{default_method}' is not a method of the model ({_ids(model)})"
+            )
+        default_method = methods[default_method.lower()]
+
+    def method_of(hole: Ags4Hole) -> str | None:
+        if hole.type in by_type:
+            return by_type[hole.type]
+        return methods.get(hole.type.lower()) or default_method
+
+    untyped = sorted({h.type or "(blank)" for h in holes.holes if method_of(h) is None})
+    if untyped:
+        raise OptionNeededError(
+            "method",
+            f"no method for location type(s) {', '.join(untyped)}; choose a method for each "
+            "type or a default method",
+            "method_by_type",
+        )
+    return method_of
+
+
+def _final_depth(
+    hole: Ags4Hole, holes: Ags4Holes, problems: list[str], notes: list[str]
+) -> float | None:
+    """The hole's final depth (the deepest layer base when none is given); None: left out."""
+    name, g = holes.filename, holes.hole_group
+    if hole.x is None or hole.y is None:
+        problems.append(f"{name} {hole.where}: {hole.id} has no {g}_NATE/{g}_NATN; left out")
+        return None
+    final = hole.final_depth_m
+    if final is None:
+        final = max((layer.base_m for layer in hole.layers), default=None)
+        if final is None:
+            problems.append(
+                f"{name} {hole.where}: {hole.id} has no {g}_FDEP and no layers; left out"
+            )
+            return None
+        notes.append(
+            f"{hole.id}: no {g}_FDEP; final depth taken as the deepest layer base {final:g} m"
+        )
+    if final <= 0:
+        problems.append(f"{name} {hole.where}, {g}_FDEP: {final:g} is not > 0; {hole.id} left out")
+        return None
+    return final
