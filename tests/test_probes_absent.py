@@ -133,3 +133,30 @@ def test_ags4_records_absent_units(tiny_model):
     # BH2 ended in the gravel: made ground absent (at ground level), the clay's base read
     assert by_id["BH2"] == {"Made ground": 0.0, "Alluvial clay": 2.0}
     assert any("BH1: no River gravel met" in n for n in result.notes)
+
+
+def test_a_stretch_with_no_layer_is_not_read_as_an_absent_unit(tiny_model):
+    text = """
+id,method,x,y,final_depth_m,unit,top_m,base_m
+G1,BH,20,20,9,Alluvial clay,1.5,4.0
+G1,,,,,Mudstone,4.0,9.0
+G2,BH,40,20,9,Made ground,0,1.0
+G2,,,,,Alluvial clay,1.0,3.0
+G2,,,,,River gravel,3.5,5.0
+G2,,,,,Mudstone,5.0,9.0
+G3,BH,60,20,9,Made ground,0,1.0
+G3,,,,,Mudstone,2.0,9.0
+"""
+    preview = preview_csv(csv_bytes(text), tiny_model)
+    assert preview.problems == []
+    by_id = {p["id"]: p["observed"] for p in preview.probes}
+    # G1: nothing logged above 1.5 m, so made ground may be there: not recorded as absent;
+    # the gravel, between the clay and the mudstone with no gap, is absent
+    assert by_id["G1"] == {"Alluvial clay": 4.0, "River gravel": 4.0}
+    # G2: a gap between the clay and the gravel does not matter: no unit is absent there
+    assert by_id["G2"] == {"Made ground": 1.0, "Alluvial clay": 3.0, "River gravel": 5.0}
+    # G3: 1-2 m not logged: neither the clay nor the gravel is recorded
+    assert by_id["G3"] == {"Made ground": 1.0}
+    notes = " | ".join(preview.notes)
+    assert "G1: no layer logged from 0 to 1.5 m, so Made ground is not recorded as absent" in notes
+    assert "G3: no layer logged from 1 to 2 m, so Alluvial clay is not recorded" in notes

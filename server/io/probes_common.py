@@ -173,6 +173,8 @@ def observed_from_layers(
     last_base = None
     last_unit = None  # (index, where) of the deepest mapped layer so far
     deepest: dict[int, float] = {}
+    first_top: dict[int, float | None] = {}  # shallowest top of each unit met
+    logged: list[tuple[float, float]] = []  # (top, base) of every layer with a top
     for top, base, unit, where in ordered:
         if top is not None and base < top - DEPTH_TOL_M:
             problems.append(InputError(where, f"base {base:g} m is above top {top:g} m"))
@@ -185,8 +187,11 @@ def observed_from_layers(
         if top is not None and last_base is not None and top < last_base - DEPTH_TOL_M:
             problems.append(InputError(where, f"top {top:g} m overlaps the layer above"))
         last_base = base
+        if top is not None:
+            logged.append((top, base))
         if unit is None:
             continue
+        first_top.setdefault(unit, top)
         if last_unit is not None and unit < last_unit[0]:
             problems.append(
                 InputError(
@@ -197,22 +202,57 @@ def observed_from_layers(
             )
         last_unit = (unit, where)
         deepest[unit] = base
-    observed = _bases_with_absent(deepest, final_depth_m, units, who, problems, notes)
+    met = _Met(deepest, first_top, logged)
+    observed = _bases_with_absent(met, final_depth_m, units, who, problems, notes)
     return observed, problems, notes
 
 
+@dataclass(frozen=True)
+class _Met:
+    """The units one probe met: deepest base and shallowest top of each, and what was logged."""
+
+    deepest: dict[int, float]
+    first_top: dict[int, float | None]
+    logged: list[tuple[float, float]]  # (top, base), sorted by top
+
+    def unlogged(self, from_m: float, to_m: float | None) -> tuple[float, float] | None:
+        """The first stretch of [from_m, to_m] that no layer covers (None: all logged).
+
+        Layers left out of the mapping count as logged; an unknown ``to_m`` (layers without
+        tops) is taken as logged.
+        """
+        if to_m is None:
+            return None
+        cursor = from_m
+        for top, base in self.logged:
+            if cursor >= to_m - DEPTH_TOL_M:
+                return None
+            if base <= cursor + DEPTH_TOL_M:
+                continue
+            if top > cursor + DEPTH_TOL_M:
+                return cursor, min(top, to_m)
+            cursor = base
+        return (cursor, to_m) if cursor < to_m - DEPTH_TOL_M else None
+
+
 def _bases_with_absent(
-    deepest: dict[int, float],
+    met: _Met,
     final_depth_m: float,
     units: list[str],
     who: str,
     problems: list[InputError],
     notes: list[str],
 ) -> dict[str, float]:
-    """Observed bases in unit order from the deepest base met of each unit (see above)."""
+    """Observed bases in unit order from the units met (see observed_from_layers).
+
+    An absent unit is recorded only where the log is continuous from the base of the unit
+    above to the top of the next unit met: a stretch with no layer at all may hide the unit.
+    """
     observed: dict[str, float] = {}
+    deepest = met.deepest
     deepest_met = max(deepest, default=-1)
-    above: tuple[str, float] | None = None
+    above: tuple[str, float] | None = None  # None: ground level
+    known = True  # the base of the unit above is known
     for k, name in enumerate(units[:-1]):  # the basal unit has no base
         if k in deepest:
             base = deepest[k]
@@ -227,8 +267,20 @@ def _bases_with_absent(
                         "bases must not rise in unit order",
                     )
                 )
+            known = True
         elif k < deepest_met:
+            if not known:
+                continue
             base = above[1] if above is not None else 0.0
+            below = min(u for u in deepest if u > k)
+            gap = met.unlogged(base, met.first_top.get(below))
+            if gap is not None:
+                notes.append(
+                    f"no layer logged from {gap[0]:g} to {gap[1]:g} m, so {name} is not "
+                    "recorded as absent"
+                )
+                known = False
+                continue
             notes.append(absent_note(name, base, above[0] if above is not None else None))
         else:
             break
