@@ -53,3 +53,16 @@ def test_bad_ground_level_names_the_field(tiny_model):
     with pytest.raises(InputError) as err:
         validate_model(model)
     assert err.value.field == "existing[0].ground_level_m"
+
+
+def test_ground_page_depth_limits_let_a_local_unit_be_absent(tiny_model):
+    from server.web.summary import depth_limits
+
+    model = copy.deepcopy(tiny_model)
+    full = depth_limits(model)
+    model["units"][1]["presence"] = 0.3
+    local = depth_limits(model)
+    clay_min = tiny_model["units"][1]["thickness_m"]["min"]
+    assert local["Made ground"] == full["Made ground"]
+    assert local["Alluvial clay"][0] == pytest.approx(full["Alluvial clay"][0] - clay_min)
+    assert local["Alluvial clay"][1] == full["Alluvial clay"][1]

@@ -1,10 +1,12 @@
 """The Existing information page: earlier probes and the base depths they recorded.
 
 Rows are edited one at a time (``?edit=N`` opens row N), added and deleted; probes come in
-from CSV/XLSX tables (preview, then import) or AGS4 files (a mapping step assigns each
-geology code to a project unit and each location type to a method, then preview, then
-import) through server.io.probes_in. Probes outside the site are listed and only left out when
-the user ticks that box; a bad file stores nothing.
+from CSV/XLSX tables (preview, then import) or AGS4/AGS3 files (a mapping step assigns each
+geology code to a project unit, or text rules place layers by their description, and each
+location type gets a method, then preview, then import) through server.io.probes_in. Both
+previews show each unit's thickness in the holes (server/app/thickness_stats.py). Probes
+outside the site are listed and only left out when the user ticks that box; a bad file
+stores nothing.
 """
 
 from __future__ import annotations
