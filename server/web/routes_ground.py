@@ -221,7 +221,14 @@ def read_unit(reader: FormReader, path: str, unit: dict, basal: bool) -> None:
     if basal:
         unit.pop("thickness_m", None)
         unit.pop("correlation", None)
+        unit.pop("presence", None)
         return
+    if "presence" in reader.form:  # optional: empty means present everywhere
+        presence = reader.number("presence", f"{path}.presence", required=False)
+        if presence is None:
+            unit.pop("presence", None)
+        else:
+            unit["presence"] = presence
     unit["thickness_m"] = {
         **(unit.get("thickness_m") or {}),
         **read_range(reader, f"{path}.thickness_m"),
@@ -243,6 +250,8 @@ def change_words(old: dict, new: dict) -> list[str]:
         words.append("correlation")
     if (old.get("description") or "") != (new.get("description") or ""):
         words.append("description")
+    if old.get("presence") != new.get("presence"):
+        words.append("presence")
     return words
 
 
