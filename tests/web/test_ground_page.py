@@ -344,7 +344,8 @@ def test_presence_is_set_refused_beside_its_field_and_cleared(client, tiny_id, t
     assert last_message(client, tiny_id) == "Changed presence of Alluvial clay"
     # triangular 1/3/6: mean 10/3, variance 19/18; over the site 0.3 x 10/3 = 1 m, std
     # sqrt(0.3 x 19/18 + 0.3 x 0.7 x (10/3)^2) = 1.63 m (docs/model.md, worked by hand)
-    assert "over the site (presence 0.3) mean 1 m" in page_text(client, GROUND.format(tiny_id))
+    shown = page_text(client, GROUND.format(tiny_id))
+    assert "over the site (presence 0.3) mean 1 m · std 1.63 m" in shown
     refused = post(client, url, unit_form(unit, 2, presence="1.5"))
     assert refused.status_code == 422
     assert "<= 1" in error_beside(refused.text, "units[1].presence")
