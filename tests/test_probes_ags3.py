@@ -179,3 +179,7 @@ def test_cli_imports_an_ags3_file(tiny_model, tmp_path, capsys):
     assert main([*args, "--format", "ags4", "-o", str(tmp_path / "no.json")]) == 2
     assert "looks like AGS3" in capsys.readouterr().err
     assert not (tmp_path / "no.json").exists()
+    ags4 = tmp_path / "four.ags"
+    ags4.write_text(ags4_text(), newline="")
+    assert main(["import-probes", str(model), str(ags4), "--format", "ags3", "--preview"]) == 2
+    assert "is an AGS4 file" in capsys.readouterr().err

@@ -244,9 +244,14 @@ def _from_table(args, model, data, name, mapping):
 
 
 def _from_ags(args, model, data, name, mapping, fmt):
-    from server.io.probes_common import resolve_mapping
-    from server.io.probes_in import ags4_to_existing, read_ags, read_ags3, read_ags4
-    from server.io.probes_mapping import decide_layers
+    from server.io.probes_in import (
+        ags4_to_existing,
+        decide_layers,
+        read_ags,
+        read_ags3,
+        read_ags4,
+        resolve_mapping,
+    )
 
     reader = {"ags": read_ags, "ags4": read_ags4, "ags3": read_ags3}[fmt]
     holes = reader(data, filename=name)

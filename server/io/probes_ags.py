@@ -74,7 +74,10 @@ def read_ags3(data: bytes, *, filename: str = "file.ags") -> Ags4Holes:
     """Locations (HOLE) and their layers (GEOL) from an AGS3 file (server/io/probes_ags3.py)."""
     if not data or not data.strip():
         raise InputError(filename, "is empty")
-    groups = parse_ags3(_decode(data), filename)
+    text = _decode(data)
+    if text.lstrip("\ufeff \r\n").startswith('"GROUP"'):
+        raise InputError(filename, 'is an AGS4 file ("GROUP" rows), not AGS3; read it as AGS4')
+    groups = parse_ags3(text, filename)
     if not groups:
         raise InputError(filename, 'has no AGS3 group rows ("**GROUP"); is it an AGS3 file?')
     for group, what in (("HOLE", "locations"), ("GEOL", "geology layers")):

@@ -21,8 +21,15 @@ from server.io.probes_common import (
     observed_from_layers,
     outside_error,
     probes_outside_site,
+    resolve_mapping,
 )
-from server.io.probes_mapping import RuleHits, TextRule, make_text_rule, parse_text_rules
+from server.io.probes_mapping import (
+    RuleHits,
+    TextRule,
+    decide_layers,
+    make_text_rule,
+    parse_text_rules,
+)
 from server.io.probes_table import parse_csv, preview_csv
 
 __all__ = [
@@ -36,6 +43,7 @@ __all__ = [
     "TextRule",
     "ags4_legends",
     "ags4_to_existing",
+    "decide_layers",
     "make_text_rule",
     "merge_existing",
     "observed_from_layers",
@@ -47,6 +55,7 @@ __all__ = [
     "read_ags",
     "read_ags3",
     "read_ags4",
+    "resolve_mapping",
 ]
 
 # ---------------------------------------------------------------------------------------------

@@ -13,8 +13,6 @@ from typing import Any
 
 from server.errors import InputError
 from server.io import probes_in
-from server.io.probes_common import resolve_mapping
-from server.io.probes_mapping import decide_layers
 from server.web.edits import FormReader
 
 # Words too common in soil descriptions to tell units apart when guessing the mapping.
@@ -108,7 +106,9 @@ def ags4_state(
             chosen = "" if rules else guess_unit(code, description, units)
         codes.append({"code": code, "description": description, "count": count, "unit": chosen})
     mapping = {c["code"]: c["unit"] for c in codes if c["unit"]}
-    decided = decide_layers(holes, resolve_mapping(mapping, model), rules, model)
+    decided = probes_in.decide_layers(
+        holes, probes_in.resolve_mapping(mapping, model), rules, model
+    )
     for c in codes:
         c["by_rules"] = not c["unit"] and c["code"] not in decided.undecided
         c["undecided"] = decided.undecided.get(c["code"], 0)
