@@ -183,3 +183,29 @@ def test_cli_imports_an_ags3_file(tiny_model, tmp_path, capsys):
     ags4.write_text(ags4_text(), newline="")
     assert main(["import-probes", str(model), str(ags4), "--format", "ags3", "--preview"]) == 2
     assert "is an AGS4 file" in capsys.readouterr().err
+
+
+def test_a_group_written_twice_gathers_both_blocks():
+    text = (
+        AGS3
+        + "\r\n\r\n"
+        + "\r\n".join(
+            [
+                '"**GEOL"',
+                '"*HOLE_ID","*GEOL_TOP","*GEOL_DESC","*GEOL_BASE"',
+                '"<UNITS>","m","","m"',
+                '"BH9","0.00","Stray layer written in a second block","1.00"',
+            ]
+        )
+    )
+    geol = parse_ags3(text, "gi.ags")["GEOL"]
+    records = group_records(geol)
+    assert len(records) == 9
+    where, last = records[-1]
+    # the second block's own heading order is used for its rows
+    assert where == "GEOL row 9 (line 30)" and last["GEOL_BASE"] == "1.00"
+    assert last["GEOL_DESC"] == "Stray layer written in a second block"
+    with pytest.raises(InputError) as err:
+        first_row = '"BH1","0.00","1.10","Loose brown SAND, gravelly (FILL)","101","FILL"'
+        parse_ags3(AGS3.replace(first_row, first_row + '\r\n"*GEOL_REM"'), "gi.ags")
+    assert err.value.field == "gi.ags line 18" and "headings after the data" in err.value.problem

@@ -88,8 +88,8 @@ def read_ags3(data: bytes, *, filename: str = "file.ags") -> Ags4Holes:
     return _build_holes(
         filename,
         "AGS3",
-        (group_records(groups["HOLE"]), set(groups["HOLE"].headings)),
-        (group_records(groups["GEOL"]), set(groups["GEOL"].headings)),
+        (group_records(groups["HOLE"]), groups["HOLE"].all_headings),
+        (group_records(groups["GEOL"]), groups["GEOL"].all_headings),
     )
 
 

@@ -18,7 +18,7 @@ from __future__ import annotations
 
 import csv
 import io
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 from server.errors import InputError
 
@@ -28,10 +28,13 @@ UNITS = "<UNITS>"
 
 @dataclass
 class Ags3Group:
+    """One group; a group written twice (two blocks) gathers the rows of both."""
+
     name: str
-    headings: list[str]
-    rows: list[tuple[int, list[str]]]  # (file line, cells)
+    headings: list[str]  # of the block being read
+    rows: list[tuple[int, list[str], list[str]]]  # (file line, cells, headings of its block)
     line: int  # line of the group name
+    all_headings: set[str] = field(default_factory=set)  # of every block
 
 
 def looks_like_ags3(text: str) -> bool:
@@ -58,12 +61,11 @@ def parse_ags3(text: str, filename: str) -> dict[str, Ags3Group]:
                 name = first[2:].lstrip("?").strip()
                 if not name:
                     raise InputError(f"{filename} line {line}", "a group name is empty")
-                if name in groups:
-                    raise InputError(
-                        f"{filename} line {line}",
-                        f"group {name} repeats the group of line {groups[name].line}",
-                    )
-                group = groups[name] = Ags3Group(name, [], [], line)
+                if name in groups:  # a second block of the group: its own headings follow
+                    group = groups[name]
+                    group.headings, group.line = [], line
+                else:
+                    group = groups[name] = Ags3Group(name, [], [], line)
                 last = "**"
                 continue
             if group is None:
@@ -71,11 +73,16 @@ def parse_ags3(text: str, filename: str) -> dict[str, Ags3Group]:
                     f"{filename} line {line}", 'comes before any group name ("**GROUP")'
                 )
             if first.startswith("*"):
-                if group.rows:
+                if last not in ("**", "*"):
                     raise InputError(
                         f"{filename} line {line}", f"headings after the data of group {group.name}"
                     )
-                group.headings += [c.strip().lstrip("*").lstrip("?") for c in cells if c.strip()]
+                group.headings = group.headings + [
+                    c.strip().lstrip("*").lstrip("?") for c in cells if c.strip()
+                ]
+                group.all_headings.update(group.headings)
+                last = "*"
+                continue
             elif first == UNITS:
                 last = UNITS
                 continue
@@ -101,13 +108,13 @@ def _add_row(group: Ags3Group, cells: list[str], filename: str, line: int) -> No
             f"{filename} line {line}",
             f"has {len(cells)} fields; group {group.name} has {len(group.headings)} headings",
         )
-    group.rows.append((line, cells + [""] * (len(group.headings) - len(cells))))
+    group.rows.append((line, cells + [""] * (len(group.headings) - len(cells)), group.headings))
 
 
 def _continue_row(group: Ags3Group, cells: list[str], filename: str, line: int) -> None:
     if not group.rows:
         raise InputError(f"{filename} line {line}", f"{CONT} with no data row above it")
-    _line, above = group.rows[-1]
+    _line, above, _headings = group.rows[-1]
     if len(cells) > len(above) and any(c.strip() for c in cells[len(above) :]):
         raise InputError(
             f"{filename} line {line}",
@@ -121,6 +128,6 @@ def _continue_row(group: Ags3Group, cells: list[str], filename: str, line: int) 
 def group_records(group: Ags3Group) -> list[tuple[str, dict[str, str]]]:
     """(where, {heading: text}) per data row, where = "HOLE row 2 (line 14)"."""
     return [
-        (f"{group.name} row {n} (line {line})", dict(zip(group.headings, cells, strict=True)))
-        for n, (line, cells) in enumerate(group.rows, start=1)
+        (f"{group.name} row {n} (line {line})", dict(zip(headings, cells, strict=True)))
+        for n, (line, cells, headings) in enumerate(group.rows, start=1)
     ]
