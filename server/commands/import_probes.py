@@ -43,7 +43,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         "--mapping",
         action="append",
         metavar="CODE=UNIT",
-        help="geology code (AGS4, or the unit column of a long table) -> project unit; "
+        help="geology code (AGS, or the unit column of a long table) -> project unit; "
         "CODE=- leaves it out; repeat",
     )
     parser.add_argument(
@@ -58,7 +58,10 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         "match wins; PATTERN=- leaves the layer out; repeat",
     )
     parser.add_argument(
-        "--method-for", action="append", metavar="TYPE=METHOD", help="AGS4 LOCA_TYPE -> method id"
+        "--method-for",
+        action="append",
+        metavar="TYPE=METHOD",
+        help="AGS location type (LOCA_TYPE, HOLE_TYPE) -> method id",
     )
     parser.add_argument("--default-method", metavar="ID", help="method for rows/types not given")
     parser.add_argument(

@@ -1,9 +1,11 @@
-"""Existing probes in from AGS4 files (parsed by python-ags4).
+"""Existing probes in from AGS files: AGS4 (parsed by python-ags4) and AGS3 (our own reader).
 
-LOCA gives position, type, ground level and final depth, GEOL the layers. The user maps each
-geology code (GEOL_GEOL, else GEOL_LEG, else GEOL_DESC) to a project unit; the layer rules of
-server/io/probes_common.py turn the layers into observed bases. AGS4 rows are counted within
-their group, with the file's line number beside them.
+The location group (LOCA in AGS4, HOLE in AGS3) gives position, type, ground level and final
+depth, GEOL the layers. Each layer is placed in a project unit by its geology code
+(GEOL_GEOL, else GEOL_LEG, else GEOL_DESC) or by text rules on its description
+(server/io/probes_mapping.py); the layer rules of server/io/probes_common.py turn the layers
+into observed bases. Rows are counted within their group, with the file's line number beside
+them.
 """
 
 from __future__ import annotations
