@@ -73,3 +73,16 @@ def test_previews_show_the_thickness_in_the_holes(client, tiny_model):
     assert "DEEP alone sets the max (14.00 m" in shown
     assert "Marine deposit 0 of 20 (0.00)" in shown
     assert revision_of(client, pid) == 1
+
+
+def test_rules_given_before_reading_leave_codes_to_the_rules(client, tiny_model):
+    pid = add_project(client, reclaimed_model_of(tiny_model))
+    url = f"/projects/{pid}/existing/import/ags4/preview"
+    form = {"expected_revision": "1", "step": "read", "text_rules": "\n".join(RULES)}
+    shown = post(client, url, form, _files()).text
+    # SAND, CLAY and GRAN are placed by the rules: no unit guessed for them
+    assert shown.count('<option value="" selected>By text rules</option>') == 3
+    # the topsoil matches no rule: it still needs a choice
+    assert 'class="needs-choice"' in shown and "<code>TOPS</code>" in shown
+    page = client.get(f"/projects/{pid}/existing").text
+    assert 'name="text_rules"' in page  # the rules box sits in the form, beside the file
