@@ -22,7 +22,8 @@ COMMANDS = {
     "optimise": ("optimise", "propose a layout for a budget"),
     "rank": ("rank", "rank hand-made, guidance-grid and optimised options"),
     "schedule": ("schedule", "write the scoping schedule of a layout"),
-    "import-probes": ("import_probes", "add existing probes from CSV or AGS4 to a model file"),
+    "import-probes": ("import_probes", "add existing probes from CSV, XLSX, AGS4 or AGS3"),
+    "thickness": ("thickness", "each unit's thickness in the existing probes; ranges to check"),
     "import-gis": ("import_gis", "take a site outline, zones or areas from a GIS file"),
     "export": ("export", "export a schedule or the posterior grid to CSV/GeoJSON/GeoPackage"),
 }

@@ -83,7 +83,7 @@ def test_text_in_a_numeric_cell_names_row_and_column(tiny_model):
 @pytest.mark.parametrize(
     ("row", "field", "words"),
     [
-        ("BH9,BH,40,40,5,2.0,1.5,,", "column Alluvial clay", "bases must deepen"),
+        ("BH9,BH,40,40,5,2.0,1.5,,", "column Alluvial clay", "bases must not rise"),
         ("BH9,BH,40,40,5,1.0,6.0,,", "column Alluvial clay", "below the final depth"),
         ("BH9,XX,40,40,5,1.0,,,", "column method", "not a method of the model"),
         ("BH9,BH,40,40,-2,1.0,,,", "column final_depth_m", "not > 0"),

@@ -70,6 +70,7 @@ def core_ground(model: dict) -> GroundModel:
                 thickness=core_range(thick) if thick else None,
                 correlation=Correlation(corr["model"], float(corr["range_m"])) if corr else None,
                 description=u.get("description", "") or "",
+                presence=float(u.get("presence") or 1.0),
             )
         )
     zones = tuple(

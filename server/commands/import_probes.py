@@ -1,12 +1,15 @@
-"""`probewise import-probes MODEL FILE [-o OUT]`: earlier probes from CSV, XLSX or AGS4.
+"""`probewise import-probes MODEL FILE [-o OUT]`: earlier probes from CSV, XLSX, AGS4 or AGS3.
 
 Tables follow docs/import-formats.md (wide: one row per probe; long: one row per layer).
-AGS4 files need every geology code mapped to a project unit (``--mapping CODE=UNIT``, or
-``CODE=-`` to leave it out) and every location type to a method (``--method-for TYPE=METHOD``
-or ``--default-method``). Without ``-o``, with ``--preview``, or while codes are unmapped, it
-prints what it read (and the mapping table) and writes nothing. Probes outside the site are
-refused, with their ids, unless ``--leave-outside`` leaves them out; locations whose layers
-break the model's rules are refused unless ``--skip-problems`` leaves them out.
+AGS files (AGS4 or AGS3, told apart by their first row) need every layer given a project
+unit: by its geology code (``--mapping CODE=UNIT``, ``CODE=-`` to leave it out) or by its
+description (``--mapping-text PATTERN=UNIT``, ordered rules, first match wins), and every
+location type a method (``--method-for TYPE=METHOD`` or ``--default-method``). Without ``-o``,
+with ``--preview``, or while layers are unmapped, it prints what it read (the mapping table,
+what each text rule caught, the thickness of each unit in the holes) and writes nothing.
+Probes outside the site are refused, with their ids, unless ``--leave-outside`` leaves them
+out; locations whose layers break the model's rules are refused unless ``--skip-problems``
+leaves them out.
 """
 
 from __future__ import annotations
@@ -19,7 +22,8 @@ from server.app.project import read_model, write_model
 from server.commands.options import parse_pairs
 from server.errors import InputError
 
-FORMAT_SUFFIXES = {".csv": "csv", ".txt": "csv", ".xlsx": "xlsx", ".ags": "ags4"}
+FORMAT_SUFFIXES = {".csv": "csv", ".txt": "csv", ".xlsx": "xlsx", ".ags": "ags"}
+AGS_FORMATS = ("ags", "ags4", "ags3")  # "ags": AGS4 or AGS3, told by the first row
 # The flags that set each reader option a message calls for (server.errors.OptionNeededError).
 OPTION_FLAGS = {
     "leave_outside": "--leave-outside",
@@ -29,20 +33,35 @@ OPTION_FLAGS = {
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("model", metavar="MODEL", help="model file (JSON, schema probewise/1)")
-    parser.add_argument("file", metavar="FILE", help="probes: .csv, .xlsx or AGS4 .ags")
-    parser.add_argument("--format", choices=("csv", "xlsx", "ags4"), help="default: extension")
+    parser.add_argument("file", metavar="FILE", help="probes: .csv, .xlsx or AGS4/AGS3 .ags")
+    parser.add_argument(
+        "--format",
+        choices=("csv", "xlsx", "ags4", "ags3"),
+        help="default: extension (.ags: AGS4 or AGS3, told by the first row)",
+    )
     parser.add_argument(
         "--mapping",
         action="append",
         metavar="CODE=UNIT",
-        help="geology code (AGS4, or the unit column of a long table) -> project unit; "
+        help="geology code (AGS, or the unit column of a long table) -> project unit; "
         "CODE=- leaves it out; repeat",
     )
     parser.add_argument(
         "--mapping-file", metavar="JSON", help='mapping as a JSON object {"CODE": "UNIT"}'
     )
     parser.add_argument(
-        "--method-for", action="append", metavar="TYPE=METHOD", help="AGS4 LOCA_TYPE -> method id"
+        "--mapping-text",
+        action="append",
+        metavar="PATTERN=UNIT",
+        help="AGS layers whose description contains PATTERN (case-insensitive; /.../ for a "
+        "regular expression) -> project unit, where no --mapping decides; in order, first "
+        "match wins; PATTERN=- leaves the layer out; repeat",
+    )
+    parser.add_argument(
+        "--method-for",
+        action="append",
+        metavar="TYPE=METHOD",
+        help="AGS location type (LOCA_TYPE, HOLE_TYPE) -> method id",
     )
     parser.add_argument("--default-method", metavar="ID", help="method for rows/types not given")
     parser.add_argument(
@@ -154,8 +173,8 @@ def _run(args: argparse.Namespace) -> int:
     data = _read_bytes(args.file)
     name = Path(args.file).name
     mapping = _mapping(args)
-    if fmt == "ags4":
-        probes, outside, problems, notes = _from_ags4(args, model, data, name, mapping)
+    if fmt in AGS_FORMATS:
+        probes, outside, problems, notes = _from_ags(args, model, data, name, mapping, fmt)
         if probes is None:
             return 0
     else:
@@ -197,6 +216,10 @@ def _run(args: argparse.Namespace) -> int:
 def _from_table(args, model, data, name, mapping):
     from server.io.probes_in import preview_csv
 
+    if args.mapping_text:
+        raise InputError(
+            "--mapping-text", "applies to AGS files (it matches layer descriptions), not tables"
+        )
     preview = preview_csv(
         data,
         model,
@@ -213,6 +236,7 @@ def _from_table(args, model, data, name, mapping):
             _print_probes(preview.probes, preview.outside_site)
         _show_list("problems", preview.problems)
         _show_list("notes", preview.notes)
+        print_thickness_summary(model, preview.probes)
     if show:
         if not args.output and not args.preview:
             print("nothing written: give -o OUT to import")
@@ -222,39 +246,30 @@ def _from_table(args, model, data, name, mapping):
     return preview.probes, preview.outside_site, preview.problems, preview.notes
 
 
-def _from_ags4(args, model, data, name, mapping):
-    from server.io.probes_in import ags4_legends, ags4_to_existing, read_ags4
+def _from_ags(args, model, data, name, mapping, fmt):
+    from server.io.probes_in import (
+        ags4_to_existing,
+        decide_layers,
+        read_ags,
+        read_ags3,
+        read_ags4,
+        resolve_mapping,
+    )
 
-    holes = read_ags4(data, filename=name)
-    legends = ags4_legends(holes)
-    units = {u["name"].lower(): u["name"] for u in model["units"]}
-    unmapped = [c for c, _d, _n in legends if c not in mapping]
+    reader = {"ags": read_ags, "ags4": read_ags4, "ags3": read_ags3}[fmt]
+    holes = reader(data, filename=name)
+    rules = _text_rules(args, model)
+    decided = decide_layers(holes, resolve_mapping(mapping, model), rules, model)
+    unmapped = list(decided.undecided)
     show = args.preview or not args.output or unmapped
     if show:
-        print(f"{name}: {len(holes.holes)} location(s), {sum(n for *_x, n in legends)} layer(s)")
-        rows = []
-        for code, desc, count in legends:
-            target = mapping.get(code)
-            shown = (
-                "?"
-                if target is None
-                else (
-                    "(left out)"
-                    if target.strip() in ("", "-")
-                    else units.get(target.lower(), target)
-                )
-            )
-            rows.append([code, desc[:60], str(count), shown])
-        print(_table(["code", "description", "layers", "unit"], rows, right=(2,)))
-        types = sorted({h.type or "(blank)" for h in holes.holes})
-        print(f"location types: {', '.join(types)}")
-        print(f"project units: {', '.join(u['name'] for u in model['units'])}")
-        _show_list("problems", list(holes.problems))
+        _print_mapping(holes, model, mapping, decided)
     if unmapped and not args.preview:
+        shown = ", ".join(f"{c} ({n} layer(s))" for c, n in decided.undecided.items())
         raise InputError(
             "--mapping",
-            f"no unit for geology code(s) {', '.join(unmapped)}; give CODE=UNIT for each "
-            "(or CODE=- to leave it out)",
+            f"no unit for geology code(s) {shown}; give CODE=UNIT for each (or CODE=- to "
+            "leave it out), or --mapping-text PATTERN=UNIT rules that match their descriptions",
         )
     result = None
     if not unmapped:
@@ -264,14 +279,82 @@ def _from_ags4(args, model, data, name, mapping):
             mapping,
             method_by_type=parse_pairs(args.method_for, "--method-for"),
             default_method=args.default_method,
+            text_rules=rules,
         )
         if show or result.problems:
             print()
             _print_probes(result.probes, result.outside_site)
             _show_list("problems", result.problems)
             _show_list("notes", result.notes)
+            print_thickness_summary(model, result.probes)
     if show:
         if not args.output and not args.preview:
             print("nothing written: give -o OUT to import")
         return None, None, None, None
     return result.probes, result.outside_site, result.problems, result.notes
+
+
+def _text_rules(args, model):
+    from server.io.probes_in import parse_text_rules
+
+    return parse_text_rules(args.mapping_text, model, "--mapping-text")
+
+
+def _print_mapping(holes, model, mapping, decided) -> None:
+    """The codes with their units, then what each text rule caught."""
+    from server.io.probes_in import ags4_legends
+
+    legends = ags4_legends(holes)
+    units = {u["name"].lower(): u["name"] for u in model["units"]}
+    print(
+        f"{holes.filename} ({holes.format}): {len(holes.holes)} location(s), "
+        f"{sum(n for *_x, n in legends)} layer(s)"
+    )
+    rows = []
+    for code, desc, count in legends:
+        target = mapping.get(code)
+        if target is not None:
+            shown = "(left out)" if target.strip() in ("", "-") else units.get(target.lower())
+        elif code in decided.undecided:
+            left = decided.undecided[code]
+            shown = "?" if left == count else f"? ({left} not matched by a text rule)"
+        else:
+            shown = "by text rules"
+        rows.append([code, desc[:60], str(count), shown or target])
+    print(_table(["code", "description", "layers", "unit"], rows, right=(2,)))
+    if decided.hits:
+        print()
+        print("text rules (first match wins; used where no code mapping decides):")
+        rule_rows = []
+        for hit in decided.hits:
+            example = hit.examples[0][:70] if hit.examples else "-"
+            rule_rows.append([hit.rule.pattern, hit.rule.unit_label, str(hit.layers), example])
+            rule_rows += [["", "", "", e[:70]] for e in hit.examples[1:]]
+        print(_table(["pattern", "unit", "layers", "examples"], rule_rows, right=(2,)))
+        idle = [h.rule.pattern for h in decided.hits if h.layers == 0]
+        if idle:
+            print(f"note: text rule(s) that caught no layer: {', '.join(idle)}")
+    types = sorted({h.type or "(blank)" for h in holes.holes})
+    print(f"location types: {', '.join(types)}")
+    print(f"project units: {', '.join(u['name'] for u in model['units'])}")
+    _show_list("problems", list(holes.problems))
+
+
+def print_thickness_summary(model, probes) -> bool:
+    """Each unit's thickness in the holes read, beside the model's range (docs/model.md)."""
+    from server.app.thickness_stats import display_rows, unit_thicknesses
+
+    summaries = unit_thicknesses(model, probes)
+    if not any(s.holes for s in summaries):
+        return False
+    rows = [
+        [r["unit"], r["met"], r["quartiles"], r["mean_all"], r["model"], r["suggested"]]
+        for r in display_rows(model, summaries)
+    ]
+    print()
+    print("thickness in the holes read (m; holes that give the unit's top and base):")
+    headers = ["unit", "met (share)", "min / Q1 / median / Q3 / max where met", "mean"]
+    headers += ["model range", "suggested (P5 / median / P95)"]
+    print(_table(headers, rows))
+    _show_list("thickness warnings", [w for s in summaries for w in s.warnings])
+    return True

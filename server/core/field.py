@@ -1,7 +1,9 @@
 """Unit thickness priors at points: mean, std, min and max with zone overrides.
 
 A point takes the first zone (in order) that contains it; a unit that zone overrides takes
-the zone's range there, every other unit its default range (DESIGN.md "Probability model").
+the zone's range there, every other unit its default range (docs/model.md "Probability
+model"). A unit with a presence p < 1 takes the moments of the mixture "absent with 1 - p,
+else the range" (server.core.priors.presence_moments) and a minimum of 0.
 """
 
 from __future__ import annotations
@@ -12,7 +14,7 @@ import numpy as np
 
 from server.core.geometry import points_in_polygon
 from server.core.model import GroundModel, ThicknessRange
-from server.core.priors import thickness_moments
+from server.core.priors import presence_moments, thickness_moments
 
 
 @dataclass(frozen=True, eq=False)
@@ -59,9 +61,11 @@ def zone_of_points(
     return zone
 
 
-def _range_row(rng: ThicknessRange) -> tuple[float, float, float, float]:
-    mean, std = thickness_moments(rng)
-    return mean, std, float(rng.min_m), float(rng.max_m)
+def _range_row(rng: ThicknessRange, presence: float = 1.0) -> tuple[float, float, float, float]:
+    """(mean, std, min, max) of a range; a unit present with probability < 1 can be 0 thick."""
+    mean, std = presence_moments(*thickness_moments(rng), presence)
+    low = float(rng.min_m) if presence >= 1.0 else 0.0
+    return mean, std, low, float(rng.max_m)
 
 
 def unit_fields(
@@ -87,13 +91,14 @@ def unit_fields(
     zone = zone_of_points(ground, xy, origin)
     # Table of (mean, std, min, max) per (zone + 1, unit); row 0 = defaults.
     table = np.empty((len(ground.zones) + 1, n_thick, 4))
+    presence = [ground.units[i].presence for i in range(n_thick)]
     for i in range(n_thick):
-        table[0, i] = _range_row(ground.units[i].thickness)
+        table[0, i] = _range_row(ground.units[i].thickness, presence[i])
     for z, spec in enumerate(ground.zones):
         table[z + 1] = table[0]
         for i, rng in spec.thickness.items():
-            if 0 <= i < n_thick:
-                table[z + 1, i] = _range_row(rng)
+            if 0 <= i < n_thick:  # a zone's range applies where the unit is present
+                table[z + 1, i] = _range_row(rng, presence[i])
     rows = table[zone + 1]  # (n, U-1, 4)
     return UnitFields(
         mean_m=np.ascontiguousarray(rows[..., 0]),

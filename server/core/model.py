@@ -55,6 +55,7 @@ class Unit:
     thickness: ThicknessRange | None  # None on the basal unit only
     correlation: Correlation | None  # None on the basal unit only
     description: str = ""
+    presence: float = 1.0  # probability the unit is present at a point, (0, 1]
 
 
 @dataclass(frozen=True)

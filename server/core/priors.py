@@ -42,3 +42,32 @@ def thickness_moments(rng: ThicknessRange) -> tuple[float, float]:
     else:
         raise ValueError(f"unknown thickness shape {rng.shape!r}")
     return mean, math.sqrt(max(var, 0.0))
+
+
+def presence_moments(mean_m: float, std_m: float, presence: float) -> tuple[float, float]:
+    """Mean and standard deviation (m) of a locally present unit's thickness.
+
+    The thickness is 0 (the unit absent) with probability ``1 - presence`` and otherwise
+    follows the range's distribution (mean ``mean_m``, std ``std_m``). The moments of this
+    mixture are exact: mean p*mu, variance p*s^2 + p*(1 - p)*mu^2 (law of total variance).
+    The model then carries them as a Gaussian (moment matching; docs/model.md "Locally
+    present units" says what that does and does not capture).
+
+    Parameters
+    ----------
+    mean_m, std_m : float
+        Moments of the thickness where the unit is present (e.g. ``thickness_moments``).
+    presence : float
+        Probability ``p`` in (0, 1] that the unit is present; 1 returns the inputs.
+
+    Returns
+    -------
+    (mean_m, std_m) : tuple of float
+    """
+    p = float(presence)
+    if not 0.0 < p <= 1.0:
+        raise ValueError(f"presence {p!r} is not in (0, 1]")
+    if p == 1.0:
+        return float(mean_m), float(std_m)
+    var = p * std_m**2 + p * (1.0 - p) * mean_m**2
+    return p * mean_m, math.sqrt(var)

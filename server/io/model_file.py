@@ -350,6 +350,8 @@ class Unit(_Base):
     description: str = ""
     thickness_m: Range | None = None
     correlation: Correlation | None = None
+    # share of the site where the unit is present (docs/model.md "Locally present units")
+    presence: Annotated[float, Field(gt=0, le=1)] | None = None
 
 
 class ZoneUnit(_Base):
@@ -422,6 +424,7 @@ class ExistingProbe(_Base):
     final_depth_m: PositiveDepth
     observed: dict[str, Depth]
     precision_m: dict[str, PositiveDepth] = Field(default_factory=dict)
+    ground_level_m: Number | None = None  # level of the ground at the probe, project datum
 
 
 class PlannedProbe(_Base):
@@ -438,6 +441,8 @@ class CurvePoint(_Base):
 
 
 LAYOUT_OPTIONAL_KEYS = ("origin", "description", "budget", "optimiser_curve")
+# Optional fields that stay absent, not null, in the normalised document, per section.
+SECTION_OPTIONAL_KEYS = {"units": ("presence",), "existing": ("ground_level_m",)}
 
 
 class Layout(_Base):
@@ -635,6 +640,11 @@ def _reference_problems(m: dict) -> Iterator[InputError]:
                 f"units[{i}].thickness_m",
                 "the basal (last) unit has no thickness; remove it or add a unit below",
             )
+        if is_basal and unit.get("presence") is not None:
+            yield InputError(
+                f"units[{i}].presence",
+                "the basal (last) unit is present everywhere; presence needs a thickness",
+            )
         if not is_basal:
             for key in ("thickness_m", "correlation"):
                 if unit[key] is None:
@@ -824,6 +834,11 @@ def _validate(data: object, first_only: bool) -> tuple[dict | None, list[InputEr
         for key in LAYOUT_OPTIONAL_KEYS:
             if layout.get(key) is None:
                 layout.pop(key, None)
+    for section, keys in SECTION_OPTIONAL_KEYS.items():
+        for item in normal.get(section) or []:
+            for key in keys:
+                if item.get(key) is None:
+                    item.pop(key, None)
     for problem in _reference_problems(normal):
         problems.append(problem)
         if stop():

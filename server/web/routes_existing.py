@@ -1,24 +1,27 @@
 """The Existing information page: earlier probes and the base depths they recorded.
 
 Rows are edited one at a time (``?edit=N`` opens row N), added and deleted; probes come in
-from CSV/XLSX tables (preview, then import) or AGS4 files (a mapping step assigns each
-geology code to a project unit and each location type to a method, then preview, then
-import) through server.io.probes_in. Probes outside the site are listed and only left out when
-the user ticks that box; a bad file stores nothing.
+from CSV/XLSX tables (preview, then import) or AGS4/AGS3 files (a mapping step assigns each
+geology code to a project unit, or text rules place layers by their description, and each
+location type gets a method, then preview, then import) through server.io.probes_in. Both
+previews show each unit's thickness in the holes (server/app/thickness_stats.py). Probes
+outside the site are listed and only left out when the user ticks that box; a bad file
+stores nothing.
 """
 
 from __future__ import annotations
 
-import re
 from typing import Any
 
 import sqlite_utils
 from fastapi import APIRouter, Request
 from starlette.responses import Response
 
+from server.app.thickness_stats import thickness_view
 from server.errors import InputError
 from server.io import probes_in
 from server.store import StoredProject, get_project
+from server.web.ags_mapping import ags4_state
 from server.web.deps import Db
 from server.web.edits import (
     EditPage,
@@ -34,34 +37,6 @@ from server.web.map_data import build_map_data
 router = APIRouter(include_in_schema=False)
 
 MAX_PREVIEW_ROWS = 200
-# Words too common in soil descriptions to tell units apart when guessing the mapping.
-STOPWORDS = frozenset(
-    [
-        "and",
-        "with",
-        "of",
-        "the",
-        "grey",
-        "brown",
-        "dark",
-        "light",
-        "soft",
-        "firm",
-        "stiff",
-        "dense",
-        "loose",
-        "weak",
-        "strong",
-        "invented",
-        "inferred",
-        "sandy",
-        "silty",
-        "clayey",
-        "gravelly",
-    ]
-)
-
-
 # ---------------------------------------------------------------- the page
 
 
@@ -257,8 +232,17 @@ def preview_csv(request: Request, project_id: int, form: PostedForm, db: Db) -> 
         _data, filename, preview = _read_csv(reader, project.model)
     except InputError as exc:
         return _import_answer(request, db, project, reader, "csv", exc)
+    thickness = thickness_view(project.model, preview.importable)
     return _import_answer(
-        request, db, project, reader, "csv", None, csv_preview=preview, preview_file=filename
+        request,
+        db,
+        project,
+        reader,
+        "csv",
+        None,
+        csv_preview=preview,
+        preview_file=filename,
+        thickness=thickness,
     )
 
 
@@ -293,97 +277,10 @@ def import_csv(request: Request, project_id: int, form: PostedForm, db: Db) -> R
 # ---------------------------------------------------------------- AGS4
 
 
-def _words(text: str) -> set[str]:
-    return {w for w in re.findall(r"[a-z]+", text.lower()) if len(w) > 2 and w not in STOPWORDS}
-
-
-def guess_unit(code: str, description: str, units: list[str]) -> str:
-    """The unit whose name shares most words with the code's description (or '' if unclear)."""
-    by_lower = {u.lower(): u for u in units}
-    if code.lower() in by_lower:
-        return by_lower[code.lower()]
-    words = _words(description) | _words(code)
-    scores = [(len(words & _words(u)), u) for u in units]
-    best = max((s for s, _u in scores), default=0)
-    winners = [u for s, u in scores if s == best]
-    return winners[0] if best > 0 and len(winners) == 1 else ""
-
-
-KIND_BY_TYPE = {
-    "borehole": {"CP", "RC", "RO", "WS", "DS", "BH", "CR", "OP", "ROC"},
-    "cpt": {"CPT", "CPTU", "SCPT", "SCPTU"},
-    "dmt": {"DMT", "SDMT"},
-    "trial_pit": {"TP", "TT", "PIT", "HP"},
-}
-
-
-def guess_method(hole_type: str, methods: list[dict]) -> str:
-    """A method for an AGS4 LOCA_TYPE: the same id, else the first of the kind the type
-    usually means (CP: borehole, CPT: cpt...), else one whose id starts with it, else ''."""
-    upper = hole_type.upper()
-    for m in methods:
-        if m["id"].upper() == upper:
-            return m["id"]
-    for kind, types in KIND_BY_TYPE.items():
-        if upper in types:
-            for m in methods:
-                if m.get("kind") == kind:
-                    return m["id"]
-    for m in methods:
-        if upper and m["id"].upper().startswith(upper):
-            return m["id"]
-    return ""
-
-
-def ags4_state(
-    holes: probes_in.Ags4Holes, reader: FormReader, model: dict, filename: str
-) -> dict[str, Any]:
-    """The mapping step: codes with counts and the chosen units, types with the chosen methods."""
-    units = [u["name"] for u in model["units"]]
-    methods = model.get("methods") or []
-    submitted = {
-        reader.raw(f"code_{n}"): reader.raw(f"unit_{n}")
-        for n in range(500)
-        if reader.raw(f"code_{n}")
-    }
-    codes = []
-    for code, description, count in probes_in.ags4_legends(holes):
-        chosen = submitted.get(code)
-        codes.append(
-            {
-                "code": code,
-                "description": description,
-                "count": count,
-                "unit": chosen if chosen is not None else guess_unit(code, description, units),
-            }
-        )
-    type_counts: dict[str, int] = {}
-    for hole in holes.holes:
-        type_counts[hole.type] = type_counts.get(hole.type, 0) + 1
-    sent_types = {
-        reader.raw(f"type_{n}"): reader.raw(f"method_{n}")
-        for n in range(100)
-        if f"type_{n}" in reader.form
-    }
-    types = [
-        {"type": t, "count": n, "method": sent_types.get(t, guess_method(t, methods))}
-        for t, n in sorted(type_counts.items())
-    ]
-    return {
-        "filename": filename,
-        "n_holes": len(holes.holes),
-        "codes": codes,
-        "types": types,
-        "unit_names": units,
-        "result": None,
-        "file_problems": list(holes.problems),
-    }
-
-
 def _read_ags4(reader: FormReader, model: dict) -> tuple[probes_in.Ags4Holes, dict[str, Any]]:
     """The uploaded AGS4 file's holes and its mapping step (see ags4_state)."""
     data, filename = _upload(reader, "ags4_file", "an AGS4 file")
-    holes = probes_in.read_ags4(data, filename=filename)
+    holes = probes_in.read_ags(data, filename=filename)
     return holes, ags4_state(holes, reader, model, filename)
 
 
@@ -397,15 +294,17 @@ def _ags4_result(
     holes: probes_in.Ags4Holes, state: dict[str, Any], model: dict
 ) -> probes_in.ImportResult:
     mapping, by_type = _ags4_choices(state)
-    unchosen = [c["code"] for c in state["codes"] if not c["unit"]]
-    if unchosen:
+    if state["undecided"]:
+        shown = ", ".join(f"{c} ({n} layer(s))" for c, n in state["undecided"].items())
         raise InputError(
-            "mapping", f"choose a unit (or \u201cleave out\u201d) for code(s) {', '.join(unchosen)}"
+            "mapping",
+            f"choose a unit (or \u201cleave out\u201d) for code(s) {shown}, or add text rules "
+            "that match their descriptions",
         )
     untyped = [t["type"] or "(blank)" for t in state["types"] if not t["method"]]
     if untyped:
         raise InputError("method", f"choose a method for location type(s) {', '.join(untyped)}")
-    return probes_in.ags4_to_existing(holes, model, mapping, by_type)
+    return probes_in.ags4_to_existing(holes, model, mapping, by_type, text_rules=state["rules"])
 
 
 @router.post("/projects/{project_id}/existing/import/ags4/preview")
@@ -417,6 +316,7 @@ def preview_ags4(request: Request, project_id: int, form: PostedForm, db: Db) ->
         holes, state = _read_ags4(reader, project.model)
         if reader.raw("step") == "preview":
             state["result"] = _ags4_result(holes, state, project.model)
+            state["thickness"] = thickness_view(project.model, state["result"].importable)
     except InputError as exc:
         return _import_answer(request, db, project, reader, "ags4", exc, ags4=state)
     return _import_answer(request, db, project, reader, "ags4", None, ags4=state)
@@ -456,5 +356,8 @@ def import_ags4(request: Request, project_id: int, form: PostedForm, db: Db) -> 
     if result.problems:
         left_out.append(f"{len(result.problems)} with problems")
     n = len(result.importable)
-    message = f"Imported {n} existing probe{'s' if n != 1 else ''} from {state['filename']} (AGS4)"
+    message = (
+        f"Imported {n} existing probe{'s' if n != 1 else ''} from {state['filename']} "
+        f"({holes.format})"
+    )
     return _save_import(request, db, project, reader, "ags4", result.importable, message, left_out)

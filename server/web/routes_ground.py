@@ -19,7 +19,7 @@ from fastapi import APIRouter, HTTPException, Request
 from starlette.responses import Response
 
 from server.core.model import ThicknessRange
-from server.core.priors import thickness_moments
+from server.core.priors import presence_moments, thickness_moments
 from server.errors import InputError
 from server.io.model_file import CORRELATION_MODELS, SHAPES
 from server.store import StoredProject, get_project, get_revision
@@ -61,6 +61,18 @@ def moments_of(thickness: Any) -> tuple[float, float] | None:
         return None
 
 
+def site_moments(thickness: Any, presence: Any) -> tuple[float, float] | None:
+    """(mean, std) over the site of a locally present unit (None when presence is 1 or unset)."""
+    moments = moments_of(thickness) if thickness else None
+    if moments is None or presence is None:
+        return None
+    try:
+        p = float(presence)
+        return presence_moments(*moments, p) if p < 1.0 else None
+    except (TypeError, ValueError):
+        return None
+
+
 def safe_depth_limits(model: dict) -> dict[str, tuple[float, float]]:
     try:
         return depth_limits(model)
@@ -83,6 +95,7 @@ def ground_extra(
                 "unit": unit,
                 "basal": i == len(units) - 1,
                 "moments": moments_of(thickness) if thickness else None,
+                "site_moments": site_moments(thickness, unit.get("presence")),
                 "limits": limits.get(unit.get("name")),
                 "chart_url": (
                     f"/projects/{project.id}/charts/thickness/{i}.svg?rev={project.revision}"
@@ -221,7 +234,14 @@ def read_unit(reader: FormReader, path: str, unit: dict, basal: bool) -> None:
     if basal:
         unit.pop("thickness_m", None)
         unit.pop("correlation", None)
+        unit.pop("presence", None)
         return
+    if "presence" in reader.form:  # optional: empty means present everywhere
+        presence = reader.number("presence", f"{path}.presence", required=False)
+        if presence is None:
+            unit.pop("presence", None)
+        else:
+            unit["presence"] = presence
     unit["thickness_m"] = {
         **(unit.get("thickness_m") or {}),
         **read_range(reader, f"{path}.thickness_m"),
@@ -243,6 +263,8 @@ def change_words(old: dict, new: dict) -> list[str]:
         words.append("correlation")
     if (old.get("description") or "") != (new.get("description") or ""):
         words.append("description")
+    if old.get("presence") != new.get("presence"):
+        words.append("presence")
     return words
 
 

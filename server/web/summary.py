@@ -31,7 +31,8 @@ def depth_limits(model: dict[str, Any]) -> dict[str, tuple[float, float]]:
         thickness = unit.get("thickness_m")
         if not thickness:
             break  # the basal unit has no base
-        low += float(thickness["min"])
+        if (unit.get("presence") or 1.0) >= 1.0:  # a locally present unit can be 0 m thick
+            low += float(thickness["min"])
         high += float(thickness["max"])
         limits[unit["name"]] = (low, high)
     return limits

@@ -1246,6 +1246,57 @@ CLI_CASES += [
         "--min-spacing=-1"], with_tiny(), "--min-spacing", "positive"),
 ]  # fmt: skip
 
+# Locally present units, ground levels, AGS3 files and text rules (docs/import-formats.md).
+API_CASES += [
+    api_create("api-presence-zero", mutated("units[1].presence", 0), "units[1].presence", "> 0"),
+    api_create("api-presence-above-one", mutated("units[1].presence", 1.5), "units[1].presence",
+               "<= 1"),
+    api_create("api-presence-nan", mutated("units[1].presence", math.nan), "units[1].presence",
+               "finite"),
+    api_create("api-presence-on-basal", mutated("units[3].presence", 0.5), "units[3].presence",
+               "basal"),
+    api_create("api-ground-level-text", mutated("existing[0].ground_level_m", "high"),
+               "existing[0].ground_level_m", "number"),
+]  # fmt: skip
+
+AGS3_HEAD = (
+    '"**HOLE"\r\n"*HOLE_ID","*HOLE_TYPE","*HOLE_NATE","*HOLE_NATN","*HOLE_FDEP"\r\n'
+    '"<UNITS>","","m","m","m"\r\n'
+)
+AGS3_GEOL = (
+    '"**GEOL"\r\n"*HOLE_ID","*GEOL_TOP","*GEOL_BASE","*GEOL_DESC"\r\n'
+    '"<UNITS>","m","m",""\r\n"B1","0","2","Soft CLAY (ALLUVIUM)"\r\n'
+)
+IMPORT_AGS = ["import-probes", "{dir}/model.json", "{dir}/gi.ags", "--default-method", "BH",
+              "-o", "{dir}/out.json"]  # fmt: skip
+CLI_CASES += [
+    cli("cli-import-ags3-ragged-row", IMPORT_AGS,
+        with_tiny(**{"gi.ags": (AGS3_HEAD + '"B1","CP","50","50","9","extra"\r\n\r\n'
+                                + AGS3_GEOL).encode()}),
+        "gi.ags line 4", "has 6 fields"),
+    cli("cli-import-ags3-text-coordinate", IMPORT_AGS,
+        with_tiny(**{"gi.ags": (AGS3_HEAD + '"B1","CP","about 50","50","9"\r\n\r\n'
+                                + AGS3_GEOL).encode()}),
+        "HOLE_NATE", "not a number"),
+    cli("cli-import-ags3-no-geol", IMPORT_AGS,
+        with_tiny(**{"gi.ags": (AGS3_HEAD + '"B1","CP","50","50","9"\r\n').encode()}),
+        "gi.ags", "no GEOL group"),
+    cli("cli-import-mapping-text-bad-regex",
+        [*IMPORT_AGS, "--mapping-text", "/(alluv/=Alluvial clay"],
+        with_tiny(**{"gi.ags": (AGS3_HEAD + '"B1","CP","50","50","9"\r\n\r\n'
+                                + AGS3_GEOL).encode()}),
+        "--mapping-text", "regular expression"),
+    cli("cli-import-mapping-text-unknown-unit", [*IMPORT_AGS, "--mapping-text", "CLAY=Peat"],
+        with_tiny(**{"gi.ags": (AGS3_HEAD + '"B1","CP","50","50","9"\r\n\r\n'
+                                + AGS3_GEOL).encode()}),
+        "--mapping-text", "'Peat' is not a unit"),
+    cli("cli-import-mapping-text-on-a-table",
+        ["import-probes", "{dir}/model.json", "{dir}/p.csv", "--mapping-text", "x=Mudstone",
+         "-o", "{dir}/out.json"],
+        with_tiny(**{"p.csv": (CSV_HEAD + "N1,BH,50,50,10,1.0,3.0\n").encode()}),
+        "--mapping-text", "AGS files"),
+]  # fmt: skip
+
 CASES: list[Case] = API_CASES + UPLOAD_CASES + FORM_CASES + CLI_CASES
 
 

@@ -333,3 +333,25 @@ def test_stale_page_and_undo(client, tiny_id, tiny_model):
     assert answer.status_code == 200 and 'id="ground"' in answer.text
     assert model_of(client, tiny_id)["units"][0]["thickness_m"]["max"] == 2.0
     assert revision_of(client, tiny_id) == 3
+
+
+def test_presence_is_set_refused_beside_its_field_and_cleared(client, tiny_id, tiny_model):
+    unit = tiny_model["units"][1]
+    url = f"/projects/{tiny_id}/ground/units/1"
+    answer = post(client, url, unit_form(unit, 1, presence="0.3"))
+    assert answer.status_code == 200, notice_of(answer.text)
+    assert model_of(client, tiny_id)["units"][1]["presence"] == 0.3
+    assert last_message(client, tiny_id) == "Changed presence of Alluvial clay"
+    # triangular 1/3/6: mean 10/3, variance 19/18; over the site 0.3 x 10/3 = 1 m, std
+    # sqrt(0.3 x 19/18 + 0.3 x 0.7 x (10/3)^2) = 1.63 m (docs/model.md, worked by hand)
+    shown = page_text(client, GROUND.format(tiny_id))
+    assert "over the site (presence 0.3) mean 1 m · std 1.63 m" in shown
+    refused = post(client, url, unit_form(unit, 2, presence="1.5"))
+    assert refused.status_code == 422
+    assert "<= 1" in error_beside(refused.text, "units[1].presence")
+    assert revision_of(client, tiny_id) == 2
+    # a form without the field keeps it; an empty field clears it
+    post(client, url, unit_form(unit, 2, max=7.0))
+    assert model_of(client, tiny_id)["units"][1]["presence"] == 0.3
+    post(client, url, unit_form(unit, 3, presence=""))
+    assert "presence" not in model_of(client, tiny_id)["units"][1]
