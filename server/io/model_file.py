@@ -37,11 +37,14 @@ from pydantic import (
 )
 from pyproj import CRS
 
+from server.core.correlation import CORRELATION_MODEL_NAMES
+from server.core.priors import DEFAULT_SHAPE, SHAPE_NAMES
 from server.errors import InputError
 
 SCHEMA = "probewise/1"
-SHAPES = ("pert", "triangular", "uniform")
-CORRELATION_MODELS = ("exponential", "gaussian", "spherical")
+# Allowed names come from the core's registries (one entry adds a shape or a model).
+SHAPES = SHAPE_NAMES
+CORRELATION_MODELS = CORRELATION_MODEL_NAMES
 METHOD_KINDS = ("borehole", "cpt", "dmt", "trial_pit", "other")
 
 # Caps that stop absurd files before any costly work: (top-level key, cap, what is counted).
@@ -325,7 +328,7 @@ class Range(_Base):
     min: Depth
     likely: Depth
     max: Depth
-    shape: Literal["pert", "triangular", "uniform"] = "pert"
+    shape: Literal[SHAPES] = DEFAULT_SHAPE  # type: ignore[valid-type]
 
     @model_validator(mode="after")
     def _ordered(self) -> Range:
@@ -341,7 +344,7 @@ class Range(_Base):
 
 
 class Correlation(_Base):
-    model: Literal["exponential", "gaussian", "spherical"]
+    model: Literal[CORRELATION_MODELS]  # type: ignore[valid-type]
     range_m: Annotated[float, Field(gt=0, le=MAX_RANGE_M)]
 
 

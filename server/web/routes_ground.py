@@ -18,10 +18,10 @@ import sqlite_utils
 from fastapi import APIRouter, HTTPException, Request
 from starlette.responses import Response
 
+from server.core.correlation import CORRELATION_MODELS
 from server.core.model import ThicknessRange
-from server.core.priors import thickness_moments
+from server.core.priors import DEFAULT_SHAPE, THICKNESS_SHAPES, thickness_moments
 from server.errors import InputError
-from server.io.model_file import CORRELATION_MODELS, SHAPES
 from server.store import StoredProject, get_project, get_revision
 from server.web.charts import thickness_chart_svg, thickness_charts
 from server.web.deps import Db
@@ -38,10 +38,6 @@ from server.web.summary import depth_limits
 
 router = APIRouter(include_in_schema=False)
 
-SHAPE_LABELS = {"pert": "PERT", "triangular": "Triangular", "uniform": "Uniform"}
-MODEL_LABELS = {"exponential": "Exponential", "gaussian": "Gaussian", "spherical": "Spherical"}
-
-
 # ---------------------------------------------------------------- derived views
 
 
@@ -52,7 +48,7 @@ def moments_of(thickness: Any) -> tuple[float, float] | None:
             float(thickness["min"]),
             float(thickness["likely"]),
             float(thickness["max"]),
-            str(thickness.get("shape", "pert")),
+            str(thickness.get("shape", DEFAULT_SHAPE)),
         )
         if not rng.min_m <= rng.likely_m <= rng.max_m or rng.min_m >= rng.max_m:
             return None
@@ -126,8 +122,8 @@ def ground_extra(
         ],
         "boundary_options": [(name, f"Base of {name}") for name in boundaries],
         "position_options": [(str(i), name) for i, name in enumerate(names)],
-        "shape_options": [(s, SHAPE_LABELS[s]) for s in SHAPES],
-        "model_options": [(m, MODEL_LABELS[m]) for m in CORRELATION_MODELS],
+        "shape_options": [(s.name, s.label) for s in THICKNESS_SHAPES.values()],
+        "model_options": [(m.name, m.label) for m in CORRELATION_MODELS.values()],
     }
 
 
@@ -208,7 +204,7 @@ def read_range(reader: FormReader, path: str, suffix: str = "") -> dict[str, Any
         "min": reader.number(f"min{suffix}", f"{path}.min"),
         "likely": reader.number(f"likely{suffix}", f"{path}.likely"),
         "max": reader.number(f"max{suffix}", f"{path}.max"),
-        "shape": reader.choice(f"shape{suffix}", f"{path}.shape", SHAPES),
+        "shape": reader.choice(f"shape{suffix}", f"{path}.shape", tuple(THICKNESS_SHAPES)),
     }
 
 
@@ -229,7 +225,7 @@ def read_unit(reader: FormReader, path: str, unit: dict, basal: bool) -> None:
     unit["correlation"] = {
         **(unit.get("correlation") or {}),
         "model": reader.choice(
-            "correlation_model", f"{path}.correlation.model", CORRELATION_MODELS
+            "correlation_model", f"{path}.correlation.model", tuple(CORRELATION_MODELS)
         ),
         "range_m": reader.number("range_m", f"{path}.correlation.range_m"),
     }
@@ -505,7 +501,7 @@ def thickness_chart(project_id: int, unit_index: int, db: Db, rev: int | None = 
             raise HTTPException(404, f"unit {unit_index + 1} has no thickness (basal or missing)")
         t = units[unit_index]["thickness_m"]
         svg = thickness_chart_svg(
-            t.get("shape", "pert"), float(t["min"]), float(t["likely"]), float(t["max"])
+            t.get("shape", DEFAULT_SHAPE), float(t["min"]), float(t["likely"]), float(t["max"])
         )
         thickness_charts.put(key, svg)
     return Response(

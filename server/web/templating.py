@@ -19,6 +19,7 @@ from fastapi.templating import Jinja2Templates
 from starlette.responses import RedirectResponse, Response
 
 from server.caution import CAUTION
+from server.core.priors import DEFAULT_SHAPE, THICKNESS_SHAPES
 
 REPO_ROOT = Path(__file__).resolve().parents[2]
 TEMPLATES_DIR = REPO_ROOT / "templates"
@@ -88,6 +89,12 @@ def kind_label(kind: str) -> str:
     return METHOD_KIND_LABELS.get(kind, str(kind).replace("_", " ").capitalize())
 
 
+def shape_label(name: str) -> str:
+    """A thickness shape's label (``pert`` -> ``PERT``) from the one registry of shapes."""
+    shape = THICKNESS_SHAPES.get(name)
+    return shape.label if shape else str(name)
+
+
 def build_environment(templates_dir: Path = TEMPLATES_DIR) -> jinja2.Environment:
     env = jinja2.Environment(
         loader=jinja2.FileSystemLoader(str(templates_dir)),
@@ -102,8 +109,9 @@ def build_environment(templates_dir: Path = TEMPLATES_DIR) -> jinja2.Environment
         money=format_money,
         when=format_when,
         kind_label=kind_label,
+        shape_label=shape_label,
     )
-    env.globals.update(caution=CAUTION, htmx_js=find_htmx_path())
+    env.globals.update(caution=CAUTION, htmx_js=find_htmx_path(), default_shape=DEFAULT_SHAPE)
     return env
 
 
