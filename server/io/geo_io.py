@@ -28,6 +28,7 @@ from pathlib import Path, PurePosixPath
 from typing import Any
 
 from server.errors import InputError, OptionNeededError
+from server.numbers import read_number
 
 ROLE_KEYS = {
     "site": "site",
@@ -351,11 +352,8 @@ def _weight_of(value: Any, where: str) -> float:
         or str(value).strip() == ""
     ):
         raise InputError(where, "empty; every area of interest needs a weight > 0")
-    try:
-        w = float(str(value).strip()) if isinstance(value, str) else float(value)
-    except (TypeError, ValueError):
-        raise InputError(where, f"'{value}' is not a number") from None
-    if not math.isfinite(w) or w <= 0:
+    w = read_number(value, where)
+    if w <= 0:
         raise InputError(where, f"{w:g} is not a weight > 0")
     return w
 

@@ -21,7 +21,6 @@ Every model-editing page (Site, Ground model, Existing, Methods) posts its forms
 from __future__ import annotations
 
 import copy
-import math
 import re
 from collections.abc import Callable, Iterable, Mapping
 from dataclasses import dataclass, field
@@ -33,6 +32,7 @@ from starlette.datastructures import FormData, UploadFile
 
 from server.errors import InputError
 from server.io.model_file import validate_all
+from server.numbers import read_number
 from server.store import (
     StoredProject,
     get_project,
@@ -57,18 +57,6 @@ async def read_form(request: Request) -> FormData:
 
 # In a route signature: ``def save(form: PostedForm): ...`` (a sync route runs in a thread)
 PostedForm = Annotated[FormData, Depends(read_form)]
-
-
-def parse_number(text: str) -> float | None:
-    """A finite number from form text ("4.5", "4,5", " 12 "); None when it is not one."""
-    cleaned = text.strip().replace("\u2212", "-")
-    if re.fullmatch(r"[-+]?\d+,\d+", cleaned):
-        cleaned = cleaned.replace(",", ".")
-    try:
-        value = float(cleaned)
-    except ValueError:
-        return None
-    return value if math.isfinite(value) else None
 
 
 class FormReader:
@@ -107,11 +95,11 @@ class FormReader:
             if required:
                 self.problem(path, "is required")
             return None
-        value = parse_number(text)
-        if value is None:
-            self.problem(path, f"'{text}' is not a number")
+        try:
+            return read_number(text, path, decimal_comma=True)
+        except InputError as exc:
+            self.problems.append(exc)
             return text
-        return value
 
     def choice(self, name: str, path: str, choices: Iterable[str]) -> str:
         value = self.raw(name).strip()
