@@ -242,12 +242,12 @@ def wrapped_table(headers: list[str], rows: list[list[str]], left: set[int]) -> 
 
 
 def _check_layout(project, name: str | None) -> None:
-    names = [layout.name for layout in project.layouts]
-    if not names:
+    from server.app.project import find_layout
+
+    if not project.layouts:
         raise InputError("layouts", "the model has no layout to schedule")
-    if name is not None and name not in names:
-        known = ", ".join(repr(n) for n in names)
-        raise InputError("--layout", f"no layout named {name!r}; layouts are: {known}")
+    if name is not None:
+        find_layout(project, name, "--layout")
 
 
 def _emit(text: str, out: str | None) -> None:

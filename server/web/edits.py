@@ -42,6 +42,12 @@ from server.store import (
 )
 from server.store.errors import NothingToUndo, ProjectDeleted, StaleRevision
 from server.web.deps import Db
+from server.web.templating import (
+    is_htmx,
+    render,
+    render_action,
+    render_page_or_fragment,
+)
 
 FORM_MAX_FIELDS = 5000  # a precision table or a zone's overrides: far below this
 FORM_MAX_FILES = 4
@@ -136,11 +142,6 @@ def expected_revision_of(form: Mapping[str, Any] | FormData) -> int:
 
 
 # ---------------------------------------------------------------- errors in templates
-
-
-def field_id(path: str) -> str:
-    """An HTML id for a model path: ``units[2].thickness_m`` -> ``f-units-2-thickness_m``."""
-    return "f-" + (re.sub(r"[^A-Za-z0-9_]+", "-", path).strip("-") or "form")
 
 
 def path_is_under(path: str, prefix: str) -> bool:
@@ -466,16 +467,6 @@ def item_at(items: list, index: int, path: str, what: str) -> dict:
 # ---------------------------------------------------------------- page context and rendering
 
 
-def format_input_number(value: Any) -> str:
-    """A number for an input's value: exact (never rounded, so saving keeps it), no '.0'."""
-    if value is None:
-        return ""
-    if isinstance(value, bool) or not isinstance(value, int | float):
-        return str(value)
-    text = repr(float(value))
-    return text[:-2] if text.endswith(".0") else text
-
-
 def page_context(
     db: sqlite_utils.Database,
     project: StoredProject,
@@ -501,16 +492,6 @@ def page_context(
         readonly=project.deleted,
     )
     return context
-
-
-def _register_template_helpers() -> None:
-    from server.web.templating import templates
-
-    templates.env.globals.setdefault("field_id", field_id)
-    templates.env.filters.setdefault("inum", format_input_number)
-
-
-_register_template_helpers()
 
 
 # ---------------------------------------------------------------- one model-editing page
@@ -582,8 +563,6 @@ class EditPage:
 
     def show(self, request: Request, db: sqlite_utils.Database, project_id: int, **more: Any):
         """GET: the page, or its fragment for htmx."""
-        from server.web.templating import render_page_or_fragment
-
         project = get_project(db, project_id)
         return render_page_or_fragment(
             request, self.page, self.fragment, self.context(db, project, None, **more)
@@ -591,8 +570,6 @@ class EditPage:
 
     def answer(self, request: Request, db: sqlite_utils.Database, result: EditResult, **more):
         """POST: the refreshed fragment (htmx), a redirect (plain post) or the page + 4xx."""
-        from server.web.templating import render_action
-
         return render_action(
             request,
             self.page,
@@ -721,8 +698,6 @@ class EditPage:
 
         ``state``: what the area's template shows (the preview); ``error`` is shown in it, 422.
         """
-        from server.web.templating import is_htmx, render
-
         status = 422 if error else 200
         context = self.context(db, project, None, **state)
         context["import_error"] = error and {"field": error.field, "problem": error.problem}

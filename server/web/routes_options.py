@@ -27,6 +27,7 @@ from starlette.responses import Response
 
 from server.app.layouts import KIND_LABELS, layout_kind
 from server.app.optimiser_jobs import latest_optimiser_job
+from server.app.project import layout_position, model_layout
 from server.app.results import results_of
 from server.core.options import GUIDANCE_SPACINGS, guidance_grid_layout
 from server.errors import InputError
@@ -64,15 +65,11 @@ def layout_url(project_id: int, name: str | None) -> str:
 # ---------------------------------------------------------------- reading the model
 
 
-def layouts_of(model: dict[str, Any]) -> list[dict[str, Any]]:
-    return list(model.get("layouts") or [])
-
-
 def layout_index(model: dict[str, Any], name: str) -> int:
-    for i, layout in enumerate(layouts_of(model)):
-        if layout["name"] == name:
-            return i
-    raise EditRefused("layout", f"there is no layout named {name!r}; reload the page")
+    i = layout_position(model, name)
+    if i is None:
+        raise EditRefused("layout", f"there is no layout named {name!r}; reload the page")
+    return i
 
 
 def probe_index(layout: dict[str, Any], probe_id: str, path: str) -> int:
@@ -115,7 +112,7 @@ def layout_warnings(model: dict[str, Any], name: str | None) -> list[str]:
     if name is None:
         return []
     exclusions = [(e["name"], to_shapely(e["geometry"])) for e in model.get("exclusions") or []]
-    layout = next((lay for lay in layouts_of(model) if lay["name"] == name), None)
+    layout = model_layout(model, name)
     if not exclusions or not layout or not layout.get("probes"):
         return []
     xs = np.array([p["x"] for p in layout["probes"]], dtype=float)
@@ -135,7 +132,7 @@ def probes_data(
 ) -> dict[str, Any]:
     """The selected layout's probes for the map, with the revision every edit must send."""
     kinds = method_kinds(model)
-    layout = next((lay for lay in layouts_of(model) if lay["name"] == selected), None)
+    layout = model_layout(model, selected)
     probes = []
     for p in (layout or {}).get("probes") or []:
         probes.append(
@@ -180,7 +177,7 @@ def options_context(
     )
     model = project.model  # always the stored state: edits here are structural
     context["model"] = model
-    layouts = layouts_of(model)
+    layouts = list(model.get("layouts") or [])
     names = [layout["name"] for layout in layouts]
     if selected not in names:
         selected = names[0] if names else None
@@ -419,7 +416,7 @@ def new_layout(request: Request, project_id: int, db: Db, form: PostedForm) -> R
     def edit(model: dict[str, Any]) -> str:
         layouts = model.setdefault("layouts", [])
         name = read_layout_name(reader, "name", f"layouts[{len(layouts)}].name")
-        if any(layout["name"] == name for layout in layouts):
+        if layout_position(model, name) is not None:
             raise InputError(f"layouts[{len(layouts)}].name", f"{name!r} is already a layout")
         layouts.append({"name": name, "origin": "hand", "probes": []})
         created.append(name)
@@ -459,7 +456,7 @@ def rename_layout(request: Request, project_id: int, db: Db, form: PostedForm) -
     def edit(model: dict[str, Any]) -> str:
         i = layout_index(model, name)
         new = read_layout_name(reader, "new_name", f"layouts[{i}].name")
-        if new != name and any(layout["name"] == new for layout in model["layouts"]):
+        if new != name and layout_position(model, new) is not None:
             raise InputError(f"layouts[{i}].name", f"{new!r} is already a layout")
         model["layouts"][i]["name"] = new
         renamed.append(new)

@@ -23,8 +23,8 @@ from edit_helpers import (
 )
 from web_helpers import htmx
 
-from server.web.edits import field_id
 from server.web.polygon_text import parse_polygon_text, polygon_text
+from server.web.templating import field_id
 
 SITE = "/projects/{}/site"
 
