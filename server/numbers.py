@@ -5,7 +5,8 @@
 - A decimal comma ("4,5" for 4.5) is read where the caller asks for it (forms).
 - Thousands separators ("30,000", "30 000", "1,234,567.50"; ordinary, no-break or thin spaces)
   are read for money only, where the amounts are large and whole.
-- The result must be finite: "nan" and "inf" are refused.
+- The result must be finite: "nan" and "inf" are refused like any other text that is not a
+  number.
 - A sign rule where the field needs one: ``"positive"`` (> 0) or ``"non_negative"`` (>= 0).
 
 Every problem is an ``InputError(field, problem)``, so the message names the field.
@@ -80,7 +81,8 @@ def read_number(
     field : str
         The field named in a problem (a model path, a form field, a command-line option).
     sign : {"positive", "non_negative"}, optional
-        A sign the value must have; the problem reads "must be a positive {what}, not ...".
+        A sign the value must have; any problem then reads "must be a positive {what}, not
+        ...", else "'...' is not a number".
     what : str
         The kind of value in a sign problem ("amount", "spacing in m").
     decimal_comma, money : bool
@@ -94,14 +96,11 @@ def read_number(
         return None
     value = to_number(text, decimal_comma=decimal_comma, money=money)
     shown = _shown(str(text).strip())
-    if value is None:
-        cleaned = clean_number_text(str(text), decimal_comma=decimal_comma, money=money)
-        try:
-            float(cleaned)
-        except ValueError:
-            raise InputError(field, f"'{shown}' is not a number") from None
-        raise InputError(field, f"'{shown}' is not a finite number")
+    kind = "positive" if sign == "positive" else "zero or positive"
+    if value is None:  # not a number, or not a finite one ("nan", "inf")
+        if sign is not None:  # the field's rule says best what it wants
+            raise InputError(field, f"must be a {kind} {what}, not {shown}")
+        raise InputError(field, f"'{shown}' is not a number")
     if (sign == "positive" and not value > 0) or (sign == "non_negative" and not value >= 0):
-        kind = "positive" if sign == "positive" else "zero or positive"
         raise InputError(field, f"must be a {kind} {what}, not {shown}")
     return value

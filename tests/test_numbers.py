@@ -31,8 +31,10 @@ def test_to_number_reads_what_people_type(text, options, expected):
     [
         ("", {}, "is required"),
         ("abc", {}, "'abc' is not a number"),
-        ("Infinity", {}, "'Infinity' is not a finite number"),
+        ("Infinity", {}, "'Infinity' is not a number"),
         ("0", {"sign": "positive", "what": "amount"}, "must be a positive amount, not 0"),
+        ("nan", {"sign": "positive"}, "must be a positive number, not nan"),
+        ("lots", {"sign": "positive", "what": "amount"}, "must be a positive amount, not lots"),
         ("-1", {"sign": "non_negative"}, "must be a zero or positive number, not -1"),
     ],
 )
