@@ -36,7 +36,7 @@ ALLOWED = {
     "commands": {"commands", "app", "core", "io", "store"},
 }
 # Small top-level modules every room may use.
-SHARED_MODULES = {"errors", "caution", "resources"}
+SHARED_MODULES = {"errors", "caution", "resources", "numbers"}
 # The one door between commands and web: `probewise serve` starts the web app.
 EXCEPTIONS = {("commands/serve.py", "web")}
 

@@ -1,16 +1,60 @@
 """Correlation of a unit's thickness with horizontal distance, practical-range convention.
 
 The practical range r is the distance at which the correlation falls to about 5%
-(DESIGN.md "Probability model"):
+(docs/model.md, "Probability model"). The models, one entry each in ``CORRELATION_MODELS``:
 
 - exponential: exp(-3 h / r);
 - gaussian: exp(-3 h^2 / r^2);
 - spherical: 1 - 1.5 (h/r) + 0.5 (h/r)^3 for h < r, else 0.
+
+Adding a model is one entry in ``CORRELATION_MODELS``: the model file's allowed names and the
+Ground page's choices derive from it.
 """
 
 from __future__ import annotations
 
+from collections.abc import Callable
+from dataclasses import dataclass
+
 import numpy as np
+
+
+@dataclass(frozen=True)
+class CorrelationModel:
+    """One correlation model: its name in the model file, a label for people, its formula.
+
+    ``formula`` maps the scaled distance ``h / r`` (array of float >= 0, any shape) to the
+    correlation (same shape, 1 at 0).
+    """
+
+    name: str
+    label: str
+    formula: Callable[[np.ndarray], np.ndarray]
+
+
+def _exponential(h: np.ndarray) -> np.ndarray:
+    return np.exp(-3.0 * h)
+
+
+def _gaussian(h: np.ndarray) -> np.ndarray:
+    return np.exp(-3.0 * h * h)
+
+
+def _spherical(h: np.ndarray) -> np.ndarray:
+    hc = np.minimum(h, 1.0)
+    return np.where(h < 1.0, 1.0 - 1.5 * hc + 0.5 * hc**3, 0.0)
+
+
+# The one list of correlation models, in the order the model file and the pages show them.
+CORRELATION_MODELS: dict[str, CorrelationModel] = {
+    m.name: m
+    for m in (
+        CorrelationModel("exponential", "Exponential", _exponential),
+        CorrelationModel("gaussian", "Gaussian", _gaussian),
+        CorrelationModel("spherical", "Spherical", _spherical),
+    )
+}
+CORRELATION_MODEL_NAMES: tuple[str, ...] = tuple(CORRELATION_MODELS)
 
 
 def correlate(model: str, h_m: np.ndarray, range_m: float) -> np.ndarray:
@@ -18,7 +62,8 @@ def correlate(model: str, h_m: np.ndarray, range_m: float) -> np.ndarray:
 
     Parameters
     ----------
-    model : {"exponential", "gaussian", "spherical"}
+    model : str
+        A name in ``CORRELATION_MODELS``.
     h_m : array of float, any shape
         Distances (m), non-negative.
     range_m : float
@@ -28,15 +73,10 @@ def correlate(model: str, h_m: np.ndarray, range_m: float) -> np.ndarray:
     -------
     array of float, shape of ``h_m``, in [0, 1] with 1 at h = 0.
     """
-    h = np.asarray(h_m, dtype=float) / float(range_m)
-    if model == "exponential":
-        return np.exp(-3.0 * h)
-    if model == "gaussian":
-        return np.exp(-3.0 * h * h)
-    if model == "spherical":
-        hc = np.minimum(h, 1.0)
-        return np.where(h < 1.0, 1.0 - 1.5 * hc + 0.5 * hc**3, 0.0)
-    raise ValueError(f"unknown correlation model {model!r}")
+    entry = CORRELATION_MODELS.get(model)
+    if entry is None:
+        raise ValueError(f"unknown correlation model {model!r}")
+    return entry.formula(np.asarray(h_m, dtype=float) / float(range_m))
 
 
 def pairwise_distance_m(xy_a: np.ndarray, xy_b: np.ndarray) -> np.ndarray:
