@@ -17,6 +17,7 @@ COMMANDS = {
     "serve": ("serve", "run the web app (loads the demo project into a fresh database)"),
     "validate": ("validate", "check a model file; exit 0 when valid, 2 otherwise"),
     "posterior": ("posterior", "boundary depths and their uncertainty at points"),
+    "bounds": ("bounds", "hard bounds on boundary depths at points, with their sources"),
     "evaluate": ("evaluate", "cost, duration and information gain of every layout"),
     "optimise": ("optimise", "propose a layout for a budget"),
     "rank": ("rank", "rank hand-made, guidance-grid and optimised options"),

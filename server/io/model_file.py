@@ -828,6 +828,10 @@ def _validate(data: object, first_only: bool) -> tuple[dict | None, list[InputEr
         problems.append(problem)
         if stop():
             break
+    from server.io.model_history import history_problems  # levels, history; imports this module
+
+    if not stop():
+        problems.extend(history_problems(data, normal))
     return (None if problems else normal), problems
 
 

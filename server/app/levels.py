@@ -1,0 +1,91 @@
+"""Levels and hard bounds at points for both doors (docs/model-file.md "CLI output
+contract": ``probewise bounds`` and the level fields of ``probewise posterior``)."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from server.core.bounds import BoundsConflictError, BoundsReport, bounds_report
+from server.core.history import NO_BOUND, OUTSIDE
+from server.core.levels import ground_level_at
+from server.core.model import Project
+from server.errors import InputError
+
+
+def ground_levels(project: Project, xy: np.ndarray) -> np.ndarray | None:
+    """Ground level (m, project datum) at points in project coordinates, or None when the
+    model has no ground level: ``(n, 2) -> (n,)``."""
+    if project.ground.ground_level is None:
+        return None
+    return ground_level_at(project.ground.ground_level, np.asarray(xy, float).reshape(-1, 2))
+
+
+def report_at(project: Project, xy: np.ndarray) -> BoundsReport:
+    """The bounds and their sources at points in project coordinates; a history conflict
+    there is an InputError naming the rule."""
+    origin = np.asarray(project.origin)
+    try:
+        return bounds_report(project.ground, np.asarray(xy, float) - origin, project.origin)
+    except BoundsConflictError as exc:
+        raise InputError(exc.field, exc.problem) from None
+
+
+def _sources(project: Project, report: BoundsReport, i: int, k: int) -> list[str]:
+    ground = project.ground
+    out = ["unit thickness ranges"]
+    for b, bound in enumerate(ground.bounds):
+        if bound.boundary == k and report.user_applies[b][i]:
+            where = "inside its polygon" if bound.polygon is not None else "everywhere"
+            out.append(f"bounds[{b}] ({where})")
+    for r, rule in enumerate(ground.history):
+        env = int(report.bands[r].environment[i]) if rule.boundary == k else NO_BOUND
+        if env == NO_BOUND:
+            continue
+        what = (
+            "outside the mapped environments"
+            if env == OUTSIDE
+            else f"environment {rule.environments[env].name!r}"
+        )
+        out.append(f"history[{r}] {rule.name!r}: {what}")
+    return out
+
+
+def _num(value: float) -> float | None:
+    return float(value) if np.isfinite(value) else None
+
+
+def bounds_json(project: Project, xy: np.ndarray) -> dict:
+    """The ``probewise bounds --json`` document at points (project coordinates)."""
+    xy = np.asarray(xy, dtype=float).reshape(-1, 2)
+    report = report_at(project, xy)
+    gl = ground_levels(project, xy)
+    ground = project.ground
+    points = []
+    for i, (x, y) in enumerate(xy):
+        boundaries = {}
+        for k, name in enumerate(ground.boundary_names):
+            entry = {
+                "min_depth_m": float(report.lo[i, k]),
+                "max_depth_m": float(report.hi[i, k]),
+                "sources": _sources(project, report, i, k),
+            }
+            if gl is not None:
+                entry["max_level_m"] = float(gl[i] - report.lo[i, k])
+                entry["min_level_m"] = float(gl[i] - report.hi[i, k])
+            rules = [r for r, rule in enumerate(ground.history) if rule.boundary == k]
+            if rules:
+                # the first rule that bounds this point; nulls where none does
+                hit = [r for r in rules if report.bands[r].bounded[i]]
+                band = report.bands[hit[0] if hit else rules[0]]
+                entry.update(
+                    former_level_min_m=_num(band.former_min_m[i]),
+                    former_level_max_m=_num(band.former_max_m[i]),
+                    settlement_min_m=_num(band.settlement_min_m[i]),
+                    settlement_max_m=_num(band.settlement_max_m[i]),
+                )
+            boundaries[name] = entry
+        point = {"x": float(x), "y": float(y), "boundaries": boundaries}
+        if gl is not None:
+            point["ground_level_m"] = float(gl[i])
+        points.append(point)
+    return {"points": points}
