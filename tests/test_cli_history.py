@@ -128,3 +128,20 @@ def test_bounds_table_and_caution():
     run = run_cli("bounds", str(HISTORY), "--at", "50,60")
     assert run.returncode == 0, run.stderr
     assert "Salt marsh" in run.stdout and "Caution" in run.stdout
+
+
+def test_reclaimed_strip_demo_shows_the_band():
+    # The invented demo with two former environments: each narrows the fill base below the
+    # unit ranges (0.8-7.0 m), the tidal flats lie deeper than the salt marsh, and the strip
+    # east of the mapped environments has no history bound.
+    path = ROOT / "seed_data" / "demo-reclaimed-strip.json"
+    model = json.loads(path.read_text())
+    assert "invented" in model["name"].lower() and "invented" in model["notes"].lower()
+    doc = bounds_doc(str(path), "80,60", "250,60", "370,60")
+    marsh, flats, east = (p["boundaries"]["Hydraulic fill and made ground"] for p in doc["points"])
+    for b in (marsh, flats):
+        assert 0.8 < b["min_depth_m"] < b["max_depth_m"] <= 7.0
+        assert b["settlement_max_m"] > b["settlement_min_m"] > 0
+    assert flats["min_depth_m"] > marsh["min_depth_m"]
+    assert (east["min_depth_m"], east["max_depth_m"]) == (0.8, 7.0)
+    assert east["former_level_min_m"] is None

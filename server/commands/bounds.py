@@ -50,7 +50,7 @@ def bounds_text(doc: dict) -> str:
         rows = []
         for name, b in point["boundaries"].items():
             former = settle = ""
-            if "former_level_min_m" in b:
+            if b.get("former_level_min_m") is not None:
                 former = f"{_m(b['former_level_min_m'])} to {_m(b['former_level_max_m'])}"
                 settle = f"{_m(b['settlement_min_m'])} to {_m(b['settlement_max_m'])}"
             row = [name, f"{b['min_depth_m']:.2f}", f"{b['max_depth_m']:.2f}"]
