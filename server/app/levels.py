@@ -89,3 +89,23 @@ def bounds_json(project: Project, xy: np.ndarray) -> dict:
             point["ground_level_m"] = float(gl[i])
         points.append(point)
     return {"points": points}
+
+
+def history_limits(project: Project, xy: np.ndarray) -> dict[int, tuple[np.ndarray, np.ndarray]]:
+    """Depth bounds (m) that history rules put on their boundaries at points (project
+    coordinates): boundary index -> (min depth, max depth), each ``(n,)`` with ``nan`` where no
+    rule bounds that point. These are the maximum and minimum potential levels as depths, after
+    every other bound (docs/model.md "Levels and site history")."""
+    ground = project.ground
+    if not ground.history:
+        return {}
+    report = report_at(project, xy)
+    out = {}
+    for rule, band in zip(ground.history, report.bands, strict=True):
+        k = rule.boundary
+        lo, hi = out.get(k, (np.full(len(band.bounded), np.nan),) * 2)
+        lo, hi = lo.copy(), hi.copy()
+        lo[band.bounded] = report.lo[band.bounded, k]
+        hi[band.bounded] = report.hi[band.bounded, k]
+        out[k] = (lo, hi)
+    return out
