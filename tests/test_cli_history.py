@@ -145,3 +145,13 @@ def test_reclaimed_strip_demo_shows_the_band():
     assert flats["min_depth_m"] > marsh["min_depth_m"]
     assert (east["min_depth_m"], east["max_depth_m"]) == (0.8, 7.0)
     assert east["former_level_min_m"] is None
+
+
+def test_zone_transition_reaches_the_core():
+    model = json.loads(TINY.read_text())
+    model["zones"][0]["transition_m"] = 10
+    project = core_project(validate_model(model))
+    assert project.ground.zones[0].transition_m == 10.0
+    assert (
+        core_project(validate_model(json.loads(TINY.read_text()))).ground.zones[0].transition_m == 0
+    )

@@ -89,6 +89,7 @@ def core_ground(model: dict) -> GroundModel:
                 index[name]: core_range(spec["thickness_m"])
                 for name, spec in (z.get("units") or {}).items()
             },
+            transition_m=float(z.get("transition_m") or 0.0),
         )
         for z in model.get("zones") or []
     )

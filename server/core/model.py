@@ -64,6 +64,9 @@ class Zone:
     name: str
     polygon: Polygon
     thickness: dict[int, ThicknessRange]  # unit index -> range override
+    # width (m) of the band across the zone's edge over which the thickness mean and spread
+    # blend linearly with those outside (0: a sharp edge); ``server.core.field``
+    transition_m: float = 0.0
 
 
 @dataclass(frozen=True)

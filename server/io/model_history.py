@@ -210,9 +210,30 @@ def _rule_problems(rule: dict, r: int, m: dict) -> Iterator[InputError]:
         )
 
 
+MAX_TRANSITION_M = 1e4
+
+
+def transition_problems(normal: dict) -> Iterator[InputError]:
+    """``zones[i].transition_m`` (optional): a width in metres, 0 or more."""
+    for z, zone in enumerate(normal.get("zones") or []):
+        if "transition_m" not in zone:
+            continue
+        value = zone["transition_m"]
+        ok = isinstance(value, int | float) and not isinstance(value, bool)
+        if not ok or not 0 <= value <= MAX_TRANSITION_M:
+            yield InputError(
+                f"zones[{z}].transition_m",
+                f"must be a width in metres from 0 to {MAX_TRANSITION_M:g} (got {_show(value)})",
+            )
+        else:
+            zone["transition_m"] = float(value)
+
+
 def history_problems(data: dict, normal: dict) -> Iterator[InputError]:
-    """Validate the levels and history sections of ``data``; put them, normalised, into
-    ``normal`` (a model that passed its other checks) and yield every problem."""
+    """Validate the levels and history sections of ``data`` (and the zones' transition
+    widths); put them, normalised, into ``normal`` (a model that passed its other checks) and
+    yield every problem."""
+    yield from transition_problems(normal)
     given = {key: data[key] for key in SECTIONS if key in data}
     if not given:
         return

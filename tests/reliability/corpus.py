@@ -1294,6 +1294,10 @@ CLI_CASES += [
         with_history(f"{RULE}.outside", {"level_min": 0.0, "level_max": 0.5}), RULE,
         "bounds[0]"),
     cli("cli-bounds-no-point", ["bounds", "{dir}/m.json"], with_history("name", "x"), "--at"),
+    history_cli("cli-zone-transition-negative", "zones[0].transition_m", -5.0,
+                "zones[0].transition_m", "from 0"),
+    history_cli("cli-zone-transition-text", "zones[0].transition_m", "wide",
+                "zones[0].transition_m", "width in metres"),
 ]  # fmt: skip
 API_CASES += [
     api_create("api-history-unknown-reference",
