@@ -36,3 +36,45 @@ def test_section_with_history_draws(empty_client):
     )
     assert answer.status_code == 200, answer.text
     assert answer.headers["content-type"] == "image/png"
+
+
+def sections_of(model: dict) -> dict:
+    return {k: model[k] for k in ("ground_level", "reference_levels", "history") if k in model}
+
+
+def test_history_page_shows_and_saves(empty_client):
+    from edit_helpers import model_of, revision_of
+
+    model = json.loads(DEMO.read_text())
+    pid = add_project(empty_client, model)
+    page = empty_client.get(f"/projects/{pid}/history")
+    assert page.status_code == 200
+    assert "Former tidal flats" in page.text and "Caution" in page.text
+    assert f"/projects/{pid}/history/band.png" in page.text
+    band = empty_client.get(f"/projects/{pid}/history/band.png")
+    assert band.status_code == 200 and band.headers["content-type"] == "image/png"
+    # a valid edit: the salt marsh's band widened to MLWN-HAT
+    doc = sections_of(model_of(empty_client, pid))
+    doc["history"][0]["environments"][0]["level_min"] = "MLWN"
+    rev = revision_of(empty_client, pid)
+    answer = empty_client.post(
+        f"/projects/{pid}/history/sections",
+        data={"expected_revision": str(rev), "sections": json.dumps(doc)},
+    )
+    assert answer.status_code in (200, 303), answer.text
+    saved = model_of(empty_client, pid)
+    assert saved["history"][0]["environments"][0]["level_min"] == "MLWN"
+    # bad input: 4xx naming the field, nothing stored
+    rev = revision_of(empty_client, pid)
+    for text, words in (
+        ("{not json", "not valid JSON"),
+        (json.dumps({"history": [], "tides": 1}), "is not one of"),
+        (json.dumps({**doc, "ground_level": {"points": doc["ground_level"]["points"][:2]}}),
+         "at least 3"),
+    ):  # fmt: skip
+        answer = empty_client.post(
+            f"/projects/{pid}/history/sections",
+            data={"expected_revision": str(rev), "sections": text},
+        )
+        assert answer.status_code == 422 and words in answer.text, answer.text[:300]
+    assert revision_of(empty_client, pid) == rev
