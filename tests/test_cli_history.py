@@ -155,3 +155,18 @@ def test_zone_transition_reaches_the_core():
     assert (
         core_project(validate_model(json.loads(TINY.read_text()))).ground.zones[0].transition_m == 0
     )
+
+
+def test_schedule_speaks_of_the_band():
+    # The demo's second layout: CPT06 at x = 340 lies east of the mapped environments
+    # (x > 330), so 7 of its 8 probes are bounded; BH01 given a 2 m depth stops above the band
+    # (the salt marsh's lowest potential level is more than 2 m down there).
+    from server.app.schedule import build_schedule
+
+    model = json.loads((ROOT / "seed_data" / "demo-reclaimed-strip.json").read_text())
+    layout = "CPTu along the pavement with two boreholes"
+    text = " ".join(build_schedule(core_project(validate_model(model)), layout).justification)
+    assert "at 7 of the 8 planned probes" in text and "pass below the band" in text
+    model["layouts"][1]["probes"][0]["depth_m"] = 2.0
+    text = " ".join(build_schedule(core_project(validate_model(model)), layout).justification)
+    assert "Planned to stop above the band's base: BH01." in text

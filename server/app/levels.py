@@ -109,3 +109,39 @@ def history_limits(project: Project, xy: np.ndarray) -> dict[int, tuple[np.ndarr
         hi[band.bounded] = report.hi[band.bounded, k]
         out[k] = (lo, hi)
     return out
+
+
+def history_paragraphs(project: Project, plans) -> list[str]:
+    """Sentences for the schedule on each boundary a history rule bounds: the band between
+    its maximum and minimum potential levels at the planned probes, and which probes are
+    planned to pass below it (``plans``: the layout's ProbePlan sequence)."""
+    if not project.ground.history or not plans:
+        return []
+    xy = np.array([(p.probe.x, p.probe.y) for p in plans], dtype=float)
+    depth = np.array([p.depth_m for p in plans], dtype=float)
+    gl = ground_levels(project, xy)
+    out = []
+    for k, (lo, hi) in sorted(history_limits(project, xy).items()):
+        name = project.ground.boundary_names[k]
+        inside = np.isfinite(lo)
+        if not inside.any():
+            continue
+        thick = hi[inside] - lo[inside]
+        short = [plans[i].probe.id for i in np.flatnonzero(inside & (depth < hi))]
+        text = (
+            f"Site history bounds the base of {name} at {int(inside.sum())} of the "
+            f"{len(plans)} planned probes: it lies between its maximum and minimum potential "
+            f"levels, a band {thick.min():.1f} to {thick.max():.1f} m thick there"
+        )
+        if gl is not None:
+            text += (
+                f" (levels {np.min(gl[inside] - hi[inside]):.2f} to "
+                f"{np.max(gl[inside] - lo[inside]):.2f} m)"
+            )
+        text += (
+            ". Every one of them is planned to pass below the band."
+            if not short
+            else f". Planned to stop above the band's base: {', '.join(short)}."
+        )
+        out.append(text)
+    return out
