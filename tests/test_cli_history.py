@@ -170,3 +170,10 @@ def test_schedule_speaks_of_the_band():
     model["layouts"][1]["probes"][0]["depth_m"] = 2.0
     text = " ".join(build_schedule(core_project(validate_model(model)), layout).justification)
     assert "Planned to stop above the band's base: BH01." in text
+
+
+def test_posterior_table_gives_levels_with_a_ground_level():
+    run = run_cli("posterior", str(HISTORY), "--at", "50,60")
+    assert run.returncode == 0, run.stderr
+    assert "ground level 4.88 m" in run.stdout and "Mean level (m)" in run.stdout
+    assert "Mean level" not in run_cli("posterior", str(TINY), "--at", "50,60").stdout

@@ -74,7 +74,7 @@ def posterior_json(names: tuple[str, ...], post, ground_level_m=None) -> dict:
     return {"points": points}
 
 
-def posterior_text(names, post, inside, layout_name: str | None) -> str:
+def posterior_text(names, post, inside, layout_name: str | None, ground_level_m=None) -> str:
     from server.caution import CAUTION_LINE
     from server.commands.tables import format_table
 
@@ -85,6 +85,8 @@ def posterior_text(names, post, inside, layout_name: str | None) -> str:
     ]
     for i, (x, y) in enumerate(post.xy):
         where = "" if inside[i] else "  (outside the site)"
+        if ground_level_m is not None:
+            where = f", ground level {ground_level_m[i]:.2f} m{where}"
         rows = [
             [name]
             + [
@@ -100,7 +102,12 @@ def posterior_text(names, post, inside, layout_name: str | None) -> str:
             ]
             for k, name in enumerate(names)
         ]
-        parts += ["", f"Point X {x:.2f} m, Y {y:.2f} m{where}", format_table(headers, rows)]
+        heads = headers
+        if ground_level_m is not None:  # the level of the posterior mean beside the depths
+            heads = [*headers, "Mean level (m)"]
+            for k, row in enumerate(rows):
+                row.append(f"{ground_level_m[i] - post.mean_m[i, k]:.2f}")
+        parts += ["", f"Point X {x:.2f} m, Y {y:.2f} m{where}", format_table(heads, rows)]
     parts += ["", CAUTION_LINE]
     return "\n".join(parts)
 
@@ -140,5 +147,6 @@ def run(args: argparse.Namespace) -> int:
         sys.stdout.write(json.dumps(doc, allow_nan=False) + "\n")
     else:
         inside = points_in_polygon(analysis.to_local(xy), project.site.outline, analysis.origin)
-        sys.stdout.write(posterior_text(names, post, inside, args.layout) + "\n")
+        text = posterior_text(names, post, inside, args.layout, ground_levels(project, xy))
+        sys.stdout.write(text + "\n")
     return 0
