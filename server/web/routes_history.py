@@ -15,9 +15,11 @@ from fastapi import APIRouter, Request
 from starlette.responses import Response
 
 from server.app.levels import history_limits
+from server.app.project import core_project
 from server.app.results import project_results
 from server.core.grid import EmptyGridError, evaluation_grid_capped
 from server.errors import InputError
+from server.io.model_file import validate_model
 from server.io.model_history import SECTIONS, resolve_level
 from server.store import StoredProject
 from server.web import plots
@@ -125,6 +127,11 @@ def save_sections(request: Request, project_id: int, form: PostedForm, db: Db) -
                 model.pop(key, None)
             else:
                 model[key] = doc[key]
+        try:
+            normal = validate_model(model)
+        except InputError:
+            return "Changed the levels and site history"  # run_edit lists every problem
+        core_project(normal)  # refuses a history bound that conflicts with another bound
         return "Changed the levels and site history"
 
     return PAGE.edit(request, db, project_id, form, edit, reader=reader)

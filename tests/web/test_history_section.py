@@ -42,6 +42,13 @@ def sections_of(model: dict) -> dict:
     return {k: model[k] for k in ("ground_level", "reference_levels", "history") if k in model}
 
 
+def conflicting(doc: dict) -> dict:
+    out = json.loads(json.dumps(doc))
+    out["history"][0]["environments"][0].update(level_min=-9.0, level_max=-8.0)
+    out["history"][0]["settlement"] = None
+    return out
+
+
 def test_history_page_shows_and_saves(empty_client):
     from edit_helpers import model_of, revision_of
 
@@ -71,6 +78,8 @@ def test_history_page_shows_and_saves(empty_client):
         (json.dumps({"history": [], "tides": 1}), "is not one of"),
         (json.dumps({**doc, "ground_level": {"points": doc["ground_level"]["points"][:2]}}),
          "at least 3"),
+        # the salt marsh at -9 to -8 m puts the fill base 12-13 m down: beyond its 0.8-7 m
+        (json.dumps(conflicting(doc)), "misses"),
     ):  # fmt: skip
         answer = empty_client.post(
             f"/projects/{pid}/history/sections",
