@@ -18,6 +18,7 @@ COMMANDS = {
     "init": ("init", "write a new model file to start a project from nothing"),
     "validate": ("validate", "check a model file; exit 0 when valid, 2 otherwise"),
     "posterior": ("posterior", "boundary depths and their uncertainty at points"),
+    "bounds": ("bounds", "hard bounds on boundary depths at points, with their sources"),
     "evaluate": ("evaluate", "cost, duration and information gain of every layout"),
     "optimise": ("optimise", "propose a layout for a budget"),
     "rank": ("rank", "rank hand-made, guidance-grid and optimised options"),

@@ -26,7 +26,7 @@ LAYOUT_KEYS = {
     "probes",
 }
 PROBE_KEYS = {"id", "method", "x", "y", "depth_m", "observes"}
-POINT_KEYS = {"prior_mean_m", "prior_std_m", "mean_m", "std_m", "p05_m", "p95_m"}
+POINT_KEYS = {"prior_mean_m", "prior_std_m", "mean_m", "std_m", "p05_m", "p50_m", "p95_m"}
 BOUNDARIES = ["Made ground", "Alluvial clay", "River gravel"]
 
 

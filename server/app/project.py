@@ -28,6 +28,8 @@ def core_project(model: dict) -> Project:
 
     try:
         return to_core(model)
+    except InputError:  # a history bound that conflicts with another (to_core checks)
+        raise
     except (KeyError, TypeError, ValueError) as exc:  # the validator should have caught it
         raise InputError("model", f"cannot be used: {exc}") from None
 

@@ -15,6 +15,7 @@ from dataclasses import dataclass
 from typing import Any
 
 from server.app.justification import MainBoundary, OptionFigures, justification
+from server.app.levels import history_paragraphs
 from server.app.project import find_layout
 from server.caution import CAUTION_LINE
 from server.core.evaluate import GridEvaluator, LayoutResult, with_pareto
@@ -290,7 +291,8 @@ def build_schedule(
         methods=tuple(methods),
         totals=totals_of(result, methods),
         main_boundary=project.ground.boundary_names[main] if main is not None else None,
-        justification=tuple(justification_of(project, evaluator, results, result.name)),
+        justification=tuple(justification_of(project, evaluator, results, result.name))
+        + tuple(history_paragraphs(project, result.plans)),  # levels and site history
     )
 
 

@@ -7,29 +7,38 @@ may be absent. Coordinates stay in project coordinates; the core localises them 
 
 from __future__ import annotations
 
+import contextlib
 import math
 
 import numpy as np
 
 from server.core.analysis import reading_precision_m
+from server.core.bounds import BoundsConflictError, depth_bounds
+from server.core.grid import EmptyGridError, evaluation_grid_capped
+from server.core.history import reference_level_m
 from server.core.model import (
     AreaOfInterest,
     BoundaryOfInterest,
     Correlation,
     DepthBound,
     ExistingProbe,
+    FormerEnvironment,
+    GroundLevel,
     GroundModel,
+    HistoryRule,
     Layout,
     Method,
     PlannedProbe,
     Polygon,
     Project,
+    Settlement,
     Site,
     ThicknessRange,
     Unit,
     Zone,
 )
 from server.core.priors import DEFAULT_SHAPE
+from server.errors import InputError
 
 
 def core_polygon(geometry: dict) -> Polygon:
@@ -85,6 +94,7 @@ def core_ground(model: dict) -> GroundModel:
                 index[name]: core_range(spec["thickness_m"])
                 for name, spec in (z.get("units") or {}).items()
             },
+            transition_m=float(z.get("transition_m") or 0.0),
         )
         for z in model.get("zones") or []
     )
@@ -101,7 +111,80 @@ def core_ground(model: dict) -> GroundModel:
         )
         for b in model.get("bounds") or []
     )
-    return GroundModel(tuple(units), zones, interest, bounds)
+    return GroundModel(
+        tuple(units),
+        zones,
+        interest,
+        bounds,
+        ground_level=core_ground_level(model.get("ground_level")),
+        history=tuple(core_history_rule(r, model) for r in model.get("history") or []),
+    )
+
+
+def core_ground_level(spec: dict | None) -> GroundLevel | None:
+    """``ground_level``: a constant or surveyed points ``(m, 3)`` of x, y, level."""
+    if not spec:
+        return None
+    if spec.get("points"):
+        pts = np.array([(p["x"], p["y"], p["level_m"]) for p in spec["points"]], dtype=float)
+        return GroundLevel(spec.get("datum") or "", points=pts)
+    return GroundLevel(spec.get("datum") or "", level_m=float(spec["level_m"]))
+
+
+def core_history_rule(spec: dict, model: dict) -> HistoryRule:
+    """One ``history`` entry; named reference levels resolved to the project datum."""
+    index = _unit_index(model)
+    ref = model.get("reference_levels") or {}
+    table = {r["name"]: float(r["level_m"]) for r in ref.get("levels") or []}
+    shift = float(ref.get("datum_shift_m") or 0.0)
+
+    def band(b: dict) -> tuple[float, float]:
+        return (
+            reference_level_m(b["level_min"], table, shift),
+            reference_level_m(b["level_max"], table, shift),
+        )
+
+    environments = tuple(
+        FormerEnvironment(e["name"], core_polygon(e["geometry"]), *band(e))
+        for e in spec.get("environments") or []
+    )
+    settle = spec.get("settlement")
+    settlement = None
+    if settle:
+        settlement = Settlement(
+            compressible_unit=index[settle["compressible_unit"]],
+            cc_min=float(settle["cc"]["min"]),
+            cc_max=float(settle["cc"]["max"]),
+            e0=float(settle["e0"]),
+            unit_weight_kn_m3=float(settle["unit_weight_kn_m3"]),
+            fill_unit_weight_kn_m3=float(settle["fill_unit_weight_kn_m3"]),
+            surcharge_kpa=float(settle.get("surcharge_kpa") or 0.0),
+        )
+    outside = spec.get("outside")
+    return HistoryRule(
+        name=spec["name"],
+        boundary=index[spec["base_of"]],
+        environments=environments,
+        outside=band(outside) if outside else None,
+        settlement=settlement,
+    )
+
+
+def check_history_bounds(project: Project) -> None:
+    """InputError when a history rule leaves no depth with another bound anywhere on the
+    evaluation grid or at a probe (docs/model.md "Levels and site history")."""
+    if not project.ground.history:
+        return
+    origin = np.asarray(project.origin)
+    probes = [(p.x, p.y) for p in project.existing]
+    probes += [(p.x, p.y) for lay in project.layouts for p in lay.probes]
+    xy = [np.array(probes, dtype=float).reshape(-1, 2) - origin]
+    with contextlib.suppress(EmptyGridError):
+        xy.append(evaluation_grid_capped(project.site, project.origin)[0].xy)
+    try:
+        depth_bounds(project.ground, np.vstack(xy), project.origin)
+    except BoundsConflictError as exc:
+        raise InputError(exc.field, exc.problem) from None
 
 
 def core_method(spec: dict, model: dict) -> Method:
@@ -178,7 +261,7 @@ def to_core(model: dict) -> Project:
         exclusions=tuple(core_polygon(e["geometry"]) for e in model.get("exclusions") or []),
         exclusion_names=tuple(e["name"] for e in model.get("exclusions") or []),
     )
-    return Project(
+    project = Project(
         name=model.get("name", ""),
         crs=model.get("crs"),
         currency=model.get("currency") or "",
@@ -188,3 +271,5 @@ def to_core(model: dict) -> Project:
         existing=tuple(core_existing(e, model, methods) for e in model.get("existing") or []),
         layouts=tuple(core_layout(lay) for lay in model.get("layouts") or []),
     )
+    check_history_bounds(project)
+    return project

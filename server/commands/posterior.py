@@ -45,30 +45,36 @@ def parse_point(text: str) -> tuple[float, float]:
     return x, y
 
 
-def posterior_json(names: tuple[str, ...], post) -> dict:
+def posterior_json(names: tuple[str, ...], post, ground_level_m=None) -> dict:
+    """The ``--json`` document; ``p50_m`` is the truncated-posterior median; with a ground
+    level, ``level_m`` (ground level at the point) and each boundary's ``mean_level_m``."""
+    from server.core.bounds import truncated_quantiles
+
+    p50 = truncated_quantiles(post.mean_m, post.std_m, post.lo_m, post.hi_m, 0.5)
     points = []
     for i, (x, y) in enumerate(post.xy):
-        points.append(
-            {
-                "x": float(x),
-                "y": float(y),
-                "boundaries": {
-                    name: {
-                        "prior_mean_m": float(post.prior_mean_m[i, k]),
-                        "prior_std_m": float(post.prior_std_m[i, k]),
-                        "mean_m": float(post.mean_m[i, k]),
-                        "std_m": float(post.std_m[i, k]),
-                        "p05_m": float(post.p05_m[i, k]),
-                        "p95_m": float(post.p95_m[i, k]),
-                    }
-                    for k, name in enumerate(names)
-                },
+        boundaries = {}
+        for k, name in enumerate(names):
+            entry = {
+                "prior_mean_m": float(post.prior_mean_m[i, k]),
+                "prior_std_m": float(post.prior_std_m[i, k]),
+                "mean_m": float(post.mean_m[i, k]),
+                "std_m": float(post.std_m[i, k]),
+                "p05_m": float(post.p05_m[i, k]),
+                "p50_m": float(p50[i, k]),
+                "p95_m": float(post.p95_m[i, k]),
             }
-        )
+            if ground_level_m is not None:
+                entry["mean_level_m"] = float(ground_level_m[i] - post.mean_m[i, k])
+            boundaries[name] = entry
+        point = {"x": float(x), "y": float(y), "boundaries": boundaries}
+        if ground_level_m is not None:
+            point["level_m"] = float(ground_level_m[i])
+        points.append(point)
     return {"points": points}
 
 
-def posterior_text(names, post, inside, layout_name: str | None) -> str:
+def posterior_text(names, post, inside, layout_name: str | None, ground_level_m=None) -> str:
     from server.caution import CAUTION_LINE
     from server.commands.tables import format_table
 
@@ -79,6 +85,8 @@ def posterior_text(names, post, inside, layout_name: str | None) -> str:
     ]
     for i, (x, y) in enumerate(post.xy):
         where = "" if inside[i] else "  (outside the site)"
+        if ground_level_m is not None:
+            where = f", ground level {ground_level_m[i]:.2f} m{where}"
         rows = [
             [name]
             + [
@@ -94,7 +102,12 @@ def posterior_text(names, post, inside, layout_name: str | None) -> str:
             ]
             for k, name in enumerate(names)
         ]
-        parts += ["", f"Point X {x:.2f} m, Y {y:.2f} m{where}", format_table(headers, rows)]
+        heads = headers
+        if ground_level_m is not None:  # the level of the posterior mean beside the depths
+            heads = [*headers, "Mean level (m)"]
+            for k, row in enumerate(rows):
+                row.append(f"{ground_level_m[i] - post.mean_m[i, k]:.2f}")
+        parts += ["", f"Point X {x:.2f} m, Y {y:.2f} m{where}", format_table(heads, rows)]
     parts += ["", CAUTION_LINE]
     return "\n".join(parts)
 
@@ -102,8 +115,10 @@ def posterior_text(names, post, inside, layout_name: str | None) -> str:
 def run(args: argparse.Namespace) -> int:
     import numpy as np
 
+    from server.app.levels import ground_levels
     from server.app.project import find_layout, load_project
     from server.core.analysis import ProjectAnalysis
+    from server.core.bounds import BoundsConflictError
     from server.core.geometry import points_in_polygon
     from server.errors import InputError
 
@@ -114,11 +129,16 @@ def run(args: argparse.Namespace) -> int:
     analysis = ProjectAnalysis(project)
     layout = None if args.layout is None else find_layout(project, args.layout, "--layout")
     xy = np.array(points, dtype=float)
-    post = analysis.at_points(xy, layout)
+    try:
+        post = analysis.at_points(xy, layout)
+    except BoundsConflictError as exc:  # a history bound at a point off the checked grid
+        raise InputError(exc.field, exc.problem) from None
     names = project.ground.boundary_names
     if args.json:
-        sys.stdout.write(json.dumps(posterior_json(names, post), allow_nan=False) + "\n")
+        doc = posterior_json(names, post, ground_levels(project, xy))
+        sys.stdout.write(json.dumps(doc, allow_nan=False) + "\n")
     else:
         inside = points_in_polygon(analysis.to_local(xy), project.site.outline, analysis.origin)
-        sys.stdout.write(posterior_text(names, post, inside, args.layout) + "\n")
+        text = posterior_text(names, post, inside, args.layout, ground_levels(project, xy))
+        sys.stdout.write(text + "\n")
     return 0

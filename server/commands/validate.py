@@ -18,6 +18,10 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 def run(args: argparse.Namespace) -> int:
     model = load_model_file(args.model)
+    if model.get("history"):  # history bounds that conflict with other bounds (to_core)
+        from server.app.project import core_project
+
+        core_project(model)
     print(f"{args.model}: valid ({summarise_model(model)})")
     for note in list_notes(model):
         print(f"note: {note}")

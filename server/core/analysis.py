@@ -103,6 +103,7 @@ class ProjectAnalysis:
         self.origin = project.origin
         self.existing = existing_observations(project.existing, project.methods, self.origin)
         self.baseline: PosteriorState = condition(self.ground, self.origin, self.existing)
+        self._bounds_at: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None
 
     def to_local(self, xy: np.ndarray) -> np.ndarray:
         """Project coordinates ``(n, 2)`` -> local coordinates ``(n, 2)``."""
@@ -121,7 +122,7 @@ class ProjectAnalysis:
 
     def quantiles(self, pred: Prediction) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
         """Hard bounds and P5/P95 of a prediction: ``(lo, hi, p05, p95)``, each ``(n, B)``."""
-        lo, hi = depth_bounds(self.ground, pred.xy, self.origin, pred.fields)
+        lo, hi = self.bounds(pred)
         std = pred.std_m
         return (
             lo,
@@ -129,6 +130,19 @@ class ProjectAnalysis:
             truncated_quantiles(pred.mean_m, std, lo, hi, 0.05),
             truncated_quantiles(pred.mean_m, std, lo, hi, 0.95),
         )
+
+    def bounds(self, pred: Prediction) -> tuple[np.ndarray, np.ndarray]:
+        """Hard bounds ``(lo, hi)`` at a prediction's points, each ``(n, B)``.
+
+        The last points' bounds are kept: every layout of an evaluation is scored on the
+        same grid, and the history rules (levels, settlement) cost more than a lookup.
+        """
+        cached = self._bounds_at
+        if cached is not None and np.array_equal(cached[0], pred.xy):
+            return cached[1], cached[2]
+        lo, hi = depth_bounds(self.ground, pred.xy, self.origin, pred.fields)
+        self._bounds_at = (np.array(pred.xy, copy=True), lo, hi)
+        return lo, hi
 
     def at_points(self, xy: np.ndarray, layout: Layout | None = None) -> PointPosterior:
         """Prior and posterior of every boundary at points given in project coordinates.

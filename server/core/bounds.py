@@ -1,20 +1,157 @@
 """Hard bounds on boundary depths and quantiles of the truncated Gaussian posterior.
 
-Bounds (DESIGN.md "Probability model"): D_k(x) lies in [sum of unit minima, sum of unit maxima]
+Bounds (docs/model.md "Hard bounds"): D_k(x) lies in [sum of unit minima, sum of unit maxima]
 of units 1..k (zone overrides applied), intersected with every user bound on boundary k that
 applies at x (everywhere, or inside its polygon). Should a user bound not overlap the range
 from the thicknesses at all, the user bound is kept: it is the engineer's explicit statement
-about that boundary.
+about that boundary. A history rule (``server.core.history``: former surface and settlement)
+then bounds the boundary it names; one that leaves no depth at a point is a conflict, raised.
 """
 
 from __future__ import annotations
+
+from dataclasses import dataclass
 
 import numpy as np
 from scipy.special import log_ndtr, ndtri_exp
 
 from server.core.field import UnitFields, unit_fields
 from server.core.geometry import points_in_polygon
+from server.core.history import HistoryBand, history_band
+from server.core.levels import ground_level_at
 from server.core.model import GroundModel
+
+UNIT_RANGES = -1  # source code of the bounds from the sums of unit minima and maxima
+
+
+class BoundsConflictError(ValueError):
+    """A history bound that leaves no depth with another bound at some point.
+
+    ``field`` names the history rule in model-file terms (``history[r]``), ``problem`` says
+    where and which other bound it misses.
+    """
+
+    def __init__(self, field: str, problem: str):
+        self.field = field
+        self.problem = problem
+        super().__init__(f"{field}: {problem}")
+
+
+@dataclass(frozen=True, eq=False)
+class BoundsReport:
+    """The hard bounds at ``n`` points and where they come from.
+
+    ``lo``/``hi`` are ``(n, B)`` depths (m); ``lo_source``/``hi_source`` ``(n, B)`` int codes
+    of the rule that set each (``UNIT_RANGES``, ``i`` for user bound ``i``, ``len(bounds) + r``
+    for history rule ``r``); ``user_applies`` one ``(n,)`` bool per user bound; ``bands``
+    one :class:`HistoryBand` per history rule; ``ground_level_m`` ``(n,)`` or None.
+    """
+
+    lo: np.ndarray
+    hi: np.ndarray
+    lo_source: np.ndarray
+    hi_source: np.ndarray
+    user_applies: tuple[np.ndarray, ...]
+    bands: tuple[HistoryBand, ...]
+    ground_level_m: np.ndarray | None
+
+
+def source_label(ground: GroundModel, code: int) -> str:
+    """Words for a bound's source code."""
+    if code == UNIT_RANGES:
+        return "the unit thickness ranges"
+    if code < len(ground.bounds):
+        return f"bounds[{code}]"
+    r = code - len(ground.bounds)
+    return f"history[{r}] {ground.history[r].name!r}"
+
+
+def _apply_history(ground, report_parts, xy, origin, fields):
+    """Intersect each history rule's bound with the bounds so far (in place); conflicts raise
+    :class:`BoundsConflictError` naming both bounds."""
+    lo, hi, lo_src, hi_src = report_parts
+    gl = ground_level_at(ground.ground_level, xy, origin)
+    bands = []
+    for r, rule in enumerate(ground.history):
+        band = history_band(rule, gl, fields, xy, origin)
+        bands.append(band)
+        k, code = rule.boundary, len(ground.bounds) + r
+        where = band.bounded
+        new_lo = np.where(where, np.maximum(lo[:, k], band.min_depth_m), lo[:, k])
+        new_hi = np.where(where, np.minimum(hi[:, k], band.max_depth_m), hi[:, k])
+        bad = np.flatnonzero(new_lo > new_hi)
+        if bad.size:
+            i = int(bad[0])
+            other = lo_src[i, k] if band.max_depth_m[i] < lo[i, k] else hi_src[i, k]
+            x, y = xy[i, 0] + origin[0], xy[i, 1] + origin[1]
+            raise BoundsConflictError(
+                f"history[{r}]",
+                f"at ({x:.1f}, {y:.1f}) it puts the base of {ground.units[k].name!r} between "
+                f"{band.min_depth_m[i]:.2f} and {band.max_depth_m[i]:.2f} m deep, which "
+                f"misses {lo[i, k]:.2f}-{hi[i, k]:.2f} m from {source_label(ground, other)}",
+            )
+        lo_src[:, k] = np.where(where & (band.min_depth_m >= lo[:, k]), code, lo_src[:, k])
+        hi_src[:, k] = np.where(where & (band.max_depth_m <= hi[:, k]), code, hi_src[:, k])
+        lo[:, k], hi[:, k] = new_lo, new_hi
+    return tuple(bands), gl
+
+
+def bounds_report(
+    ground: GroundModel,
+    xy: np.ndarray,
+    origin: tuple[float, float] = (0.0, 0.0),
+    fields: UnitFields | None = None,
+) -> BoundsReport:
+    """Hard bounds on every boundary depth at points, with their sources.
+
+    Sums of unit minima and maxima first; each user bound that applies intersects them (a
+    user bound that misses them entirely is kept: it is the engineer's statement); then each
+    history rule intersects its boundary, and one that leaves no depth raises
+    :class:`BoundsConflictError`.
+
+    Parameters
+    ----------
+    ground : GroundModel
+    xy : (n, 2) float
+        Points relative to ``origin``.
+    origin : (float, float)
+        Project coordinates of the local origin (polygons are in project coordinates).
+    fields : UnitFields, optional
+        Thickness priors at ``xy`` if already computed.
+
+    Returns
+    -------
+    BoundsReport
+    """
+    xy = np.asarray(xy, dtype=float).reshape(-1, 2)
+    if fields is None:
+        fields = unit_fields(ground, xy, origin)
+    lo = np.cumsum(fields.min_m, axis=1)
+    hi = np.cumsum(fields.max_m, axis=1)
+    lo_src = np.full(lo.shape, UNIT_RANGES, dtype=int)
+    hi_src = np.full(hi.shape, UNIT_RANGES, dtype=int)
+    applies = []
+    for i, bound in enumerate(ground.bounds):
+        k = bound.boundary
+        where = (
+            np.ones(len(xy), dtype=bool)
+            if bound.polygon is None
+            else points_in_polygon(xy, bound.polygon, origin)
+        )
+        applies.append(where)
+        new_lo = np.maximum(lo[:, k], bound.min_depth_m)
+        new_hi = np.minimum(hi[:, k], bound.max_depth_m)
+        disjoint = new_lo > new_hi
+        new_lo = np.where(disjoint, bound.min_depth_m, new_lo)
+        new_hi = np.where(disjoint, bound.max_depth_m, new_hi)
+        lo_src[:, k] = np.where(where & (new_lo == bound.min_depth_m), i, lo_src[:, k])
+        hi_src[:, k] = np.where(where & (new_hi == bound.max_depth_m), i, hi_src[:, k])
+        lo[:, k] = np.where(where, new_lo, lo[:, k])
+        hi[:, k] = np.where(where, new_hi, hi[:, k])
+    bands, gl = (), None
+    if ground.history:
+        bands, gl = _apply_history(ground, (lo, hi, lo_src, hi_src), xy, origin, fields)
+    return BoundsReport(lo, hi, lo_src, hi_src, tuple(applies), bands, gl)
 
 
 def depth_bounds(
@@ -23,7 +160,8 @@ def depth_bounds(
     origin: tuple[float, float] = (0.0, 0.0),
     fields: UnitFields | None = None,
 ) -> tuple[np.ndarray, np.ndarray]:
-    """Hard lower and upper bounds on every boundary depth at points.
+    """Hard lower and upper bounds on every boundary depth at points (every rule of
+    :func:`bounds_report`).
 
     Parameters
     ----------
@@ -40,26 +178,8 @@ def depth_bounds(
     (lo, hi) : ((n, B) float, (n, B) float)
         Depths (m), ``lo <= hi``.
     """
-    xy = np.asarray(xy, dtype=float).reshape(-1, 2)
-    if fields is None:
-        fields = unit_fields(ground, xy, origin)
-    lo = np.cumsum(fields.min_m, axis=1)
-    hi = np.cumsum(fields.max_m, axis=1)
-    for bound in ground.bounds:
-        k = bound.boundary
-        where = (
-            np.ones(len(xy), dtype=bool)
-            if bound.polygon is None
-            else points_in_polygon(xy, bound.polygon, origin)
-        )
-        new_lo = np.maximum(lo[:, k], bound.min_depth_m)
-        new_hi = np.minimum(hi[:, k], bound.max_depth_m)
-        disjoint = new_lo > new_hi
-        new_lo = np.where(disjoint, bound.min_depth_m, new_lo)
-        new_hi = np.where(disjoint, bound.max_depth_m, new_hi)
-        lo[:, k] = np.where(where, new_lo, lo[:, k])
-        hi[:, k] = np.where(where, new_hi, hi[:, k])
-    return lo, hi
+    report = bounds_report(ground, xy, origin, fields)
+    return report.lo, report.hi
 
 
 def truncated_quantiles(

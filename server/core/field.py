@@ -12,7 +12,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from server.core.geometry import points_in_polygon
+from server.core.geometry import distance_to_edge_m, points_in_polygon
 from server.core.model import GroundModel, ThicknessRange
 from server.core.priors import presence_moments, thickness_moments
 
@@ -100,6 +100,8 @@ def unit_fields(
             if 0 <= i < n_thick:  # a zone's range applies where the unit is present
                 table[z + 1, i] = _range_row(rng, presence[i])
     rows = table[zone + 1]  # (n, U-1, 4)
+    if any(spec.transition_m > 0 for spec in ground.zones):
+        rows = blend_zone_edges(ground, xy, origin, zone, table, rows)
     return UnitFields(
         mean_m=np.ascontiguousarray(rows[..., 0]),
         std_m=np.ascontiguousarray(rows[..., 1]),
@@ -107,6 +109,66 @@ def unit_fields(
         max_m=np.ascontiguousarray(rows[..., 3]),
         zone=zone,
     )
+
+
+def blend_zone_edges(
+    ground: GroundModel,
+    xy: np.ndarray,
+    origin: tuple[float, float],
+    zone: np.ndarray,
+    table: np.ndarray,
+    rows: np.ndarray,
+) -> np.ndarray:
+    """Thickness rows with the zones' transition bands blended (docs/model.md "Zone transitions").
+
+    Within w/2 of the edge of a zone with transition width w, a point's mean and std are
+    t x (zone's) + (1 - t) x (what the point takes without that zone), t = 1/2 + d/w with d
+    the distance to the edge, positive inside; min and max take the wider of the two, so the
+    hard bounds never cut into the blend. A point inside an earlier zone keeps that zone.
+
+    Parameters
+    ----------
+    xy : (n, 2) float
+        Points relative to ``origin``.
+    zone : (n,) int
+        First zone containing each point, -1 for none.
+    table : (Z + 1, U - 1, 4) float
+        (mean, std, min, max) per zone + 1 (row 0: defaults) and unit.
+    rows : (n, U - 1, 4) float
+        The rows the points take with sharp edges.
+
+    Returns
+    -------
+    (n, U - 1, 4) float
+    """
+    rows = rows.copy()
+    for z, spec in enumerate(ground.zones):
+        half = 0.5 * spec.transition_m
+        if half <= 0:
+            continue
+        near = (zone < 0) | (zone >= z)
+        near[near] = distance_to_edge_m(xy[near], spec.polygon, origin) < half
+        idx = np.flatnonzero(near)
+        if not idx.size:
+            continue
+        d = distance_to_edge_m(xy[idx], spec.polygon, origin)
+        inside = zone[idx] == z
+        t = 0.5 + np.where(inside, d, -d) / spec.transition_m  # (m,)
+        # what the inside points take without this zone: the next zone containing them
+        other = rows[idx].copy()
+        if inside.any():
+            later = GroundModel(ground.units, ground.zones[z + 1 :])
+            nxt = zone_of_points(later, xy[idx[inside]], origin)
+            other[inside] = table[np.where(nxt >= 0, nxt + z + 2, 0)]
+        own = np.broadcast_to(table[z + 1], other.shape)
+        blended = other.copy()
+        w = t[:, None]
+        blended[..., 0] = w * own[..., 0] + (1 - w) * other[..., 0]
+        blended[..., 1] = w * own[..., 1] + (1 - w) * other[..., 1]
+        blended[..., 2] = np.minimum(own[..., 2], other[..., 2])
+        blended[..., 3] = np.maximum(own[..., 3], other[..., 3])
+        rows[idx] = blended
+    return rows
 
 
 def prior_boundary_moments(fields: UnitFields) -> tuple[np.ndarray, np.ndarray]:

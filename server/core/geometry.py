@@ -71,6 +71,40 @@ def points_in_polygon(
     return inside | on_edge
 
 
+def distance_to_edge_m(
+    xy: np.ndarray, polygon: Polygon, origin: tuple[float, float] = (0.0, 0.0)
+) -> np.ndarray:
+    """Distance (m) from points to the nearest edge of any of a polygon's rings.
+
+    Parameters
+    ----------
+    xy : (n, 2) float
+        Points, relative to ``origin``.
+    polygon : Polygon
+    origin : (2,) float
+
+    Returns
+    -------
+    (n,) float
+    """
+    xy = np.asarray(xy, dtype=float).reshape(-1, 2)
+    best = np.full(len(xy), np.inf)
+    for ring in local_rings(polygon, origin):
+        a = ring[:-1] if np.array_equal(ring[0], ring[-1]) else ring
+        b = np.roll(a, -1, axis=0)
+        for (ax, ay), (bx, by) in zip(a, b, strict=True):
+            dx, dy = bx - ax, by - ay
+            seg2 = dx * dx + dy * dy
+            t = (
+                0.0
+                if seg2 == 0.0
+                else np.clip(((xy[:, 0] - ax) * dx + (xy[:, 1] - ay) * dy) / seg2, 0.0, 1.0)
+            )
+            d2 = (xy[:, 0] - ax - t * dx) ** 2 + (xy[:, 1] - ay - t * dy) ** 2
+            best = np.minimum(best, d2)
+    return np.sqrt(best)
+
+
 def polygon_area_m2(polygon: Polygon) -> float:
     """Area of a polygon under the even-odd rule, assuming rings do not cross (m2).
 

@@ -68,6 +68,9 @@ class Zone:
     name: str
     polygon: Polygon
     thickness: dict[int, ThicknessRange]  # unit index -> range override
+    # width (m) of the band across the zone's edge over which the thickness mean and spread
+    # blend linearly with those outside (0: a sharp edge); ``server.core.field``
+    transition_m: float = 0.0
 
 
 @dataclass(frozen=True)
@@ -87,12 +90,66 @@ class DepthBound:
     polygon: Polygon | None = None
 
 
+@dataclass(frozen=True, eq=False)
+class GroundLevel:
+    """Ground level (m, project datum): a constant, or surveyed points ``(m, 3)`` of
+    ``x, y, level`` in project coordinates (linear on their Delaunay triangulation, nearest
+    point outside its hull; ``server.core.levels``)."""
+
+    datum: str
+    level_m: float | None = None
+    points: np.ndarray | None = None
+
+
+@dataclass(frozen=True, eq=False)
+class FormerEnvironment:
+    """A mapped former environment and the band of levels (m, project datum) it lives in."""
+
+    name: str
+    polygon: Polygon
+    level_min_m: float
+    level_max_m: float
+
+
+@dataclass(frozen=True)
+class Settlement:
+    """Terzaghi 1D primary consolidation of the compressible unit under the fill.
+
+    ``compressible_unit`` is a unit index below the bounded boundary; unit weights in kN/m3,
+    surcharge in kPa.
+    """
+
+    compressible_unit: int
+    cc_min: float
+    cc_max: float
+    e0: float
+    unit_weight_kn_m3: float
+    fill_unit_weight_kn_m3: float
+    surcharge_kpa: float = 0.0
+
+
+@dataclass(frozen=True)
+class HistoryRule:
+    """Former surface (levels by environment) and its settlement: a hard bound on the depth
+    of one boundary (the fill base) that varies across the site (docs/model.md "Levels and
+    site history"). First environment containing a point wins; ``outside`` is the
+    ``(min, max)`` level elsewhere, or None for no bound there."""
+
+    name: str
+    boundary: int
+    environments: tuple[FormerEnvironment, ...]
+    outside: tuple[float, float] | None = None
+    settlement: Settlement | None = None
+
+
 @dataclass(frozen=True)
 class GroundModel:
     units: tuple[Unit, ...]
     zones: tuple[Zone, ...] = ()
     boundaries_of_interest: tuple[BoundaryOfInterest, ...] = ()
     bounds: tuple[DepthBound, ...] = ()
+    ground_level: GroundLevel | None = None
+    history: tuple[HistoryRule, ...] = ()
 
     @property
     def n_boundaries(self) -> int:

@@ -53,6 +53,7 @@ from server.io.model_common import (  # noqa: F401 - the model file's constants,
     show_value,
 )
 from server.io.model_geometry import to_shapely
+from server.io.model_history import history_problems
 from server.io.model_references import reference_problems
 from server.io.model_schema import OPTIONAL_KEYS, ModelFile
 
@@ -88,6 +89,8 @@ def _validate(data: object, first_only: bool) -> tuple[dict | None, list[InputEr
         problems.append(problem)
         if stop():
             break
+    if not stop():
+        problems.extend(history_problems(data, normal))
     return (None if problems else normal), problems
 
 

@@ -18,6 +18,7 @@ from fastapi import APIRouter, Request
 from starlette.responses import Response
 
 from server.app.layouts import KIND_LABELS
+from server.app.levels import history_limits
 from server.app.results import ProjectResults, project_results, results_of
 from server.app.sections import SectionLine, default_section, read_section
 from server.core.bounds import truncated_quantiles
@@ -124,11 +125,15 @@ def section_png(entry: ProjectResults, layout: str, line: SectionLine) -> bytes:
         names = entry.project.ground.boundary_names
         result = entry.result_named(layout)
 
+        limits = history_limits(entry.project, xy)  # maximum/minimum potential levels
+
         def bands(layout_obj) -> list[plots.SectionBand]:
             post = analysis.at_points(xy, layout_obj)
             p50 = truncated_quantiles(post.mean_m, post.std_m, post.lo_m, post.hi_m, 0.5)
             return [
-                plots.SectionBand(name, post.p05_m[:, k], p50[:, k], post.p95_m[:, k])
+                plots.SectionBand(
+                    name, post.p05_m[:, k], p50[:, k], post.p95_m[:, k], *limits.get(k, ())
+                )
                 for k, name in enumerate(names)
             ]
 

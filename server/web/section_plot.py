@@ -27,6 +27,10 @@ class SectionBand:
     p05_m: np.ndarray
     p50_m: np.ndarray
     p95_m: np.ndarray
+    # hard bounds from the site history (the maximum and minimum potential levels as depths),
+    # ``nan`` where no history rule bounds the boundary; None when none does anywhere
+    history_min_m: np.ndarray | None = None
+    history_max_m: np.ndarray | None = None
 
 
 @dataclass(frozen=True)
@@ -95,6 +99,16 @@ def _draw_bands(ax, distance_m: np.ndarray, bands: Sequence[SectionBand]) -> Non
             linewidth=1.3,
             label=f"Base of {band.name}: P50",
         )
+        if band.history_min_m is not None:
+            for edge, which in ((band.history_min_m, "highest"), (band.history_max_m, "lowest")):
+                ax.plot(
+                    distance_m,
+                    edge,
+                    color=colour,
+                    linewidth=1.0,
+                    linestyle=(0, (4, 2)) if which == "highest" else (0, (1, 1.5)),
+                    label=f"Base of {band.name}: {which} potential level (history)",
+                )
 
 
 def _draw_probes(ax, probes: Sequence[SectionProbe], span: float) -> None:

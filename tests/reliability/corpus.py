@@ -1302,3 +1302,59 @@ CASES: list[Case] = API_CASES + UPLOAD_CASES + FORM_CASES + CLI_CASES
 
 def cases_of(channel: str) -> list[Case]:
     return [c for c in CASES if c.channel == channel]
+
+
+# ---------------------------------------------------------------- levels and site history
+
+HISTORY: dict = json.loads((DATA / "history-model.json").read_text())
+RULE = "history[0]"
+
+
+def with_history(path: str, value: object) -> dict:
+    return {"m.json": model_bytes(mutated(path, value, HISTORY))}
+
+
+def history_cli(case_id: str, path: str, value: object, field_: str, words: str) -> Case:
+    return cli(case_id, ["validate", "{dir}/m.json"], with_history(path, value), field_, words)
+
+
+LINE_POINTS = [{"x": float(i), "y": 2.0 * i, "level_m": 3.0} for i in range(4)]
+CLI_CASES += [
+    history_cli("cli-history-level-min-above-max", f"{RULE}.outside.level_min", 5.0,
+                f"{RULE}.outside.level_min", "above level_max"),
+    history_cli("cli-history-unknown-reference", f"{RULE}.environments[0].level_min", "HAT",
+                f"{RULE}.environments[0].level_min", "not a reference level"),
+    history_cli("cli-history-cc-min-above-max", f"{RULE}.settlement.cc.min", 0.9,
+                f"{RULE}.settlement.cc.min", "above max"),
+    history_cli("cli-history-unit-weight-water", f"{RULE}.settlement.unit_weight_kn_m3", 9.81,
+                f"{RULE}.settlement.unit_weight_kn_m3", "water"),
+    history_cli("cli-history-compressible-above", f"{RULE}.settlement.compressible_unit",
+                "Made ground", f"{RULE}.settlement.compressible_unit", "not below"),
+    history_cli("cli-history-basal-compressible", f"{RULE}.settlement.compressible_unit",
+                "Mudstone", f"{RULE}.settlement.compressible_unit", "basal"),
+    history_cli("cli-history-two-ground-points", "ground_level.points",
+                HISTORY["ground_level"]["points"][:2], "ground_level.points", "at least 3"),
+    history_cli("cli-history-collinear-ground-points", "ground_level.points", LINE_POINTS,
+                "ground_level.points", "one line"),
+    history_cli("cli-history-without-ground-level", "ground_level", None, "history",
+                "needs ground_level"),
+    # the fill base 4.1-5.2 m deep outside the marsh, against bounds[0] (0.5-1.8 m)
+    history_cli("cli-history-conflicts-with-bound", f"{RULE}.outside",
+                {"level_min": 0.0, "level_max": 0.5}, RULE, "bounds[0]"),
+    cli("cli-bounds-conflict", ["bounds", "{dir}/m.json", "--at", "150,60"],
+        with_history(f"{RULE}.outside", {"level_min": 0.0, "level_max": 0.5}), RULE,
+        "bounds[0]"),
+    cli("cli-bounds-no-point", ["bounds", "{dir}/m.json"], with_history("name", "x"), "--at"),
+    history_cli("cli-zone-transition-negative", "zones[0].transition_m", -5.0,
+                "zones[0].transition_m", "from 0"),
+    history_cli("cli-zone-transition-text", "zones[0].transition_m", "wide",
+                "zones[0].transition_m", "width in metres"),
+]  # fmt: skip
+API_CASES += [
+    api_create("api-history-unknown-reference",
+               mutated(f"{RULE}.environments[0].level_max", "HAT", HISTORY),
+               f"{RULE}.environments[0].level_max", "not a reference level"),
+    api_create("api-history-collinear-ground", mutated("ground_level.points", LINE_POINTS,
+               HISTORY), "ground_level.points", "one line"),
+]  # fmt: skip
+CASES = API_CASES + UPLOAD_CASES + FORM_CASES + CLI_CASES
