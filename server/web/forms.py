@@ -60,15 +60,20 @@ class FormReader:
             self.problem(path, f"is longer than {max_len} characters")
         return value
 
-    def number(self, name: str, path: str, *, required: bool = True) -> float | str | None:
-        """A float; None when blank (a problem if required); the text as typed when bad."""
+    def number(
+        self, name: str, path: str, *, required: bool = True, money: bool = False
+    ) -> float | str | None:
+        """A float; None when blank (a problem if required); the text as typed when bad.
+
+        A decimal comma is read ("4,5"); for ``money`` thousands separators come first, so
+        "2,500" is 2500 there and 2.5 elsewhere."""
         text = self.raw(name).strip()
         if not text:
             if required:
                 self.problem(path, "is required")
             return None
         try:
-            return read_number(text, path, decimal_comma=True)
+            return read_number(text, path, decimal_comma=True, money=money)
         except InputError as exc:
             self.problems.append(exc)
             return text

@@ -76,9 +76,9 @@ def read_method(reader: FormReader, path: str, method: dict) -> None:
     method["kind"] = reader.choice("kind", f"{path}.kind", METHOD_KINDS)
     method["cost"] = {
         **(method.get("cost") or {}),
-        "mobilisation": reader.number("mobilisation", f"{path}.cost.mobilisation"),
-        "per_location": reader.number("per_location", f"{path}.cost.per_location"),
-        "per_metre": reader.number("per_metre", f"{path}.cost.per_metre"),
+        "mobilisation": reader.number("mobilisation", f"{path}.cost.mobilisation", money=True),
+        "per_location": reader.number("per_location", f"{path}.cost.per_location", money=True),
+        "per_metre": reader.number("per_metre", f"{path}.cost.per_metre", money=True),
     }
     method["metres_per_day"] = reader.number("metres_per_day", f"{path}.metres_per_day")
     method["max_depth_m"] = reader.number("max_depth_m", f"{path}.max_depth_m")

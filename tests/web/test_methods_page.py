@@ -66,6 +66,17 @@ def test_cost_edit_saves_a_revision(client, tiny_id, tiny_model):
     assert last_message(client, tiny_id) == "Changed costs and production of method CPT"
 
 
+def test_costs_typed_with_thousands_separators_are_read_as_money(client, tiny_id, tiny_model):
+    # "2,500" in a cost field is two thousand five hundred, not 2.5 with a decimal comma;
+    # "18,5" (one decimal place) stays a decimal comma
+    method = tiny_model["methods"][1]
+    data = method_form(method, 1, mobilisation="2,500", per_location="1 250", per_metre="18,5")
+    answer = post(client, f"/projects/{tiny_id}/methods/1", with_refusal(data, ["River gravel"]))
+    assert answer.status_code == 200, notice_of(answer.text)
+    cost = model_of(client, tiny_id)["methods"][1]["cost"]
+    assert cost == {"mobilisation": 2500.0, "per_location": 1250.0, "per_metre": 18.5}
+
+
 def test_refusal_units_are_a_multiple_choice(client, tiny_id, tiny_model):
     method = tiny_model["methods"][0]
     data = with_refusal(method_form(method, 1), ["River gravel", "Mudstone"])
