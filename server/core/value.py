@@ -140,6 +140,23 @@ def quantity_cost(
     return float(consequence.rate_per_m3 * cell_area_m2 * g.sum())
 
 
+def unit_normal_linear_loss(u: np.ndarray) -> np.ndarray:
+    """G(u) = phi(u) - u (1 - Phi(u)) = E[max(0, Z - u)], Z ~ N(0, 1) (Raiffa and Schlaifer,
+    Applied Statistical Decision Theory, 1961): ``(...) -> (...)``."""
+    u = np.asarray(u, dtype=float)
+    return np.exp(-0.5 * u * u) / np.sqrt(2.0 * np.pi) - u * ndtr(-u)
+
+
+def _untruncated_expected_excess(m0, spread, std1, z, reference_depth_m, adverse):
+    """E over m' ~ N(m0, spread^2) of g(m' + z std1), the untruncated design depth, in closed
+    form: spread x G(u) with u the standardised distance to the reference (``(c,)``)."""
+    centre = m0 + z * std1
+    gap = centre - reference_depth_m if adverse == "deeper" else reference_depth_m - centre
+    with np.errstate(divide="ignore", invalid="ignore"):
+        loss = spread * unit_normal_linear_loss(-gap / spread)
+    return np.where(spread > 0, loss, np.maximum(gap, 0.0))
+
+
 def expected_quantity_cost(
     mean0_m: np.ndarray,
     var0_m2: np.ndarray,
@@ -172,6 +189,15 @@ def expected_quantity_cost(
     -------
     float
         The expected cost; equal to :func:`quantity_cost` of (m0, v0) when v1 = v0.
+
+    Notes
+    -----
+    g has a kink where the design depth meets the reference depth, and quadrature converges
+    slowly across a kink (about 3% off at 64 nodes in a tail). So the quadrature is applied
+    to the difference between the truncated and the untruncated design depth's g, and the
+    untruncated part is added in closed form, spread x G(u) with G the unit normal linear
+    loss integral: exact when the bounds do not bite, and the remainder's kinks nearly cancel
+    where they bite little.
     """
     x, w = hermegauss(nodes)
     w = w / np.sqrt(2.0 * np.pi)  # weights of N(0, 1)
@@ -179,14 +205,17 @@ def expected_quantity_cost(
         np.asarray(a, dtype=float).reshape(-1) for a in (mean0_m, var0_m2, var1_m2, lo_m, hi_m)
     )
     spread = np.sqrt(np.maximum(v0 - v1, 0.0))
+    std1 = np.sqrt(np.maximum(v1, 0.0))
     q = design_quantile(fractile, adverse)
-    total = 0.0
+    z = float(ndtri(q))
+    r = consequence.reference_depth_m
+    total = float(_untruncated_expected_excess(m0, spread, std1, z, r, adverse).sum())
     for c0 in range(0, len(m0), CELL_CHUNK):
         s = slice(c0, c0 + CELL_CHUNK)
         m_after = m0[s, None] + spread[s, None] * x[None, :]  # (chunk, nodes)
-        std1 = np.sqrt(np.maximum(v1[s], 0.0))[:, None]
-        depth = truncated_quantiles(m_after, std1, lo[s, None], hi[s, None], q)
-        total += float((excess_m(depth, consequence.reference_depth_m, adverse) @ w).sum())
+        depth = truncated_quantiles(m_after, std1[s, None], lo[s, None], hi[s, None], q)
+        remainder = excess_m(depth, r, adverse) - excess_m(m_after + z * std1[s, None], r, adverse)
+        total += float((remainder @ w).sum())
     return float(consequence.rate_per_m3 * cell_area_m2 * total)
 
 
