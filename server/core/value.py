@@ -425,11 +425,9 @@ def condition_average(
     w = solve_triangular(state.chol, c, lower=True, check_finite=False)
     var = max(average.prior_var_m2 - float(w @ w), 0.0)
     m0 = state.observations[0].size
-    mean = (
-        average.prior_mean_m + float(state.residual_white @ w[:m0])
-        if m0
-        else (average.prior_mean_m)
-    )
+    mean = average.prior_mean_m
+    if m0:
+        mean += float(state.residual_white @ w[:m0])
     return mean, var
 
 
