@@ -18,6 +18,7 @@ COMMANDS = {
     "validate": ("validate", "check a model file; exit 0 when valid, 2 otherwise"),
     "posterior": ("posterior", "boundary depths and their uncertainty at points"),
     "evaluate": ("evaluate", "cost, duration and information gain of every layout"),
+    "value": ("value", "design cost now, expected saving and net value of every layout"),
     "optimise": ("optimise", "propose a layout for a budget"),
     "rank": ("rank", "rank hand-made, guidance-grid and optimised options"),
     "schedule": ("schedule", "write the scoping schedule of a layout"),

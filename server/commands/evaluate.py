@@ -92,8 +92,14 @@ def run(args: argparse.Namespace) -> int:
         raise InputError("grid_spacing_m", str(exc)) from None
     if evaluation.grid_notice:
         sys.stderr.write(f"notice: {evaluation.grid_notice}\n")
+    values = None
+    if project.elements:
+        from server.app.value import values_of_evaluation
+
+        values = values_of_evaluation(project, evaluation)
     if args.json:
-        sys.stdout.write(json.dumps(evaluation_json(evaluation), allow_nan=False) + "\n")
+        doc = evaluation_json(evaluation, values)
+        sys.stdout.write(json.dumps(doc, allow_nan=False) + "\n")
     else:
         sys.stdout.write(evaluation_text(evaluation, project.currency) + "\n")
     return 0

@@ -38,6 +38,7 @@ from pydantic import (
 from pyproj import CRS
 
 from server.errors import InputError
+from server.io.model_elements import MAX_ELEMENTS, Element, element_problems
 
 SCHEMA = "probewise/1"
 SHAPES = ("pert", "triangular", "uniform")
@@ -59,6 +60,7 @@ LIST_CAPS = (
     ("exclusions", 500, "exclusions"),
     ("bounds", 200, "bounds"),
     ("boundaries_of_interest", 50, "boundaries of interest"),
+    ("elements", MAX_ELEMENTS, "design elements"),
 )
 MAX_POSITIONS = 100_000  # per geometry
 MAX_VALUES = 5_000_000  # JSON values in the whole file
@@ -467,6 +469,7 @@ class ModelFile(_Base):
     methods: list[Method]
     existing: list[ExistingProbe] = Field(default_factory=list)
     layouts: list[Layout] = Field(default_factory=list)
+    elements: list[Element] = Field(default_factory=list)
 
 
 # ---------------------------------------------------------------- stage 1 and 2: raw checks
@@ -776,6 +779,7 @@ def _reference_problems(m: dict) -> Iterator[InputError]:
                         f"{_num(probe['depth_m'])} m is deeper than the maximum depth of "
                         f"method {_show(probe['method'])} ({_num(limit)} m)",
                     )
+    yield from element_problems(m, site, unit_problem)
 
 
 def _probe_site_problems(
