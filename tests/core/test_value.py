@@ -30,6 +30,13 @@ from scipy.stats import norm, truncnorm
 
 from server.app.to_core import core_polygon, to_core
 from server.core.analysis import ProjectAnalysis
+from server.core.element_average import (
+    average_cross_covariance,
+    condition_average,
+    element_average,
+    lattice_pair_mean,
+    subpoint_offsets_m,
+)
 from server.core.evaluate import GridEvaluator
 from server.core.model import (
     ChoiceConsequence,
@@ -40,13 +47,10 @@ from server.core.model import (
 )
 from server.core.value import (
     ValueEvaluator,
-    element_average,
     element_cells,
     expected_quantity_cost,
-    lattice_pair_mean,
     p_cheaper_allowed,
     quantity_cost,
-    subpoint_offsets_m,
     unit_normal_linear_loss,
 )
 from server.io.model_file import validate_model
@@ -186,8 +190,6 @@ def test_element_average_moments_match_dense_posterior(tiny):
                             ChoiceConsequence(4.0, 1.0, 2.0))  # fmt: skip
     cells = element_cells(evaluator.grid, element)
     avg = element_average(project.ground, evaluator.grid, cells, 1)
-    from server.core.value import average_cross_covariance, condition_average
-
     known_cov = average_cross_covariance(
         project.ground, avg, analysis.baseline.observations[0], analysis.baseline.fields[0]
     )
