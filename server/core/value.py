@@ -187,7 +187,7 @@ def expected_quantity_cost(
     Notes
     -----
     g has a kink where the design depth meets the reference depth, and quadrature converges
-    slowly across a kink (about 3% off at 64 nodes in a tail). So the quadrature is applied
+    slowly across a kink (3-8% off at 64 nodes in a tail). So the quadrature is applied
     to the difference between the truncated and the untruncated design depth's g, and the
     untruncated part is added in closed form, spread x G(u) with G the unit normal linear
     loss integral: exact when the bounds do not bite, and the remainder's kinks nearly cancel
