@@ -363,3 +363,34 @@ def test_choice_with_no_information_is_todays_decision(state, offset):
         m0 + z * math.sqrt(v0) <= t if adverse == "deeper" else (m0 - z * math.sqrt(v0) >= t)
     )
     assert p_cheaper_allowed(m0, v0, v0, p, adverse, t) == (1.0 if allowed_now else 0.0)
+
+
+def test_options_ranked_by_net_value_with_elements(tiny):
+    """With elements, the ranking carries each option's expected saving and net value (those
+    of the value evaluator) and puts the highest net value first; without, neither."""
+    from server.core.options import rank_options
+
+    _, project, analysis, evaluator = tiny
+    element = DesignElement("treat", square(0, 40, 200, 80), 1, "deeper", 0.95,
+                            QuantityConsequence(30.0, 0.0))  # fmt: skip
+    with_elements = replace(project, elements=(element,))
+    cheap = Layout("One CPT", (PlannedProbe("C1", "CPT", 100, 60),))
+    options = [*project.layouts, cheap]
+    kinds = dict.fromkeys((o.name for o in options), "hand")
+    ranked = rank_options(with_elements, options, kinds)
+    assert [o.net_value for o in ranked] == sorted((o.net_value for o in ranked), reverse=True)
+    values = ValueEvaluator(
+        with_elements,
+        evaluator.grid,
+        evaluator.baseline.grid.mean_m,
+        evaluator.baseline.grid.std_m,
+        analysis.baseline,
+    )
+    for o in ranked:
+        result = evaluator.evaluate_layout(next(lay for lay in options if lay.name == o.name))
+        value = values.layout_value(o.name, result.cost, result.grid.std_m)
+        assert o.expected_saving == pytest.approx(value.expected_saving)
+        assert o.net_value == pytest.approx(value.expected_saving - result.cost)
+        assert o.benefit_cost_ratio == pytest.approx(value.expected_saving / result.cost)
+    plain = rank_options(project, options, kinds)
+    assert all(o.net_value is None and o.expected_saving is None for o in plain)
