@@ -9,9 +9,11 @@ when a file is validated.
 
 from __future__ import annotations
 
+import math
 from collections.abc import Callable, Iterator
 from typing import Annotated, Any, Literal
 
+import numpy as np
 import shapely
 from pydantic import AfterValidator, BaseModel, ConfigDict, Field, ValidationError, model_validator
 
@@ -20,6 +22,7 @@ from server.errors import InputError
 MAX_ELEMENTS = 200
 MAX_DEPTH_M = 10_000.0  # as model_file: nothing a site investigation meets
 FRACTILE_MIN, FRACTILE_MAX = 0.5, 0.999
+MAX_CELL_TEST = 1_000_000  # grid centres tested for "the element holds a cell"
 
 
 def _problem(sub: str, text: str) -> ValueError:
@@ -119,8 +122,28 @@ def element_problems(
         problem = unit_problem(element["base_of"])
         if problem:
             yield InputError(f"{at}.base_of", problem)
-        if not shapely.intersection(to_shapely(element["geometry"]), site).area > 0:
+        footprint = to_shapely(element["geometry"])
+        if not shapely.intersection(footprint, site).area > 0:
             yield InputError(f"{at}.geometry", "lies outside the site")
+        elif not _holds_a_cell(site, footprint, float(model["grid_spacing_m"])):
+            yield no_cell_error(i, element["name"])
+
+
+def _holds_a_cell(site: shapely.Geometry, footprint: shapely.Geometry, spacing_m: float) -> bool:
+    """Whether a centre of the evaluation grid (cells aligned to the site's bounding box, as
+    ``server.core.grid`` lays them) lies inside both the site and the footprint."""
+    x0, y0, _, _ = site.bounds
+    fx0, fy0, fx1, fy1 = footprint.bounds
+    cols = np.arange(max(math.floor((fx0 - x0) / spacing_m - 0.5), 0),
+                     math.ceil((fx1 - x0) / spacing_m - 0.5) + 1)  # fmt: skip
+    rows = np.arange(max(math.floor((fy0 - y0) / spacing_m - 0.5), 0),
+                     math.ceil((fy1 - y0) / spacing_m - 0.5) + 1)  # fmt: skip
+    if cols.size * rows.size > MAX_CELL_TEST:
+        return True  # a footprint this large holds cells; the core checks it exactly
+    gx, gy = np.meshgrid(x0 + spacing_m * (cols + 0.5), y0 + spacing_m * (rows + 0.5))
+    inside = shapely.contains_xy(footprint, gx.ravel(), gy.ravel())
+    inside &= shapely.contains_xy(site, gx.ravel(), gy.ravel())
+    return bool(inside.any())
 
 
 def no_cell_error(index: int, name: str) -> InputError:

@@ -394,3 +394,21 @@ def test_options_ranked_by_net_value_with_elements(tiny):
         assert o.benefit_cost_ratio == pytest.approx(value.expected_saving / result.cost)
     plain = rank_options(project, options, kinds)
     assert all(o.net_value is None and o.expected_saving is None for o in plain)
+
+
+def test_element_without_a_cell_is_refused(tiny):
+    """A footprint between cell centres holds no cell: EmptyElementError names it."""
+    from server.core.value import EmptyElementError
+
+    _, project, analysis, evaluator = tiny
+    element = DesignElement("speck", square(1, 1, 2, 2), 1, "deeper", 0.95,
+                            QuantityConsequence(1.0))  # fmt: skip
+    with pytest.raises(EmptyElementError) as err:
+        ValueEvaluator(
+            replace(project, elements=(element,)),
+            evaluator.grid,
+            evaluator.baseline.grid.mean_m,
+            evaluator.baseline.grid.std_m,
+            analysis.baseline,
+        )
+    assert err.value.index == 0 and err.value.name == "speck"
