@@ -100,6 +100,12 @@ def test_value_of_one_layout_and_evaluate_agree(model_path):
     assert entry["cost"] == pytest.approx(one["layouts"][0]["gi_cost"])
 
 
+def test_evaluate_text_shows_the_value_with_elements(model_path):
+    run = run_cli("evaluate", str(model_path))
+    assert run.returncode == 0, run.stderr
+    assert "Expected saving" in run.stdout and "Net value" in run.stdout
+
+
 def test_evaluate_json_without_elements_has_no_value_keys(tmp_path):
     path = tmp_path / "m.json"
     path.write_text(json.dumps(TINY))

@@ -39,7 +39,7 @@ def _boundary_table(boundaries: dict) -> str:
     return format_table(headers, rows)
 
 
-def evaluation_text(evaluation, currency: str) -> str:
+def evaluation_text(evaluation, currency: str, values=None) -> str:
     cur = f" ({currency})" if currency else ""
     grid = evaluation.grid
     parts = [
@@ -72,6 +72,17 @@ def evaluation_text(evaluation, currency: str) -> str:
         "Pareto",
     ]
     parts += ["", "Layouts", format_table(headers, rows) if rows else "(no layouts)"]
+    if values is not None and values.layouts:
+        money = [
+            [v.name, num(v.gi_cost, 0), num(v.expected_saving, 0), num(v.net_value, 0)]
+            for v in values.layouts
+        ]
+        heads = ["Layout", f"Cost{cur}", "Expected saving", "Net value"]
+        parts += [
+            "",
+            "Value (design elements; probewise value for detail)",
+            format_table(heads, money),
+        ]
     names = evaluation.boundary_names
     for r in evaluation.layouts:
         parts += ["", f"Layout: {r.name}", _boundary_table(r.boundaries), ""]
@@ -101,5 +112,5 @@ def run(args: argparse.Namespace) -> int:
         doc = evaluation_json(evaluation, values)
         sys.stdout.write(json.dumps(doc, allow_nan=False) + "\n")
     else:
-        sys.stdout.write(evaluation_text(evaluation, project.currency) + "\n")
+        sys.stdout.write(evaluation_text(evaluation, project.currency, values) + "\n")
     return 0
