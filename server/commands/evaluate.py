@@ -4,6 +4,8 @@ With ``--json`` it prints exactly the document of docs/model-file.md ("CLI outpu
 ``{"baseline": <metrics>, "layouts": [<metrics> + name, cost, metres, duration_days,
 information_gain_bits, gain_per_cost, pareto, probes]}``, plus an optional ``"notice"`` when
 the evaluation grid was coarsened (too many cells); the notice is also printed on stderr.
+When the model has design elements each layout also carries ``expected_saving`` and
+``net_value`` (``probewise value`` gives the detail).
 Without ``--json``, readable tables.
 """
 
