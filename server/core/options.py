@@ -131,6 +131,8 @@ class RankedOption:
     # with design elements (docs/model.md "The value of an investigation"), else None:
     expected_saving: float | None = None
     net_value: float | None = None
+    # (choice element name, probability the readings allow its cheaper design)
+    p_cheaper_allowed: tuple[tuple[str, float], ...] = ()
 
     @property
     def benefit_cost_ratio(self) -> float | None:
@@ -193,6 +195,7 @@ def rank_options(
         results.append(evaluator.evaluate_layout(layout))
     flags = pareto_flags([r.cost for r in results], [r.information_gain_bits for r in results])
     savings: list[float | None] = [None] * len(results)
+    chances: list[tuple[tuple[str, float], ...]] = [()] * len(results)
     if project.elements:
         if evaluator is None:
             evaluator = GridEvaluator(project)
@@ -203,8 +206,13 @@ def rank_options(
             evaluator.baseline.grid.std_m,
             evaluator.analysis.baseline,
         )
-        savings = [
-            v.expected_saving for v in layout_values(values, evaluator.analysis, options, results)
+        worth = layout_values(values, evaluator.analysis, options, results)
+        savings = [v.expected_saving for v in worth]
+        chances = [
+            tuple(
+                (e.name, e.p_cheaper_allowed) for e in v.elements if e.p_cheaper_allowed is not None
+            )
+            for v in worth
         ]
     ranked = [
         RankedOption(
@@ -219,8 +227,11 @@ def rank_options(
             n_probes=len(layout.probes),
             expected_saving=saving,
             net_value=None if saving is None else saving - r.cost,
+            p_cheaper_allowed=chance,
         )
-        for layout, r, flag, saving in zip(options, results, flags, savings, strict=True)
+        for layout, r, flag, saving, chance in zip(
+            options, results, flags, savings, chances, strict=True
+        )
     ]
     if project.elements:
         return sorted(ranked, key=lambda o: (-o.net_value, o.cost, o.name))

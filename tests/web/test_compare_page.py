@@ -64,6 +64,8 @@ def test_ranking_shows_saving_and_net_value_of_the_design_elements(client, demo_
         saving = format_money_whole(option.expected_saving)
         assert f'<td class="num saving">{saving}</td>' in row
         assert f'<td class="num net-value">{format_money_whole(option.net_value)}</td>' in row
+        [(name, chance)] = option.p_cheaper_allowed  # the culvert bed is the demo's choice
+        assert f"{html.escape(name)}: {100 * chance:.0f}%" in row
 
 
 def test_default_option_is_the_best_value_pareto_option(client, demo_model):
