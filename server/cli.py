@@ -20,6 +20,7 @@ COMMANDS = {
     "posterior": ("posterior", "boundary depths and their uncertainty at points"),
     "bounds": ("bounds", "hard bounds on boundary depths at points, with their sources"),
     "evaluate": ("evaluate", "cost, duration and information gain of every layout"),
+    "value": ("value", "design cost now, expected saving and net value of every layout"),
     "optimise": ("optimise", "propose a layout for a budget"),
     "rank": ("rank", "rank hand-made, guidance-grid and optimised options"),
     "schedule": ("schedule", "write the scoping schedule of a layout"),

@@ -48,16 +48,59 @@ def layout_json(result, boundary_names: tuple[str, ...]) -> dict:
     return out
 
 
-def evaluation_json(evaluation) -> dict:
-    """The ``--json`` document; ``notice`` only when the grid was coarsened."""
+def evaluation_json(evaluation, values=None) -> dict:
+    """The ``--json`` document; ``notice`` only when the grid was coarsened; with ``values``
+    (a ``ValueReport`` of the same layouts, when the model has design elements) each layout
+    also carries ``expected_saving`` and ``net_value``."""
     names = evaluation.boundary_names
-    out = {
-        "baseline": metrics_json(evaluation.baseline.boundaries),
-        "layouts": [layout_json(r, names) for r in evaluation.layouts],
-    }
+    layouts = [layout_json(r, names) for r in evaluation.layouts]
+    if values is not None:
+        for entry, value in zip(layouts, values.layouts, strict=True):
+            entry.update(expected_saving=value.expected_saving, net_value=value.net_value)
+    out = {"baseline": metrics_json(evaluation.baseline.boundaries), "layouts": layouts}
     notice = getattr(evaluation, "grid_notice", None)
     if notice:
         out["notice"] = notice
+    return out
+
+
+def value_json(report) -> dict:
+    """The ``probewise value --json`` document (``p_cheaper_allowed`` on choice elements
+    only); ``notice`` only when the grid was coarsened."""
+    out = {
+        "currency": report.currency,
+        "elements": [
+            {"name": name, "cells": cells, "cost_now": cost}
+            for name, cells, cost in report.elements
+        ],
+        "layouts": [
+            {
+                "name": v.name,
+                "gi_cost": v.gi_cost,
+                "design_cost_now": v.design_cost_now,
+                "design_cost_expected": v.design_cost_expected,
+                "expected_saving": v.expected_saving,
+                "net_value": v.net_value,
+                "elements": [
+                    {
+                        "name": e.name,
+                        "cost_now": e.cost_now,
+                        "cost_expected": e.cost_expected,
+                        "expected_saving": e.expected_saving,
+                    }
+                    | (
+                        {}
+                        if e.p_cheaper_allowed is None
+                        else {"p_cheaper_allowed": e.p_cheaper_allowed}
+                    )
+                    for e in v.elements
+                ],
+            }
+            for v in report.layouts
+        ],
+    }
+    if report.grid_notice:
+        out["notice"] = report.grid_notice
     return out
 
 

@@ -24,7 +24,9 @@ from server.core.evaluate import GridEvaluator, LayoutResult, with_pareto
 from server.core.grid import EmptyGridError
 from server.core.model import Layout, Project
 from server.core.options import RankedOption, rank_options
+from server.core.value import EmptyElementError
 from server.errors import InputError
+from server.io.model_elements import no_cell_error
 from server.store import StoredProject, get_project
 
 MAX_ENTRIES = 16  # project revisions kept (a few MB each on the demo)
@@ -103,13 +105,16 @@ class ProjectResults:
         with self._lock:
             if self._ranking is None:
                 known = {r.name: r for r in self.results()}
-                self._ranking = rank_options(
-                    self.project,
-                    self.project.layouts,
-                    self.kinds(),
-                    evaluator=self.evaluator,
-                    known=known,
-                )
+                try:
+                    self._ranking = rank_options(
+                        self.project,
+                        self.project.layouts,
+                        self.kinds(),
+                        evaluator=self.evaluator,
+                        known=known,
+                    )
+                except EmptyElementError as exc:  # a grid coarsened past an element
+                    raise no_cell_error(exc.index, exc.name) from None
             return self._ranking
 
     def default_layout(self) -> str | None:

@@ -19,8 +19,10 @@ from server.core.history import reference_level_m
 from server.core.model import (
     AreaOfInterest,
     BoundaryOfInterest,
+    ChoiceConsequence,
     Correlation,
     DepthBound,
+    DesignElement,
     ExistingProbe,
     FormerEnvironment,
     GroundLevel,
@@ -31,6 +33,7 @@ from server.core.model import (
     PlannedProbe,
     Polygon,
     Project,
+    QuantityConsequence,
     Settlement,
     Site,
     ThicknessRange,
@@ -248,6 +251,30 @@ def core_layout(spec: dict) -> Layout:
     )
 
 
+def core_element(spec: dict, model: dict) -> DesignElement:
+    """A design element: its boundary by index, its consequence as a dataclass."""
+    con = spec["consequence"]
+    if con["kind"] == "quantity":
+        consequence = QuantityConsequence(
+            float(con["rate_per_m3"]), float(con.get("reference_depth_m", 0.0))
+        )
+    else:
+        consequence = ChoiceConsequence(
+            float(con["threshold_depth_m"]),
+            float(con["cheaper_cost"]),
+            float(con["robust_cost"]),
+            con.get("basis", "mean"),
+        )
+    return DesignElement(
+        name=spec["name"],
+        polygon=core_polygon(spec["geometry"]),
+        boundary=_unit_index(model)[spec["base_of"]],
+        adverse=spec["adverse"],
+        design_fractile=float(spec.get("design_fractile", 0.95)),
+        consequence=consequence,
+    )
+
+
 def to_core(model: dict) -> Project:
     """The whole validated model dict as a core Project."""
     methods = {m["id"]: core_method(m, model) for m in model.get("methods") or []}
@@ -270,6 +297,7 @@ def to_core(model: dict) -> Project:
         methods=methods,
         existing=tuple(core_existing(e, model, methods) for e in model.get("existing") or []),
         layouts=tuple(core_layout(lay) for lay in model.get("layouts") or []),
+        elements=tuple(core_element(e, model) for e in model.get("elements") or []),
     )
     check_history_bounds(project)
     return project

@@ -4,6 +4,8 @@ With ``--json`` it prints exactly the document of docs/model-file.md ("CLI outpu
 ``{"baseline": <metrics>, "layouts": [<metrics> + name, cost, metres, duration_days,
 information_gain_bits, gain_per_cost, pareto, probes]}``, plus an optional ``"notice"`` when
 the evaluation grid was coarsened (too many cells); the notice is also printed on stderr.
+When the model has design elements each layout also carries ``expected_saving`` and
+``net_value`` (``probewise value`` gives the detail).
 Without ``--json``, readable tables.
 """
 
@@ -39,7 +41,7 @@ def _boundary_table(boundaries: dict) -> str:
     return format_table(headers, rows)
 
 
-def evaluation_text(evaluation, currency: str) -> str:
+def evaluation_text(evaluation, currency: str, values=None) -> str:
     cur = f" ({currency})" if currency else ""
     grid = evaluation.grid
     parts = [
@@ -72,6 +74,17 @@ def evaluation_text(evaluation, currency: str) -> str:
         "Pareto",
     ]
     parts += ["", "Layouts", format_table(headers, rows) if rows else "(no layouts)"]
+    if values is not None and values.layouts:
+        money = [
+            [v.name, num(v.gi_cost, 0), num(v.expected_saving, 0), num(v.net_value, 0)]
+            for v in values.layouts
+        ]
+        heads = ["Layout", f"Cost{cur}", "Expected saving", "Net value"]
+        parts += [
+            "",
+            "Value (design elements; probewise value for detail)",
+            format_table(heads, money),
+        ]
     names = evaluation.boundary_names
     for r in evaluation.layouts:
         parts += ["", f"Layout: {r.name}", _boundary_table(r.boundaries), ""]
@@ -92,8 +105,14 @@ def run(args: argparse.Namespace) -> int:
         raise InputError("grid_spacing_m", str(exc)) from None
     if evaluation.grid_notice:
         sys.stderr.write(f"notice: {evaluation.grid_notice}\n")
+    values = None
+    if project.elements:
+        from server.app.value import values_of_evaluation
+
+        values = values_of_evaluation(project, evaluation)
     if args.json:
-        sys.stdout.write(json.dumps(evaluation_json(evaluation), allow_nan=False) + "\n")
+        doc = evaluation_json(evaluation, values)
+        sys.stdout.write(json.dumps(doc, allow_nan=False) + "\n")
     else:
-        sys.stdout.write(evaluation_text(evaluation, project.currency) + "\n")
+        sys.stdout.write(evaluation_text(evaluation, project.currency, values) + "\n")
     return 0

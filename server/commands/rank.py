@@ -5,7 +5,9 @@ on a regular grid, ``--guidance CPT:25``) and optimised layouts at the given bud
 the cost of each hand-made layout), all evaluated on the same grid. Prints a table sorted by
 cost with duration, information gain, gain per cost and the Pareto flag, or with ``--json``
 ``{"options": [{"name", "kind", "n_probes", "cost", "metres", "duration_days",
-"information_gain_bits", "gain_per_cost", "pareto"}], "budgets": [...]}``.
+"information_gain_bits", "gain_per_cost", "pareto"}], "budgets": [...]}``. With design
+elements each option also carries ``expected_saving`` and ``net_value`` and the options are
+sorted by net value (docs/model.md "The value of an investigation").
 """
 
 from __future__ import annotations
@@ -89,6 +91,11 @@ def ranking_json(ranked, budgets) -> dict:
                 "gain_per_cost": o.gain_per_cost,
                 "pareto": o.pareto,
             }
+            | (
+                {}
+                if o.net_value is None
+                else {"expected_saving": o.expected_saving, "net_value": o.net_value}
+            )
             for o in ranked
         ],
         "budgets": list(budgets),
@@ -108,8 +115,10 @@ def ranking_text(ranked, currency: str) -> str:
             "-" if o.gain_per_cost is None else f"{1000 * o.gain_per_cost:.4f}",
             "yes" if o.pareto else "no",
         ]
+        + ([] if o.net_value is None else [f"{o.expected_saving:,.0f}", f"{o.net_value:,.0f}"])
         for o in ranked
     ]
+    by_value = bool(ranked) and ranked[0].net_value is not None
     headers = [
         "Option",
         "Kind",
@@ -119,10 +128,11 @@ def ranking_text(ranked, currency: str) -> str:
         "Gain (bits)",
         f"Bits per 1000 {currency}".rstrip(),
         "Pareto",
-    ]
+    ] + (["Expected saving", "Net value"] if by_value else [])
+    order = "net value (expected saving less cost)" if by_value else "cost"
     return "\n".join(
         [
-            "Options ranked by cost (Pareto: no other option gains as much for less)",
+            f"Options ranked by {order} (Pareto: no other option gains as much for less)",
             format_table(headers, rows, left=2),
             "",
             CAUTION_LINE,
@@ -134,6 +144,8 @@ def run(args: argparse.Namespace) -> int:
     from server.core.grid import EmptyGridError
     from server.core.optimise import OptimiseError, optimise, prepare_optimisation
     from server.core.options import rank_options
+    from server.core.value import EmptyElementError
+    from server.io.model_elements import no_cell_error
 
     _, project = load_project(args.model)
     budgets = parse_budgets(args.budgets)
@@ -177,6 +189,8 @@ def run(args: argparse.Namespace) -> int:
         ranked = rank_options(project, hand + guidance + optimised, kinds, evaluator, known)
     except (OptimiseError, EmptyGridError) as exc:
         raise optimiser_input_error(exc) from None
+    except EmptyElementError as exc:
+        raise no_cell_error(exc.index, exc.name) from None
     finally:
         bar.close()
     if args.json:

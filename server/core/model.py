@@ -230,6 +230,40 @@ class Site:
 
 
 @dataclass(frozen=True)
+class QuantityConsequence:
+    """Works whose quantity follows the design depth: rate per m3 times cell area times the
+    depth past (deeper adverse) or short of (shallower adverse) a reference depth (m)."""
+
+    rate_per_m3: float
+    reference_depth_m: float = 0.0
+
+
+@dataclass(frozen=True)
+class ChoiceConsequence:
+    """A cheaper design allowed when the design level of the element's mean boundary depth
+    is on the right side of a threshold depth (m); otherwise the robust one."""
+
+    threshold_depth_m: float
+    cheaper_cost: float
+    robust_cost: float
+    basis: str = "mean"
+
+
+@dataclass(frozen=True, eq=False)
+class DesignElement:
+    """A part of the works whose cost follows one boundary (docs/model.md "The value of an
+    investigation"): ``adverse`` is "deeper" or "shallower"; ``design_fractile`` p in
+    [0.5, 1)."""
+
+    name: str
+    polygon: Polygon
+    boundary: int
+    adverse: str
+    design_fractile: float
+    consequence: QuantityConsequence | ChoiceConsequence
+
+
+@dataclass(frozen=True)
 class Project:
     name: str
     crs: str | None
@@ -239,6 +273,7 @@ class Project:
     methods: dict[str, Method]
     existing: tuple[ExistingProbe, ...] = ()
     layouts: tuple[Layout, ...] = field(default_factory=tuple)
+    elements: tuple[DesignElement, ...] = ()
 
     @property
     def origin(self) -> tuple[float, float]:

@@ -18,6 +18,7 @@ import numpy as np
 from server.core.evaluate import GridEvaluator, LayoutResult, pareto_flags
 from server.core.model import Layout, PlannedProbe, Project
 from server.core.optimise import candidate_locations
+from server.core.value import ValueEvaluator, layout_values
 
 KINDS = ("hand", "guidance", "optimised")
 MAX_GUIDANCE_PROBES = 5000  # more is no guidance grid anyone would price
@@ -127,6 +128,18 @@ class RankedOption:
     gain_per_cost: float | None
     pareto: bool
     n_probes: int
+    # with design elements (docs/model.md "The value of an investigation"), else None:
+    expected_saving: float | None = None
+    net_value: float | None = None
+    # (choice element name, probability the readings allow its cheaper design)
+    p_cheaper_allowed: tuple[tuple[str, float], ...] = ()
+
+    @property
+    def benefit_cost_ratio(self) -> float | None:
+        """Expected saving per unit of investigation cost; 1 is break-even."""
+        if self.expected_saving is None or self.cost <= 0:
+            return None
+        return self.expected_saving / self.cost
 
 
 def rank_options(
@@ -154,12 +167,15 @@ def rank_options(
     Returns
     -------
     list of RankedOption
-        Sorted by cost (then by gain, highest first); Pareto flags over all options.
+        Sorted by cost (then by gain, highest first); Pareto flags over all options. With
+        design elements: expected saving and net value set, sorted by net value (highest
+        first, then by cost).
 
     Raises
     ------
     ValueError
-        Duplicate option names, or a kind missing or not one of ``KINDS``.
+        Duplicate option names, or a kind missing or not one of ``KINDS``;
+        ``server.core.value.EmptyElementError`` when an element holds no cell.
     """
     names = [o.name for o in options]
     if len(set(names)) != len(names):
@@ -178,6 +194,26 @@ def rank_options(
             evaluator = GridEvaluator(project)
         results.append(evaluator.evaluate_layout(layout))
     flags = pareto_flags([r.cost for r in results], [r.information_gain_bits for r in results])
+    savings: list[float | None] = [None] * len(results)
+    chances: list[tuple[tuple[str, float], ...]] = [()] * len(results)
+    if project.elements:
+        if evaluator is None:
+            evaluator = GridEvaluator(project)
+        values = ValueEvaluator(
+            project,
+            evaluator.grid,
+            evaluator.baseline.grid.mean_m,
+            evaluator.baseline.grid.std_m,
+            evaluator.analysis.baseline,
+        )
+        worth = layout_values(values, evaluator.analysis, options, results)
+        savings = [v.expected_saving for v in worth]
+        chances = [
+            tuple(
+                (e.name, e.p_cheaper_allowed) for e in v.elements if e.p_cheaper_allowed is not None
+            )
+            for v in worth
+        ]
     ranked = [
         RankedOption(
             name=layout.name,
@@ -189,7 +225,14 @@ def rank_options(
             gain_per_cost=r.gain_per_cost,
             pareto=flag,
             n_probes=len(layout.probes),
+            expected_saving=saving,
+            net_value=None if saving is None else saving - r.cost,
+            p_cheaper_allowed=chance,
         )
-        for layout, r, flag in zip(options, results, flags, strict=True)
+        for layout, r, flag, saving, chance in zip(
+            options, results, flags, savings, chances, strict=True
+        )
     ]
+    if project.elements:
+        return sorted(ranked, key=lambda o: (-o.net_value, o.cost, o.name))
     return sorted(ranked, key=lambda o: (o.cost, -o.information_gain_bits, o.name))

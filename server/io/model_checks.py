@@ -95,7 +95,7 @@ def raw_problems(data: object) -> Iterator[tuple[InputError, bool]]:
 # ---------------------------------------------------------------- stage 3: pydantic errors
 
 
-def _plain_message(err: dict) -> tuple[str, str]:
+def plain_message(err: dict) -> tuple[str, str]:
     """(extra path, plain message) for one pydantic error."""
     kind = err["type"]
     ctx = err.get("ctx") or {}
@@ -148,7 +148,7 @@ def _plain_message(err: dict) -> tuple[str, str]:
 def structure_problems(exc: ValidationError) -> list[InputError]:
     out = []
     for err in exc.errors(include_url=False):
-        sub, problem = _plain_message(err)
+        sub, problem = plain_message(err)
         field = join_path(field_path(err["loc"]), sub)
         out.append(InputError(field or "MODEL", problem))
     return out

@@ -22,6 +22,7 @@ MAX_UNITS = 20
 MAX_EXISTING = 5000
 MAX_LAYOUTS = 200
 MAX_LAYOUT_PROBES = 2000
+MAX_ELEMENTS = 200
 LIST_CAPS = (
     ("units", MAX_UNITS, "units"),
     ("existing", MAX_EXISTING, "existing probes"),
@@ -32,6 +33,7 @@ LIST_CAPS = (
     ("exclusions", 500, "exclusions"),
     ("bounds", 200, "bounds"),
     ("boundaries_of_interest", 50, "boundaries of interest"),
+    ("elements", MAX_ELEMENTS, "design elements"),
 )
 MAX_POSITIONS = 100_000  # per geometry
 MAX_VALUES = 5_000_000  # JSON values in the whole file
@@ -59,6 +61,7 @@ TOP_KEYS = (
     "methods",
     "existing",
     "layouts",
+    "elements",
 )
 
 

@@ -19,6 +19,7 @@ import shapely
 
 from server.errors import InputError
 from server.io.model_common import MAX_GRID_CELLS, names_text, number_text, path_key, show_value
+from server.io.model_elements import element_problems
 from server.io.model_geometry import to_shapely
 
 
@@ -265,6 +266,10 @@ def probe_site_problems(
         )
 
 
+def _element_problems(m: dict, refs: References) -> Iterator[InputError]:
+    yield from element_problems(m, refs.site, refs.unit_problem)
+
+
 ReferenceCheck = Callable[[dict, References], Iterator[InputError]]
 
 # One check per section, units first, then document order.
@@ -275,6 +280,7 @@ REFERENCE_CHECKS: list[ReferenceCheck] = [
     _method_problems,
     _existing_problems,
     _layout_problems,
+    _element_problems,
 ]
 
 

@@ -22,6 +22,7 @@ from server.io.model_common import (
     number_text,
     show_value,
 )
+from server.io.model_elements import Element
 from server.io.model_geometry import check_crs, check_polygon, check_site_geometry
 
 
@@ -210,3 +211,4 @@ class ModelFile(_Base):
     methods: list[Method]
     existing: list[ExistingProbe] = Field(default_factory=list)
     layouts: list[Layout] = Field(default_factory=list)
+    elements: list[Element] = Field(default_factory=list)

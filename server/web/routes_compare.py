@@ -211,6 +211,10 @@ def ranking_rows(entry: ProjectResults, chosen: str | None) -> list[dict[str, An
                 else 1000.0 * option.gain_per_cost,
                 "pareto": option.pareto,
                 "chosen": option.name == chosen,
+                "expected_saving": option.expected_saving,
+                "net_value": option.net_value,
+                "benefit_cost": option.benefit_cost_ratio,
+                "p_cheaper": option.p_cheaper_allowed,
             }
         )
     return rows

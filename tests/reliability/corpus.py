@@ -1297,6 +1297,50 @@ CLI_CASES += [
         "--mapping-text", "AGS files"),
 ]  # fmt: skip
 
+# Design elements (docs/model-file.md "Design elements"); the elements are invented.
+ELEMENT = {
+    "name": "Culvert bed",
+    "geometry": square(60, 50, 140, 70),
+    "base_of": "Alluvial clay",
+    "adverse": "deeper",
+    "consequence": {
+        "kind": "choice",
+        "threshold_depth_m": 4.5,
+        "cheaper_cost": 20000,
+        "robust_cost": 90000,
+    },
+}
+WITH_ELEMENT = dict(TINY, elements=[ELEMENT])
+VALUE = ["value", "{dir}/m.json", "--json"]
+
+
+def element_case(case_id: str, path: str, value: object, field_: str, words: str) -> Case:
+    return cli(
+        case_id, VALUE, {"m.json": model_bytes(mutated(path, value, WITH_ELEMENT))}, field_, words
+    )
+
+
+CLI_CASES += [
+    element_case("cli-value-fractile-low", "elements[0].design_fractile", 0.3,
+                 "elements[0].design_fractile", ">= 0.5"),
+    element_case("cli-value-fractile-high", "elements[0].design_fractile", 1.0,
+                 "elements[0].design_fractile", "<= 0.999"),
+    element_case("cli-value-robust-below-cheaper", "elements[0].consequence.robust_cost", 10,
+                 "elements[0].consequence.robust_cost", "below cheaper_cost"),
+    element_case("cli-value-element-outside-site", "elements[0].geometry",
+                 square(500, 500, 600, 600), "elements[0].geometry", "outside the site"),
+    element_case("cli-value-unknown-boundary", "elements[0].base_of", "Peat",
+                 "elements[0].base_of", "not one of the units"),
+    element_case("cli-value-element-no-cell", "elements[0].geometry", square(1, 1, 2, 2),
+                 "elements[0].geometry", "no evaluation cell centre"),
+    element_case("cli-value-unknown-kind", "elements[0].consequence.kind", "lump sum",
+                 "elements[0].consequence.kind", "quantity"),
+    cli("cli-value-unknown-layout", [*VALUE, "--layout", "Nine boreholes"],
+        {"m.json": model_bytes(WITH_ELEMENT)}, "--layout", "no layout named"),
+    cli("cli-value-no-elements", VALUE, {"m.json": model_bytes(TINY)}, "elements",
+        "no design elements"),
+]  # fmt: skip
+
 CASES: list[Case] = API_CASES + UPLOAD_CASES + FORM_CASES + CLI_CASES
 
 

@@ -50,6 +50,23 @@ def test_ranking_numbers_agree_with_the_core(client, demo_model):
         assert ("pareto-yes" in row) == option.pareto
 
 
+def test_ranking_shows_saving_and_net_value_of_the_design_elements(client, demo_model):
+    """The demo has design elements: options come by net value with the core's figures."""
+    assert demo_model["elements"]
+    text = results(client, 1)
+    assert "Options ranked by net value" in text
+    project = to_core(demo_model)
+    kinds = {lay["name"]: layout_kind(lay) for lay in demo_model["layouts"]}
+    ranked = rank_options(project, project.layouts, kinds)
+    rows = re.findall(r'<tr class="[^"]*" data-option="([^"]+)">(.*?)</tr>', text, re.S)
+    for (_, row), option in zip(rows, ranked, strict=True):
+        saving = format_money_whole(option.expected_saving)
+        assert f'<td class="num saving">{saving}</td>' in row
+        assert f'<td class="num net-value">{format_money_whole(option.net_value)}</td>' in row
+        [(name, chance)] = option.p_cheaper_allowed  # the culvert bed is the demo's choice
+        assert f"{html.escape(name)}: {100 * chance:.0f}%" in row
+
+
 def test_default_option_is_the_best_value_pareto_option(client, demo_model):
     project = to_core(demo_model)
     evaluation = evaluate_project(project)
