@@ -14,6 +14,7 @@ import geopandas
 import numpy as np
 import pyogrio
 import pytest
+from caution_check import assert_caution
 from io_builders import placed_model
 from pyproj import Transformer
 
@@ -72,7 +73,7 @@ def test_schedule_geojson_is_rfc7946_wgs84(rows, tmp_path):
     doc = exports.write_schedule_geojson(rows, "EPSG:27700")
     assert doc["type"] == "FeatureCollection" and len(doc["features"]) == 2
     assert "crs" not in doc and doc["project_crs"] == "EPSG:27700"
-    assert "qualified geotechnical professional" in doc["caution"]
+    assert_caution(doc["caution"])
     to_bng = Transformer.from_crs("EPSG:4326", "EPSG:27700", always_xy=True)
     for feat, row in zip(doc["features"], rows, strict=True):
         lon, lat = feat["geometry"]["coordinates"]
@@ -83,6 +84,26 @@ def test_schedule_geojson_is_rfc7946_wgs84(rows, tmp_path):
     path.write_text(json.dumps(doc))
     frame = geopandas.read_file(path)
     assert frame.crs.to_epsg() == 4326 and list(frame["id"]) == ["BH01", "CPT01"]
+
+
+def test_schedule_geojson_places_a_published_grid_point(tiny_model):
+    """Ordnance Survey, "A guide to coordinate systems in Great Britain", worked example of the
+    National Grid projection (from memory): Caister water tower, E 651409.903 m, N 313177.270 m,
+    is at 52 39' 27.2531" N, 1 43' 4.5177" E on the OSGB36 datum (Airy 1830).
+
+    The export gives WGS 84; taken back to OSGB36 latitude and longitude by pyproj's datum shift
+    alone (no projection), the point must be the published one.
+    """
+    point = {**PLANNED[0], "x": 651_409.903, "y": 313_177.270}
+    [row] = exports.schedule_rows([point], placed_model(tiny_model))
+    [feature] = exports.write_schedule_geojson([row], "EPSG:27700")["features"]
+    lon, lat = feature["geometry"]["coordinates"]
+    to_osgb36 = Transformer.from_crs("EPSG:4326", "EPSG:4277", always_xy=True)
+    lon36, lat36 = to_osgb36.transform(lon, lat)
+    assert lat36 == pytest.approx(52 + 39 / 60 + 27.2531 / 3600, abs=1e-7)  # ~1 cm
+    assert lon36 == pytest.approx(1 + 43 / 60 + 4.5177 / 3600, abs=1e-7)
+    # and WGS 84 is not OSGB36: the datum shift here is tens of metres, not zero
+    assert abs(lon - lon36) > 5e-4
 
 
 def test_schedule_geojson_in_project_crs_with_crs_member(rows, tmp_path):

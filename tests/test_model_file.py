@@ -386,7 +386,10 @@ def test_probe_on_the_site_boundary_counts_as_inside():
 def test_existing_probe_inside_an_exclusion_is_allowed():
     model = changed(["existing", 0, "x"], 170)
     model["existing"][0]["y"] = 100
-    validate_model(model)
+    normal = validate_model(model)
+    # kept where it was found (a record of the past, not a proposal) and not noted
+    assert (normal["existing"][0]["x"], normal["existing"][0]["y"]) == (170.0, 100.0)
+    assert not any(note.startswith("existing") for note in list_notes(normal))
 
 
 def test_planned_probe_inside_an_exclusion_is_allowed_and_noted():
@@ -664,7 +667,9 @@ def test_random_mutation_validates_or_raises_input_error(path, value):
 def test_equal_observed_depths_record_an_absent_unit(tiny_model):
     """A unit may be absent at a probe (thickness min 0): equal base depths are valid."""
     tiny_model["existing"][0]["observed"]["Alluvial clay"] = 1.1  # same as Made ground
-    validate_model(tiny_model)
+    observed = validate_model(tiny_model)["existing"][0]["observed"]
+    assert observed["Made ground"] == observed["Alluvial clay"] == 1.1
+    assert observed["River gravel"] == 6.2  # the rest of the record untouched
 
 
 @pytest.mark.parametrize(
