@@ -1,6 +1,6 @@
 """Hard bounds on boundary depths and quantiles of the truncated Gaussian posterior.
 
-Bounds (DESIGN.md "Probability model"): D_k(x) lies in [sum of unit minima, sum of unit maxima]
+Bounds (docs/model.md "Probability model"): D_k(x) lies in [sum of unit minima, sum of unit maxima]
 of units 1..k (zone overrides applied), intersected with every user bound on boundary k that
 applies at x (everywhere, or inside its polygon). Should a user bound not overlap the range
 from the thicknesses at all, the user bound is kept: it is the engineer's explicit statement

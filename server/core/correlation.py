@@ -1,7 +1,7 @@
 """Correlation of a unit's thickness with horizontal distance, practical-range convention.
 
 The practical range r is the distance at which the correlation falls to about 5%
-(DESIGN.md "Probability model"):
+(docs/model.md "Probability model"):
 
 - exponential: exp(-3 h / r);
 - gaussian: exp(-3 h^2 / r^2);

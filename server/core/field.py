@@ -1,7 +1,7 @@
 """Unit thickness priors at points: mean, std, min and max with zone overrides.
 
 A point takes the first zone (in order) that contains it; a unit that zone overrides takes
-the zone's range there, every other unit its default range (DESIGN.md "Probability model").
+the zone's range there, every other unit its default range (docs/model.md "Probability model").
 """
 
 from __future__ import annotations

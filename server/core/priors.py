@@ -1,6 +1,6 @@
 """Thickness priors: mean and standard deviation of a unit's thickness from its range.
 
-Closed forms of DESIGN.md "Probability model" for the range (min a, likely b, max c):
+Closed forms of docs/model.md "Probability model" for the range (min a, likely b, max c):
 
 - uniform: mean (a+c)/2, variance (c-a)^2/12;
 - triangular: mean (a+b+c)/3, variance (a^2+b^2+c^2-ab-ac-bc)/18;
