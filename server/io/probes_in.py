@@ -267,7 +267,7 @@ def _read_table(data: bytes, filename: str) -> tuple[list[str], list[tuple[int, 
 
 
 def _read_xlsx(data: bytes, filename: str) -> tuple[list[str], list[tuple[int, list[str]]], str]:
-    import openpyxl  # comes with python-ags4
+    import openpyxl  # a declared dependency (pyproject.toml)
 
     try:
         book = openpyxl.load_workbook(io.BytesIO(data), read_only=True, data_only=True)
