@@ -3,11 +3,13 @@
 Every screen, printout and export that informs design carries a caution (docs/model.md, "What
 the numbers are not"). The checks below hold the program to what the caution must say, so a
 caution rewritten as "Be careful." fails them. Text is compared after undoing HTML escaping,
-dropping tags and collapsing whitespace (wrapped lines, indentation, CSV comment prefixes).
+dropping tags, undoing typographic ligatures (text read back from a PDF) and collapsing
+whitespace (wrapped lines, indentation, comment prefixes).
 """
 
 import html
 import re
+import unicodedata
 
 # What the caution must say, in this order: who judges, what governs, what to do before digging.
 CAUTION_PHRASES = (
@@ -31,7 +33,7 @@ _PATTERN = re.compile(
 def plain_text(text: str) -> str:
     """``text`` with tags dropped, entities undone, comment marks removed and spaces collapsed."""
     text = re.sub(r"<[^>]+>", " ", text)
-    text = html.unescape(text)
+    text = unicodedata.normalize("NFKC", html.unescape(text))  # PDF ligatures: "ﬁ" -> "fi"
     text = re.sub(r"(?m)^\s*#", " ", text)  # CSV and text comments wrap the caution over lines
     return " ".join(text.split())
 
