@@ -49,12 +49,16 @@ def server_url(tmp_path_factory) -> Iterator[str]:
     """Base URL of a real server over a fresh database (the demo project seeded)."""
     folder = tmp_path_factory.mktemp("served")
     port = free_port()
-    try:
-        process = start_server(
-            folder / "browser.db", port, folder / "serve.log", probe_path="/", cwd=folder
-        )
-    except ServerStartError as exc:
-        pytest.fail(str(exc))
+    # the server runs this checkout's code, whichever checkout the environment was installed from
+    path = os.pathsep.join(filter(None, [str(ROOT), os.environ.get("PYTHONPATH")]))
+    with pytest.MonkeyPatch.context() as patch:
+        patch.setenv("PYTHONPATH", path)
+        try:
+            process = start_server(
+                folder / "browser.db", port, folder / "serve.log", probe_path="/", cwd=folder
+            )
+        except ServerStartError as exc:
+            pytest.fail(str(exc))
     base = f"http://127.0.0.1:{port}"
     try:
         assert httpx.get(f"{base}/", timeout=10.0).status_code == 200
