@@ -15,7 +15,7 @@ import numpy as np
 import pyogrio
 import pytest
 from caution_check import assert_caution
-from io_builders import placed_model
+from io_builders import gpkg_description, placed_model
 from pyproj import Transformer
 
 from server.io import exports
@@ -124,6 +124,7 @@ def test_schedule_geojson_local_grid_says_so(tiny_model):
 def test_schedule_gpkg_has_crs_and_every_probe(rows, tmp_path):
     path = tmp_path / "schedule.gpkg"
     assert exports.write_schedule_gpkg(rows, "EPSG:27700", path) == []
+    assert_caution(gpkg_description(path, "schedule"))
     assert [tuple(x) for x in pyogrio.list_layers(path)] == [("schedule", "Point")]
     frame = geopandas.read_file(path, layer="schedule")
     assert frame.crs.to_epsg() == 27700
@@ -189,6 +190,7 @@ def test_posterior_grid_gpkg_layer_per_boundary(tmp_path):
     fields = grid_fields(2, 3)
     path = tmp_path / "grid.gpkg"
     exports.write_posterior_grid_gpkg(xy, names, fields, "EPSG:27700", path)
+    assert_caution(gpkg_description(path, "base_of_Made_ground"))
     layers = [str(x[0]) for x in pyogrio.list_layers(path)]
     assert layers == ["base_of_Made_ground", "base_of_Alluvial_clay", "base_of_Made_ground_2"]
     frame = geopandas.read_file(path, layer="base_of_Alluvial_clay")

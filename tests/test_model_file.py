@@ -584,6 +584,7 @@ def test_demo_has_its_invented_scenario(demo_model):
     cells = to_shapely(model["site"]).area / model["grid_spacing_m"] ** 2
     assert 2000 <= cells <= 4000
 
+
 def test_demo_penetration_rules_read_as_the_trade_expects(demo_model):
     """An excavator digs stiff clay: a trial pit is limited by the machine's reach (about
     4.5 m, common practice, no source), groundwater and stability, not by a clay. Cone and
