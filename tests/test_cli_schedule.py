@@ -11,9 +11,11 @@ import subprocess
 from datetime import date
 from pathlib import Path
 
+import geopandas
 import pytest
 from caution_check import assert_caution
 from cli_helpers import run_cli
+from io_builders import gpkg_description
 from pyproj import Transformer
 
 from server.app.schedule import build_schedule
@@ -201,8 +203,16 @@ def test_geojson_and_geopackage_files(tmp_path):
     gpkg = tmp_path / "schedule.gpkg"
     run = cli(str(TINY), "--format", "gpkg", "-o", str(gpkg))
     assert run.returncode == 0, run.stderr
-    assert gpkg.read_bytes().startswith(b"SQLite format 3\x00")
     assert "no CRS" in run.stdout
+    frame = geopandas.read_file(gpkg, layer="schedule")
+    tiny = model_of(TINY)
+    probes = layout_doc(tiny, best_value(tiny))["probes"]
+    assert frame.crs is None  # a local site grid has no CRS to give
+    assert list(frame["id"]) == [p["id"] for p in probes]
+    assert list(zip(frame.geometry.x, frame.geometry.y, strict=True)) == [
+        (float(p["x"]), float(p["y"])) for p in probes
+    ]
+    assert_caution(gpkg_description(gpkg, "schedule"))
 
 
 # ---------------------------------------------------------------- bad input

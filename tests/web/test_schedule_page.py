@@ -9,9 +9,11 @@ import io
 import json
 from datetime import date
 
+import geopandas
 import pytest
 from caution_check import assert_caution
 from decision_helpers import attribute_values, import_model
+from io_builders import gpkg_description
 from pyproj import Transformer
 from web_helpers import decoded_png, htmx
 
@@ -90,10 +92,19 @@ def test_geojson_download(client, demo_model):
     assert_caution(document["caution"])
 
 
-def test_geopackage_download(client):
+def test_geopackage_download(client, demo_model, tmp_path):
     answer = client.get("/projects/1/schedule.gpkg", params={"layout": LEAN})
     assert answer.status_code == 200
-    assert answer.content.startswith(b"SQLite format 3\x00")
+    path = tmp_path / "schedule.gpkg"
+    path.write_bytes(answer.content)
+    frame = geopandas.read_file(path, layer="schedule")
+    probes = next(lay for lay in demo_model["layouts"] if lay["name"] == LEAN)["probes"]
+    assert frame.crs.to_epsg() == 27700
+    assert list(frame["id"]) == [p["id"] for p in probes]
+    assert list(zip(frame.geometry.x, frame.geometry.y, strict=True)) == [
+        (p["x"], p["y"]) for p in probes
+    ]
+    assert_caution(gpkg_description(path, "schedule"))
 
 
 def test_site_plan_image(client):
