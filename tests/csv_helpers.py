@@ -2,15 +2,7 @@
 
 from __future__ import annotations
 
-import re
-
-# The substance of the caution, written here rather than taken from the program.
-CAUTION_PHRASES = (
-    r"qualified geotechnical professional",
-    r"local codes.*licensed practice govern",
-    r"clear buried services",
-    r"obtain permits",
-)
+from caution_check import assert_caution
 
 
 def data_lines(text: str) -> list[str]:
@@ -22,6 +14,5 @@ def caution_line(text: str) -> str:
     """The first line, which must be the caution as a comment."""
     first = text.splitlines()[0]
     assert first.startswith("# "), first
-    for phrase in CAUTION_PHRASES:
-        assert re.search(phrase, first, flags=re.IGNORECASE), (phrase, first)
+    assert_caution(first)
     return first

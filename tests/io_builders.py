@@ -6,6 +6,7 @@ Every file the I/O tests read is built here or in the test itself; the data are 
 from __future__ import annotations
 
 import copy
+import sqlite3
 
 # An invented spot in south-east England on the British National Grid (EPSG:27700); the tiny
 # model's site grid (0..200 m by 0..120 m) is shifted there.
@@ -247,3 +248,12 @@ def ags4_text(
             )
         )
     return "\r\n".join(parts)
+
+
+def gpkg_description(path, layer: str) -> str:
+    """A layer's description in the GeoPackage's gpkg_contents table (OGC GeoPackage 1.3)."""
+    with sqlite3.connect(path) as db:
+        [(text,)] = db.execute(
+            "SELECT description FROM gpkg_contents WHERE table_name = ?", (layer,)
+        ).fetchall()
+    return text

@@ -4,11 +4,14 @@ contract"), readable tables, and bad input (exit 2, one line naming the field)."
 from __future__ import annotations
 
 import json
+import math
 import subprocess
 from pathlib import Path
 
 import pytest
+from caution_check import assert_caution
 from cli_helpers import run_cli
+from scipy.stats import truncnorm
 
 ROOT = Path(__file__).resolve().parents[1]
 TINY = ROOT / "tests" / "data" / "tiny-model.json"
@@ -76,7 +79,8 @@ def test_posterior_json_has_the_documented_fields():
         "posterior", str(TINY), "--layout", "Four boreholes", "--at", "100,60", "--at=-20.5,7"
     )
     assert run.returncode == 0, run.stderr
-    assert "Caution" in run.stdout and "(outside the site)" in run.stdout
+    assert "(outside the site)" in run.stdout
+    assert_caution(run.stdout)
     run = cli(
         "posterior",
         str(TINY),
@@ -95,10 +99,55 @@ def test_posterior_json_has_the_documented_fields():
     for point in doc["points"]:
         assert set(point) == {"x", "y", "boundaries"}
         assert list(point["boundaries"]) == BOUNDARIES
-        for b in point["boundaries"].values():
+        in_channel = 80 <= point["x"] <= 120 and 0 <= point["y"] <= 120  # the zone's polygon
+        for name, b in point["boundaries"].items():
             assert set(b) == POINT_KEYS
-            assert b["p05_m"] <= b["mean_m"] + 1.0 and b["p05_m"] <= b["p95_m"]
+            want = hand_prior(name, in_channel)
+            assert b["prior_mean_m"] == pytest.approx(want["mean"], abs=1e-9)
+            assert b["prior_std_m"] == pytest.approx(want["std"], abs=1e-9)
             assert b["std_m"] <= b["prior_std_m"] + 1e-12
+            # P5 and P95: the posterior Gaussian truncated to the hard bounds (scipy.stats)
+            lo, hi = want["bounds"]
+            m, s = b["mean_m"], b["std_m"]
+            for key, q in (("p05_m", 0.05), ("p95_m", 0.95)):
+                ref = truncnorm.ppf(q, (lo - m) / s, (hi - m) / s, loc=m, scale=s)
+                assert b[key] == pytest.approx(ref, abs=1e-6), (name, key)
+
+
+# The tiny model's thickness ranges (tests/data/tiny-model.json) with the moments of
+# docs/model.md: PERT mean (a+4b+c)/6, variance (mean-a)(c-mean)/7; triangular mean (a+b+c)/3,
+# variance (a^2+b^2+c^2-ab-ac-bc)/18; uniform mean (a+c)/2, variance (c-a)^2/12.
+TINY_RANGES = {
+    "Made ground": ("pert", 0.3, 1.0, 2.0),
+    "Alluvial clay": ("triangular", 1.0, 3.0, 6.0),
+    "River gravel": ("uniform", 0.5, 2.0, 4.0),
+}
+CHANNEL_CLAY = ("pert", 3.0, 6.0, 9.0)  # the "Old channel" zone's range for Alluvial clay
+MADE_GROUND_BOUND = (0.5, 1.8)  # the model's user bound on the base of Made ground
+
+
+def hand_moments(shape, a, b, c):
+    if shape == "pert":
+        mean = (a + 4 * b + c) / 6
+        return mean, (mean - a) * (c - mean) / 7
+    if shape == "triangular":
+        return (a + b + c) / 3, (a * a + b * b + c * c - a * b - a * c - b * c) / 18
+    return (a + c) / 2, (c - a) ** 2 / 12
+
+
+def hand_prior(boundary: str, in_channel: bool) -> dict:
+    """Prior mean, std and hard bounds of a boundary: sums over the units above (independent)."""
+    mean = var = lo = hi = 0.0
+    for name, rng in TINY_RANGES.items():
+        if in_channel and name == "Alluvial clay":
+            rng = CHANNEL_CLAY
+        m, v = hand_moments(*rng)
+        mean, var, lo, hi = mean + m, var + v, lo + rng[1], hi + rng[3]
+        if name == boundary:
+            break
+    if boundary == "Made ground":
+        lo, hi = max(lo, MADE_GROUND_BOUND[0]), min(hi, MADE_GROUND_BOUND[1])
+    return {"mean": mean, "std": math.sqrt(var), "bounds": (lo, hi)}
 
 
 def test_posterior_without_layout_uses_existing_probes_only():
@@ -115,7 +164,7 @@ def test_evaluate_table_is_readable():
     run = cli("evaluate", str(TINY))
     assert run.returncode == 0, run.stderr
     assert "Cost (GBP)" in run.stdout and "Four boreholes" in run.stdout
-    assert "Caution" in run.stdout
+    assert_caution(run.stdout)
 
 
 @pytest.mark.parametrize(

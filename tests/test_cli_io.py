@@ -10,8 +10,9 @@ import zipfile
 
 import geopandas
 import pytest
+from caution_check import assert_caution
 from csv_helpers import caution_line, data_lines
-from io_builders import TINY_EXPECTED, TINY_MAPPING, ags4_text, placed_model
+from io_builders import TINY_EXPECTED, TINY_MAPPING, ags4_text, gpkg_description, placed_model
 from pyproj import Transformer
 from shapely.geometry import Polygon, box, shape
 
@@ -262,7 +263,8 @@ def test_export_schedule_gpkg_opens_with_crs_and_every_probe(placed_path, tmp_pa
         str(out),
     ]
     assert main(args) == 0
-    assert "qualified geotechnical professional" in capsys.readouterr().out
+    assert_caution(capsys.readouterr().out)
+    assert_caution(gpkg_description(out, "schedule"))  # the file carries it too
     frame = geopandas.read_file(out, layer="schedule")
     assert frame.crs.to_epsg() == 27700
     assert list(frame["id"]) == [p["id"] for p in layout["probes"]]
@@ -293,9 +295,10 @@ def test_export_schedule_csv_and_geojson(placed_path, tmp_path):
     assert frame.crs.to_epsg() == 4326 and len(frame) == 4
 
 
-def test_export_posterior_grid(placed_path, tmp_path):
+def test_export_posterior_grid(placed_path, tmp_path, capsys):
     csv_out = tmp_path / "grid.csv"
     assert main(["export", str(placed_path), "--what", "posterior", "-o", str(csv_out)]) == 0
+    assert_caution(capsys.readouterr().out)
     caution_line(csv_out.read_text())
     lines = data_lines(csv_out.read_text())
     assert lines[0] == "x,y,boundary,mean_m,std_m,p05_m,p50_m,p95_m,width90_m"
@@ -315,6 +318,7 @@ def test_export_posterior_grid(placed_path, tmp_path):
         )
         == 0
     )
+    assert_caution(gpkg_description(gpkg, "base_of_Alluvial_clay"))
     frame = geopandas.read_file(gpkg, layer="base_of_Alluvial_clay")
     assert frame.crs.to_epsg() == 27700
     assert len(frame) * 3 == len(lines) - 1  # one CSV row per cell and boundary

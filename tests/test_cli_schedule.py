@@ -10,13 +10,16 @@ import subprocess
 from datetime import date
 from pathlib import Path
 
+import geopandas
 import pytest
+from caution_check import assert_caution
 from cli_helpers import run_cli
 from csv_helpers import data_lines
+from io_builders import gpkg_description
+from pyproj import Transformer
 
 from server.app.schedule import build_schedule
 from server.app.to_core import to_core
-from server.caution import CAUTION_LINE as CAUTION
 from server.core.evaluate import GridEvaluator, evaluate_project, with_pareto
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -87,7 +90,7 @@ def test_text_of_the_tiny_model_lists_every_probe_and_the_caution():
     assert date.today().isoformat() in text
     for probe in layout_doc(model, chosen)["probes"]:
         assert probe["id"] in text
-    assert " ".join(CAUTION.split()) in " ".join(text.split())  # wrapped onto lines
+    assert_caution(text)  # wrapped onto lines
     for heading in ("PROBES", "COST AND DURATION BY METHOD", "TOTALS", "WHY THIS OPTION"):
         assert heading in text
     assert "local site grid" in text
@@ -102,7 +105,7 @@ def test_text_of_a_named_demo_layout():
     assert f"Layout: {LEAN}" in flat
     assert "EPSG:27700" in flat
     assert "Pareto-efficient" in flat and "bits" in flat
-    assert " ".join(CAUTION.split()) in flat
+    assert_caution(flat)
 
 
 def test_text_written_to_a_file(tmp_path):
@@ -122,7 +125,7 @@ def test_json_has_the_fields(tiny_json):
     assert set(doc) == JSON_KEYS
     assert doc["project"] == model["name"] and doc["currency"] == "GBP" and doc["crs"] is None
     assert doc["layout"] == best_value(model)
-    assert doc["caution"] == CAUTION
+    assert_caution(doc["caution"])
     assert doc["justification"] and all(isinstance(s, str) and s for s in doc["justification"])
     assert doc["main_boundary"] == "Alluvial clay"  # the heaviest boundary of interest
     ids = [p["id"] for p in layout_doc(model, doc["layout"])["probes"]]
@@ -179,7 +182,7 @@ def test_csv_parses_with_every_probe():
     ids = [p["id"] for p in layout_doc(model_of(DEMO), LEAN)["probes"]]
     assert [r["id"] for r in rows] == ids
     assert all(float(r["depth_m"]) > 0 and float(r["cost"]) > 0 for r in rows)
-    assert "Caution" in run.stderr  # the table itself has no room for it
+    assert_caution(run.stderr)  # the table itself has no room for it
 
 
 def test_geojson_and_geopackage_files(tmp_path):
@@ -187,18 +190,29 @@ def test_geojson_and_geopackage_files(tmp_path):
     run = cli(str(DEMO), "--layout", LEAN, "--format", "geojson", "-o", str(geojson))
     assert run.returncode == 0, run.stderr
     doc = json.loads(geojson.read_text())
-    assert doc["type"] == "FeatureCollection" and "caution" in doc
-    assert len(doc["features"]) == len(layout_doc(model_of(DEMO), LEAN)["probes"])
-    # EPSG:27700 to WGS 84: the invented site lies in England
-    for feature in doc["features"]:
-        lon, lat = feature["geometry"]["coordinates"]
-        assert -6.5 < lon < 2.0 and 49.8 < lat < 56.0
+    assert doc["type"] == "FeatureCollection"
+    assert_caution(doc["caution"])
+    probes = layout_doc(model_of(DEMO), LEAN)["probes"]
+    assert [f["properties"]["id"] for f in doc["features"]] == [p["id"] for p in probes]
+    # EPSG:27700 to WGS 84, each probe against pyproj's own transform of its grid position
+    to_wgs84 = Transformer.from_crs("EPSG:27700", "EPSG:4326", always_xy=True)
+    for feature, probe in zip(doc["features"], probes, strict=True):
+        want = to_wgs84.transform(probe["x"], probe["y"])
+        assert feature["geometry"]["coordinates"] == pytest.approx(want, abs=1e-7)  # ~1 cm
 
     gpkg = tmp_path / "schedule.gpkg"
     run = cli(str(TINY), "--format", "gpkg", "-o", str(gpkg))
     assert run.returncode == 0, run.stderr
-    assert gpkg.read_bytes().startswith(b"SQLite format 3\x00")
     assert "no CRS" in run.stdout
+    frame = geopandas.read_file(gpkg, layer="schedule")
+    tiny = model_of(TINY)
+    probes = layout_doc(tiny, best_value(tiny))["probes"]
+    assert frame.crs is None  # a local site grid has no CRS to give
+    assert list(frame["id"]) == [p["id"] for p in probes]
+    assert list(zip(frame.geometry.x, frame.geometry.y, strict=True)) == [
+        (float(p["x"]), float(p["y"])) for p in probes
+    ]
+    assert_caution(gpkg_description(gpkg, "schedule"))
 
 
 # ---------------------------------------------------------------- bad input

@@ -45,7 +45,7 @@ def test_demo_project_is_valid():
 def test_shared_example_is_valid(shared_dir):
     path = shared_dir / "examples" / "tiny-model.json"
     if not path.is_file():
-        pytest.skip("shared/examples/tiny-model.json is absent")
+        pytest.skip("the shared folder has no examples/tiny-model.json")
     done = run_validate(path)
     assert done.returncode == 0, done.stderr
     assert ": valid (" in done.stdout
@@ -67,7 +67,7 @@ def _probe_outside_site(m):
     m["existing"][1]["x"] = 260.0
 
 
-# The acceptance cases: (id, change, the exact stderr line).
+# Error cases of the model-file contract (docs/model-file.md): (id, change, the exact stderr line).
 ACCEPTANCE = [
     ("min-above-max", _min_above_max, "units[2].thickness_m: min 4.0 is above max 3.0"),
     (

@@ -14,8 +14,9 @@ import geopandas
 import numpy as np
 import pyogrio
 import pytest
+from caution_check import assert_caution
 from csv_helpers import caution_line, data_lines
-from io_builders import placed_model
+from io_builders import gpkg_description, placed_model
 from pyproj import Transformer
 
 from server.io import exports
@@ -73,7 +74,7 @@ def test_schedule_geojson_is_rfc7946_wgs84(rows, tmp_path):
     doc = exports.write_schedule_geojson(rows, "EPSG:27700")
     assert doc["type"] == "FeatureCollection" and len(doc["features"]) == 2
     assert "crs" not in doc and doc["project_crs"] == "EPSG:27700"
-    assert "qualified geotechnical professional" in doc["caution"]
+    assert_caution(doc["caution"])
     to_bng = Transformer.from_crs("EPSG:4326", "EPSG:27700", always_xy=True)
     for feat, row in zip(doc["features"], rows, strict=True):
         lon, lat = feat["geometry"]["coordinates"]
@@ -84,6 +85,26 @@ def test_schedule_geojson_is_rfc7946_wgs84(rows, tmp_path):
     path.write_text(json.dumps(doc))
     frame = geopandas.read_file(path)
     assert frame.crs.to_epsg() == 4326 and list(frame["id"]) == ["BH01", "CPT01"]
+
+
+def test_schedule_geojson_places_a_published_grid_point(tiny_model):
+    """Ordnance Survey, "A guide to coordinate systems in Great Britain", worked example of the
+    National Grid projection (from memory): Caister water tower, E 651409.903 m, N 313177.270 m,
+    is at 52 39' 27.2531" N, 1 43' 4.5177" E on the OSGB36 datum (Airy 1830).
+
+    The export gives WGS 84; taken back to OSGB36 latitude and longitude by pyproj's datum shift
+    alone (no projection), the point must be the published one.
+    """
+    point = {**PLANNED[0], "x": 651_409.903, "y": 313_177.270}
+    [row] = exports.schedule_rows([point], placed_model(tiny_model))
+    [feature] = exports.write_schedule_geojson([row], "EPSG:27700")["features"]
+    lon, lat = feature["geometry"]["coordinates"]
+    to_osgb36 = Transformer.from_crs("EPSG:4326", "EPSG:4277", always_xy=True)
+    lon36, lat36 = to_osgb36.transform(lon, lat)
+    assert lat36 == pytest.approx(52 + 39 / 60 + 27.2531 / 3600, abs=1e-7)  # ~1 cm
+    assert lon36 == pytest.approx(1 + 43 / 60 + 4.5177 / 3600, abs=1e-7)
+    # and WGS 84 is not OSGB36: the datum shift here is tens of metres, not zero
+    assert abs(lon - lon36) > 5e-4
 
 
 def test_schedule_geojson_in_project_crs_with_crs_member(rows, tmp_path):
@@ -104,6 +125,7 @@ def test_schedule_geojson_local_grid_says_so(tiny_model):
 def test_schedule_gpkg_has_crs_and_every_probe(rows, tmp_path):
     path = tmp_path / "schedule.gpkg"
     assert exports.write_schedule_gpkg(rows, "EPSG:27700", path) == []
+    assert_caution(gpkg_description(path, "schedule"))
     assert [tuple(x) for x in pyogrio.list_layers(path)] == [("schedule", "Point")]
     frame = geopandas.read_file(path, layer="schedule")
     assert frame.crs.to_epsg() == 27700
@@ -169,6 +191,7 @@ def test_posterior_grid_gpkg_layer_per_boundary(tmp_path):
     fields = grid_fields(2, 3)
     path = tmp_path / "grid.gpkg"
     exports.write_posterior_grid_gpkg(xy, names, fields, "EPSG:27700", path)
+    assert_caution(gpkg_description(path, "base_of_Made_ground"))
     layers = [str(x[0]) for x in pyogrio.list_layers(path)]
     assert layers == ["base_of_Made_ground", "base_of_Alluvial_clay", "base_of_Made_ground_2"]
     frame = geopandas.read_file(path, layer="base_of_Alluvial_clay")

@@ -386,7 +386,10 @@ def test_probe_on_the_site_boundary_counts_as_inside():
 def test_existing_probe_inside_an_exclusion_is_allowed():
     model = changed(["existing", 0, "x"], 170)
     model["existing"][0]["y"] = 100
-    validate_model(model)
+    normal = validate_model(model)
+    # kept where it was found (a record of the past, not a proposal) and not noted
+    assert (normal["existing"][0]["x"], normal["existing"][0]["y"]) == (170.0, 100.0)
+    assert not any(note.startswith("existing") for note in list_notes(normal))
 
 
 def test_planned_probe_inside_an_exclusion_is_allowed_and_noted():
@@ -580,12 +583,22 @@ def test_demo_has_its_invented_scenario(demo_model):
     assert top["tolerance_m"] == 0.5
     cells = to_shapely(model["site"]).area / model["grid_spacing_m"] ** 2
     assert 2000 <= cells <= 4000
-    trial_pit = next(m for m in model["methods"] if m["kind"] == "trial_pit")
-    assert trial_pit["max_depth_m"] <= 4.0
-    assert {"Stiff clay", "Mudstone"} <= set(trial_pit["cannot_penetrate"])
-    for method in model["methods"]:
+
+
+def test_demo_penetration_rules_read_as_the_trade_expects(demo_model):
+    """An excavator digs stiff clay: a trial pit is limited by the machine's reach (about
+    4.5 m, common practice, no source), groundwater and stability, not by a clay. Cone and
+    blade refuse on rock; a cable-percussive borehole stops on rock and rotary coring goes on."""
+    methods = {m["id"]: m for m in validate_model(demo_model)["methods"]}
+    trial_pit = next(m for m in methods.values() if m["kind"] == "trial_pit")
+    assert "Stiff clay" not in trial_pit["cannot_penetrate"]
+    assert 4.0 <= trial_pit["max_depth_m"] <= 5.0
+    assert "reach" in trial_pit["description"] and "invented" in trial_pit["description"]
+    for method in methods.values():
         if method["kind"] in ("cpt", "dmt"):
             assert "Mudstone" in method["cannot_penetrate"]
+    assert methods["CP"]["cannot_penetrate"] == ["Mudstone"]
+    assert methods["RC"]["cannot_penetrate"] == []  # coring goes into the rock
 
 
 def test_demo_probes_avoid_exclusions(demo_model):
@@ -664,7 +677,9 @@ def test_random_mutation_validates_or_raises_input_error(path, value):
 def test_equal_observed_depths_record_an_absent_unit(tiny_model):
     """A unit may be absent at a probe (thickness min 0): equal base depths are valid."""
     tiny_model["existing"][0]["observed"]["Alluvial clay"] = 1.1  # same as Made ground
-    validate_model(tiny_model)
+    observed = validate_model(tiny_model)["existing"][0]["observed"]
+    assert observed["Made ground"] == observed["Alluvial clay"] == 1.1
+    assert observed["River gravel"] == 6.2  # the rest of the record untouched
 
 
 @pytest.mark.parametrize(

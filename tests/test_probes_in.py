@@ -9,6 +9,7 @@ from __future__ import annotations
 import io
 import json
 
+import openpyxl
 import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
@@ -145,7 +146,6 @@ def test_default_method_precision_columns_and_semicolons(tiny_model):
 
 
 def test_xlsx_sheet_reads_like_csv(tiny_model, tmp_path):
-    openpyxl = pytest.importorskip("openpyxl")
     book = openpyxl.Workbook()
     sheet = book.active
     for line in WIDE.strip().splitlines():

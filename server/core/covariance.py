@@ -4,7 +4,7 @@ With D_k(x) = T_1(x) + ... + T_k(x) and independent units,
 
     Cov(D_j(x), D_k(y)) = sum over units i <= min(j, k) of s_i(x) s_i(y) rho_i(|x - y|)
 
-(DESIGN.md "Probability model"). Indices here are 0-based: boundary k is the base of unit k
+(docs/model.md "Probability model"). Indices here are 0-based: boundary k is the base of unit k
 and sums units 0..k. Both functions build the sum one unit at a time, so the cost is one
 correlation evaluation per unit and pair of points, whatever the number of boundaries.
 """

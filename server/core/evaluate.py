@@ -1,4 +1,4 @@
-"""The numbers reported for each layout (DESIGN.md "Numbers reported for a layout").
+"""The numbers reported for each layout (docs/model.md "Numbers reported for a layout").
 
 Over the evaluation grid (``server.core.grid``), with the existing probes as the baseline and a
 layout's probes added:

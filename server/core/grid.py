@@ -3,7 +3,7 @@
 Cells are aligned to the site's bounding box (first centre half a spacing in from its lower
 left corner). Every centre inside the outline counts, exclusions included: exclusions limit
 where probes go, not where the ground matters. A cell's weight is that of the heaviest area
-of interest containing it, else 1 (DESIGN.md "Numbers reported for a layout").
+of interest containing it, else 1 (docs/model.md "Numbers reported for a layout").
 
 A grid finer than ``MAX_GRID_CELLS`` would make every evaluation slow without changing the
 engineer's decision, so ``evaluation_grid_capped`` coarsens it by a whole factor and says so

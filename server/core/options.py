@@ -1,6 +1,6 @@
 """Options to compare: guidance grids and the ranking of every option by cost and gain.
 
-DESIGN.md workflow step 5-6. A *guidance grid* is the rule-of-thumb layout an engineer would
+Options and Compare steps. A *guidance grid* is the rule-of-thumb layout an engineer would
 draw without this tool: one method on a regular square grid at a spacing taken from the codes
 of practice. ``GUIDANCE_SPACINGS`` lists the typical spacings; the ranking puts hand-made
 layouts, guidance grids and optimised layouts side by side (cost, duration, information gain,

@@ -1,4 +1,4 @@
-"""Planned depth and observed set of planned probes (DESIGN.md "Probability model").
+"""Planned depth and observed set of planned probes (docs/model.md "Probability model").
 
 "Current" below means conditioned on the existing probes only; P95 is the quantile of the
 truncated posterior (``server.core.bounds``).

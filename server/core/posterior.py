@@ -7,7 +7,7 @@ observations with a target depth,
     mean_post = mean_prior + c^T (K + R)^-1 (y - mean_obs)
     var_post  = var_prior  - c^T (K + R)^-1 c
 
-(DESIGN.md "Probability model"). Everything goes through the Cholesky factor L of K + R and
+(docs/model.md "Probability model"). Everything goes through the Cholesky factor L of K + R and
 triangular solves, never an inverse: with W = L^-1 C^T ("whitened" cross-covariance),
 var_post = var_prior - sum_j W_j^2 and mean_post = mean_prior + W_known^T L_known^-1 r.
 

@@ -4,9 +4,12 @@ P95 depths read from the existing-probes posterior at the same spot."""
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 import pytest
 from core_helpers import tiny_dict
+from dense_reference import Dense
 
 from server.app.to_core import to_core
 from server.core.analysis import ProjectAnalysis
@@ -104,8 +107,28 @@ def test_cannot_penetrate_the_top_unit_means_no_depth():
 
 
 def test_existing_probes_shape_the_plan():
-    """A planned probe next to a borehole that found the base of River gravel at 6.2 m plans
-    to about that depth, not to the prior P95."""
-    analysis = ProjectAnalysis(to_core(tiny_dict()))
-    (near,) = analysis.plan(Layout("n", (PlannedProbe("N", "BH", 30.5, 30.0),)))
-    assert 6.2 + 1.5 - 0.1 < near.depth_m < 6.2 + 1.5 + 0.6
+    """A planned borehole 0.5 m from HBH1 (base of River gravel found at 6.2 m) plans to the
+    P95 of that boundary given the existing probes, plus the method's 1.5 m embedment.
+
+    The expected depth is derived here from docs/model.md with the dense reference
+    (tests/core/dense_reference.py: covariance entry by entry, np.linalg.solve, and
+    scipy.stats.truncnorm), not read from the core; it sits near 6.2 + 1.5 m, far from the
+    prior P95 plus embedment.
+    """
+    model = tiny_dict()
+    spot = (30.5, 30.0)
+    analysis = ProjectAnalysis(to_core(model))
+    (near,) = analysis.plan(Layout("n", (PlannedProbe("N", "BH", *spot),)))
+
+    dense = Dense(model)
+    gravel = 2  # base of River gravel, the deepest boundary of interest a borehole reaches
+    mean, var = dense.posterior([spot])
+    lo, hi = dense.bounds(gravel, *spot)
+    p95 = dense.quantile(mean[0, gravel], math.sqrt(var[0, gravel]), lo, hi, 0.95)
+    assert near.depth_m == pytest.approx(p95 + 1.5, abs=1e-9)
+
+    prior_mean = dense.prior_mean(gravel, *spot)
+    prior_std = math.sqrt(dense.cov((*spot, gravel), (*spot, gravel)))
+    prior_p95 = dense.quantile(prior_mean, prior_std, lo, hi, 0.95)
+    # the reading, not the prior, governs: the mean sits on 6.2 m, the prior P95 is metres deeper
+    assert abs(mean[0, gravel] - 6.2) < 0.05 and prior_p95 - p95 > 2.0

@@ -142,7 +142,13 @@ def hostile_model() -> dict:
 def test_hostile_model_is_valid():
     from server.io.model_file import validate_model
 
-    validate_model(hostile_model())
+    model = hostile_model()
+    normal = validate_model(model)
+    # accepted as written: the hostile text is kept verbatim, neither stripped nor escaped
+    assert normal["name"] == model["name"] and HOSTILE in normal["name"]
+    assert [u["name"] for u in normal["units"]] == [u["name"] for u in model["units"]]
+    assert HOSTILE in normal["units"][0]["name"]
+    assert normal["methods"][0]["id"] == f"BH {HOSTILE}"
 
 
 PAGES = (

@@ -1,34 +1,20 @@
-"""Store fixtures: a fresh database per test, and the model-file validator.
+"""Store fixtures: a fresh database per test, and the model-file validator the store calls
+(server.io.model_file.validate_model, the real one: a stored model is its normalised copy)."""
 
-The store calls server.io.model_file.validate_model. Until that module exists in the tree, a
-minimal stand-in (same contract: InputError on bad input, normalised copy otherwise) is put in
-its place so the store's own behaviour can be tested; once it exists the real one is used.
-"""
-
-import importlib.util
 import json
-import sys
-import types
 from pathlib import Path
 
 import pytest
-from store_helpers import stand_in_validate_model
 
+from server.io.model_file import validate_model
 from server.store import open_db
 
 DATA = Path(__file__).resolve().parents[1] / "data"
 TINY_MODEL_PATH = DATA / "tiny-model.json"
-REAL_VALIDATOR = importlib.util.find_spec("server.io.model_file") is not None
 
 
-@pytest.fixture(autouse=True)
-def model_validator(monkeypatch):
-    if not REAL_VALIDATOR:
-        module = types.ModuleType("server.io.model_file")
-        module.validate_model = stand_in_validate_model
-        monkeypatch.setitem(sys.modules, "server.io.model_file", module)
-    from server.io.model_file import validate_model
-
+@pytest.fixture
+def model_validator():
     return validate_model
 
 

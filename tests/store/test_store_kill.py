@@ -19,18 +19,13 @@ HERE = Path(__file__).resolve().parent
 ROOT = HERE.parents[1]
 
 CHILD = r"""
-import copy, importlib.util, json, sys, types
-sys.path[:0] = [sys.argv[1], sys.argv[2]]
-if importlib.util.find_spec("server.io.model_file") is None:  # stand-in until it exists
-    from store_helpers import stand_in_validate_model
-    module = types.ModuleType("server.io.model_file")
-    module.validate_model = stand_in_validate_model
-    sys.modules["server.io.model_file"] = module
+import copy, json, sys
+sys.path[:0] = [sys.argv[1]]
 from server.store import get_project, open_db, save_project
 
-db = open_db(sys.argv[3])
-project_id = int(sys.argv[4])
-model = json.loads(open(sys.argv[5]).read())
+db = open_db(sys.argv[2])
+project_id = int(sys.argv[3])
+model = json.loads(open(sys.argv[4]).read())
 revision = get_project(db, project_id).revision
 while True:
     edited = copy.deepcopy(model)
@@ -56,7 +51,6 @@ def test_sigkill_mid_write_loses_nothing_committed(tmp_path, tiny, tiny_path):
                 "-c",
                 CHILD,
                 str(ROOT),
-                str(HERE),
                 str(path),
                 str(project_id),
                 str(tiny_path),

@@ -1,9 +1,9 @@
 """The demo project goes into a database that never held a project, and only then."""
 
+import json
 from pathlib import Path
 
-import pytest
-
+from server.io.model_file import validate_model
 from server.store import (
     delete_project,
     get_project,
@@ -25,9 +25,9 @@ def test_seed_once(db, tiny, tiny_path):
 
 def test_seed_the_shipped_demo(db):
     demo_path = Path(__file__).resolve().parents[2] / "seed_data" / "demo-project.json"
-    if not demo_path.is_file():
-        pytest.skip("seed_data/demo-project.json not written yet")
     project_id = seed_demo_if_empty(db, demo_path)
     [summary] = list_projects(db)
     assert summary.id == project_id and summary.revision == 1
     assert list_revisions(db, project_id)[0].message == "Demo project (invented data)"
+    demo = json.loads(demo_path.read_text())
+    assert get_project(db, project_id).model == validate_model(demo)  # stored whole, validated

@@ -6,12 +6,11 @@ import html
 import json
 import re
 
+from caution_check import assert_caution
 from fastapi.testclient import TestClient
 from web_helpers import htmx, links_of
 
-from server.web.templating import CAUTION, field_id
-
-CAUTION_HTML = html.escape(CAUTION, quote=False)
+from server.web.templating import field_id
 
 
 def add_project(client: TestClient, model: dict) -> int:
@@ -107,7 +106,7 @@ def assert_links_answer(client: TestClient, page: str) -> None:
 
 def assert_page_basics(page: str) -> None:
     """A model page: the caution (box and footer), no inline script or style."""
-    assert page.count(CAUTION_HTML) >= 2  # the caution box and the footer
+    assert_caution(page, times=2)  # the caution box and the footer
     assert "<style" not in page
     assert " style=" not in page
     scripts = re.findall(r"<script(?![^>]*\bsrc=)([^>]*)>", page)

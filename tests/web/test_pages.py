@@ -7,13 +7,12 @@ import json
 import re
 
 import pytest
+from caution_check import assert_caution
 from web_helpers import htmx, links_of, project_count
 
 from server.errors import InputError
 from server.io.model_file import validate_model
-from server.web.templating import CAUTION, STATIC_DIR
-
-CAUTION_HTML = html.escape(CAUTION, quote=False)
+from server.web.templating import STATIC_DIR
 
 
 def upload(client, content: bytes, filename: str = "model.json", headers=None):
@@ -46,7 +45,7 @@ def test_projects_list_shows_the_demo_project(client, demo_model):
     assert html.escape(demo_model["name"], quote=False) in page.text
     assert 'href="/projects/1"' in page.text
     assert 'id="projects"' in page.text
-    assert CAUTION_HTML in page.text
+    assert_caution(page.text)
 
 
 def test_empty_database_shows_an_empty_state(empty_client):
@@ -200,7 +199,7 @@ def test_actions_on_a_missing_project_answer_404(client):
     assert client.get("/projects/999/export").status_code == 404
     page = client.get("/projects/999")
     assert "no project with id 999" in page.text
-    assert CAUTION_HTML in page.text  # the error page keeps the layout
+    assert_caution(page.text)  # the error page keeps the layout
 
 
 def test_unknown_path_answers_a_404_page(client):
@@ -223,7 +222,7 @@ def test_overview_shows_the_site_the_model_and_the_caution(client, demo_model):
     page = client.get("/projects/1")
     assert page.status_code == 200
     text = page.text
-    assert CAUTION_HTML in text
+    assert_caution(text)
     assert '<svg class="map"' in text
     assert 'class="map-site"' in text
     assert 'class="scale-bar"' in text and 'class="north-arrow"' in text

@@ -8,17 +8,19 @@ import html
 import json
 from datetime import date
 
+import geopandas
 import pytest
+from caution_check import assert_caution
 from csv_helpers import data_lines
 from decision_helpers import attribute_values, import_model
-from web_helpers import htmx
+from io_builders import gpkg_description
+from pyproj import Transformer
+from web_helpers import decoded_png, htmx
 
 from server.app.justification import MainBoundary, OptionFigures, justification
 from server.app.to_core import to_core
 from server.core.evaluate import evaluate_project
-from server.web.templating import CAUTION
 
-CAUTION_HTML = html.escape(CAUTION, quote=False)
 LEAN = "Lean: CPTu only"
 
 
@@ -26,7 +28,7 @@ def test_schedule_of_the_demo(client, demo_model):
     page = client.get("/projects/1/schedule", params={"layout": LEAN})
     assert page.status_code == 200
     text = page.text
-    assert CAUTION_HTML in text
+    assert_caution(text)
     assert date.today().isoformat() in text
     assert "Project revision" in text
     layout = next(lay for lay in demo_model["layouts"] if lay["name"] == LEAN)
@@ -80,31 +82,43 @@ def test_geojson_download(client, demo_model):
     document = json.loads(answer.text)
     assert document["type"] == "FeatureCollection"
     layout = next(lay for lay in demo_model["layouts"] if lay["name"] == LEAN)
-    assert len(document["features"]) == len(layout["probes"])
-    # EPSG:27700 (British National Grid) to WGS 84: the invented site lies in England
-    for feature in document["features"]:
-        lon, lat = feature["geometry"]["coordinates"]
-        assert -6.5 < lon < 2.0 and 49.8 < lat < 56.0
-    assert "caution" in document
+    probes = layout["probes"]
+    assert [f["properties"]["id"] for f in document["features"]] == [p["id"] for p in probes]
+    # EPSG:27700 (British National Grid) to WGS 84, against pyproj's transform of each probe
+    to_wgs84 = Transformer.from_crs("EPSG:27700", "EPSG:4326", always_xy=True)
+    for feature, probe in zip(document["features"], probes, strict=True):
+        want = to_wgs84.transform(probe["x"], probe["y"])
+        assert feature["geometry"]["coordinates"] == pytest.approx(want, abs=1e-7)  # ~1 cm
+    assert_caution(document["caution"])
 
 
-def test_geopackage_download(client):
+def test_geopackage_download(client, demo_model, tmp_path):
     answer = client.get("/projects/1/schedule.gpkg", params={"layout": LEAN})
     assert answer.status_code == 200
-    assert answer.content.startswith(b"SQLite format 3\x00")
+    path = tmp_path / "schedule.gpkg"
+    path.write_bytes(answer.content)
+    frame = geopandas.read_file(path, layer="schedule")
+    probes = next(lay for lay in demo_model["layouts"] if lay["name"] == LEAN)["probes"]
+    assert frame.crs.to_epsg() == 27700
+    assert list(frame["id"]) == [p["id"] for p in probes]
+    assert list(zip(frame.geometry.x, frame.geometry.y, strict=True)) == [
+        (p["x"], p["y"]) for p in probes
+    ]
+    assert_caution(gpkg_description(path, "schedule"))
 
 
 def test_site_plan_image(client):
     answer = client.get("/projects/1/schedule/plan.png", params={"layout": LEAN})
     assert answer.status_code == 200
-    assert answer.content.startswith(b"\x89PNG")
+    decoded_png(answer.content)
 
 
 def test_empty_state_and_missing_downloads(client, tiny_model):
     pid = import_model(client, dict(tiny_model, layouts=[]))
     page = client.get(f"/projects/{pid}/schedule")
     assert page.status_code == 200
-    assert "Nothing to schedule yet" in page.text and CAUTION_HTML in page.text
+    assert "Nothing to schedule yet" in page.text
+    assert_caution(page.text)
     assert client.get(f"/projects/{pid}/schedule.csv").status_code == 400
 
 

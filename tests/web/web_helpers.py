@@ -41,3 +41,20 @@ def links_of(html: str) -> list[str]:
     parser = LinkParser()
     parser.feed(html)
     return parser.urls
+
+
+def decoded_png(content: bytes, min_px: int = 100):
+    """The pixels of a PNG answer, checked to decode, to be at least ``min_px`` square and
+    to draw something (many colours, not one flat fill)."""
+    import io
+
+    import numpy as np
+    from matplotlib import image
+
+    assert content.startswith(b"\x89PNG\r\n\x1a\n")
+    pixels = image.imread(io.BytesIO(content), format="png")
+    height, width = pixels.shape[:2]
+    assert height >= min_px and width >= min_px, (height, width)
+    colours = np.unique(pixels.reshape(-1, pixels.shape[-1]), axis=0)
+    assert len(colours) > 20, f"{len(colours)} colours: a blank image"
+    return pixels
