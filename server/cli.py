@@ -24,6 +24,7 @@ COMMANDS = {
     "import-probes": ("import_probes", "add existing probes from CSV or AGS4 to a model file"),
     "import-gis": ("import_gis", "take a site outline, zones or areas from a GIS file"),
     "export": ("export", "export a schedule or the posterior grid to CSV/GeoJSON/GeoPackage"),
+    "readings": ("readings", "check every existing reading against its prediction"),
 }
 
 

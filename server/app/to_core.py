@@ -140,6 +140,7 @@ def core_existing(spec: dict, model: dict, methods: dict[str, Method]) -> Existi
         final_depth_m=float(spec.get("final_depth_m") or max(observed.values(), default=0.0)),
         observed=observed,
         precision_m=precision,
+        stage=spec.get("stage"),
     )
 
 

@@ -40,6 +40,7 @@ class Correlation:
 
     model: str
     range_m: float
+    nugget: float = 0.0  # share of the variance with no spatial structure, in [0, 1)
 
 
 @dataclass(frozen=True, eq=False)
@@ -55,6 +56,8 @@ class Unit:
     thickness: ThicknessRange | None  # None on the basal unit only
     correlation: Correlation | None  # None on the basal unit only
     description: str = ""
+    spread_multiplier: float = 1.0  # multiplies the thickness range's std (an adopted fit)
+    mean_shift_m: float = 0.0  # added to mean, min and max thickness (min clamped at 0)
 
 
 @dataclass(frozen=True)
@@ -89,6 +92,9 @@ class GroundModel:
     zones: tuple[Zone, ...] = ()
     boundaries_of_interest: tuple[BoundaryOfInterest, ...] = ()
     bounds: tuple[DepthBound, ...] = ()
+    # Lag-0 correlation between unit thicknesses: (unit i, unit j, rho) with i < j; empty =
+    # independent units (docs/model.md, "Correlated thicknesses").
+    thickness_correlation: tuple[tuple[int, int, float], ...] = ()
 
     @property
     def n_boundaries(self) -> int:
@@ -135,6 +141,7 @@ class ExistingProbe:
     final_depth_m: float
     observed: dict[int, float]
     precision_m: dict[int, float]  # boundary index -> std (m) of each recorded depth
+    stage: str | None = None  # investigation stage label; None = earlier information
 
 
 @dataclass(frozen=True)
