@@ -68,8 +68,14 @@ def core_ground(model: dict) -> GroundModel:
             Unit(
                 name=u["name"],
                 thickness=core_range(thick) if thick else None,
-                correlation=Correlation(corr["model"], float(corr["range_m"])) if corr else None,
+                correlation=(
+                    Correlation(corr["model"], float(corr["range_m"]), float(u.get("nugget", 0.0)))
+                    if corr
+                    else None
+                ),
                 description=u.get("description", "") or "",
+                spread_multiplier=float(u.get("spread_multiplier", 1.0)),
+                mean_shift_m=float(u.get("mean_shift_m", 0.0)),
             )
         )
     zones = tuple(
@@ -96,7 +102,11 @@ def core_ground(model: dict) -> GroundModel:
         )
         for b in model.get("bounds") or []
     )
-    return GroundModel(tuple(units), zones, interest, bounds)
+    pairs = tuple(
+        (*sorted((index[p["units"][0]], index[p["units"][1]])), float(p["rho"]))
+        for p in model.get("thickness_correlation") or []
+    )
+    return GroundModel(tuple(units), zones, interest, bounds, pairs)
 
 
 def core_method(spec: dict, model: dict) -> Method:

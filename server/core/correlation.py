@@ -5,12 +5,19 @@ The practical range r is the distance at which the correlation falls to about 5%
 
 - exponential: exp(-3 h / r);
 - gaussian: exp(-3 h^2 / r^2);
-- spherical: 1 - 1.5 (h/r) + 0.5 (h/r)^3 for h < r, else 0.
+- spherical: 1 - 1.5 (h/r) + 0.5 (h/r)^3 for h < r, else 0;
+- matern32, matern52: Matérn with smoothness 3/2 and 5/2 (``server/core/matern.py``).
+
+A unit's nugget eta in [0, 1) adds variation with no spatial structure:
+rho(h) = (1 - eta) rho_model(h) + eta [h = 0] (:func:`correlate_unit`); only exactly
+coincident points share the nugget.
 """
 
 from __future__ import annotations
 
 import numpy as np
+
+from server.core.matern import MATERN_MODELS
 
 
 def correlate(model: str, h_m: np.ndarray, range_m: float) -> np.ndarray:
@@ -36,7 +43,22 @@ def correlate(model: str, h_m: np.ndarray, range_m: float) -> np.ndarray:
     if model == "spherical":
         hc = np.minimum(h, 1.0)
         return np.where(h < 1.0, 1.0 - 1.5 * hc + 0.5 * hc**3, 0.0)
+    if model in MATERN_MODELS:
+        return MATERN_MODELS[model](h)
     raise ValueError(f"unknown correlation model {model!r}")
+
+
+def correlate_unit(corr, h_m: np.ndarray) -> np.ndarray:
+    """A unit's correlation at distances ``h_m`` (any shape), its nugget included.
+
+    ``corr`` is a ``server.core.model.Correlation``; with nugget 0 this is exactly
+    :func:`correlate`.
+    """
+    rho = correlate(corr.model, h_m, corr.range_m)
+    eta = float(getattr(corr, "nugget", 0.0))
+    if eta:
+        rho = (1.0 - eta) * rho + eta * (np.asarray(h_m) == 0.0)
+    return rho
 
 
 def pairwise_distance_m(xy_a: np.ndarray, xy_b: np.ndarray) -> np.ndarray:

@@ -1,7 +1,14 @@
 """Unit thickness priors at points: mean, std, min and max with zone overrides.
 
 A point takes the first zone (in order) that contains it; a unit that zone overrides takes
-the zone's range there, every other unit its default range (DESIGN.md "Probability model").
+the zone's range there, every other unit its default range (docs/model.md, "Probability
+model"). A unit's ``spread_multiplier`` scales its std and its ``mean_shift_m`` moves its
+mean, minimum (clamped at 0) and maximum, in every zone (an adopted fit).
+
+Correlated thicknesses (a linear model of coregionalisation, docs/model.md): with C the lag-0
+correlation between unit thicknesses and L = chol(C), T_i(x) - mu_i(x) = s_i(x) sum_{l<=i}
+L_il Z_l(x) for independent unit-variance fields Z_l, so boundary k loads on field l with
+A_kl(x) = sum_{i=l..k} s_i(x) L_il (:func:`boundary_loadings`).
 """
 
 from __future__ import annotations
@@ -11,7 +18,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from server.core.geometry import points_in_polygon
-from server.core.model import GroundModel, ThicknessRange
+from server.core.model import GroundModel, ThicknessRange, Unit
 from server.core.priors import thickness_moments
 
 
@@ -20,6 +27,8 @@ class UnitFields:
     """Thickness prior of each non-basal unit at ``n`` points; arrays ``(n, U-1)`` in m.
 
     ``zone`` is ``(n,)`` int: index of the zone each point takes, -1 for none.
+    ``coreg`` is the lower Cholesky factor ``(U-1, U-1)`` of the lag-0 correlation between
+    unit thicknesses, or None when the units are independent.
     """
 
     mean_m: np.ndarray
@@ -27,6 +36,7 @@ class UnitFields:
     min_m: np.ndarray
     max_m: np.ndarray
     zone: np.ndarray
+    coreg: np.ndarray | None = None
 
     @property
     def n_points(self) -> int:
@@ -40,6 +50,7 @@ class UnitFields:
             self.min_m[index],
             self.max_m[index],
             self.zone[index],
+            self.coreg,
         )
 
 
@@ -59,9 +70,49 @@ def zone_of_points(
     return zone
 
 
-def _range_row(rng: ThicknessRange) -> tuple[float, float, float, float]:
+def _range_row(rng: ThicknessRange, unit: Unit) -> tuple[float, float, float, float]:
     mean, std = thickness_moments(rng)
-    return mean, std, float(rng.min_m), float(rng.max_m)
+    shift = unit.mean_shift_m
+    if shift == 0.0 and unit.spread_multiplier == 1.0:
+        return mean, std, float(rng.min_m), float(rng.max_m)
+    low = max(float(rng.min_m) + shift, 0.0)
+    return mean + shift, std * unit.spread_multiplier, low, float(rng.max_m) + shift
+
+
+def lag0_correlation(ground: GroundModel) -> np.ndarray:
+    """Lag-0 correlation matrix C between the thicknesses of the non-basal units: ``(B, B)``.
+
+    Identity but for the model's pairs.
+    """
+    c = np.eye(ground.n_boundaries)
+    for i, j, rho in ground.thickness_correlation:
+        c[i, j] = c[j, i] = rho
+    return c
+
+
+def coregionalisation_factor(ground: GroundModel) -> np.ndarray | None:
+    """Lower Cholesky factor L of :func:`lag0_correlation`, or None for independent units.
+
+    Raises ValueError when C is not positive definite.
+    """
+    if not ground.thickness_correlation:
+        return None
+    try:
+        return np.linalg.cholesky(lag0_correlation(ground))
+    except np.linalg.LinAlgError:
+        raise ValueError("thickness correlation matrix is not positive definite") from None
+
+
+def boundary_loadings(fields: UnitFields) -> np.ndarray:
+    """Loadings of every boundary depth on the independent unit fields: ``(n, B, B)``.
+
+    ``out[p, k, l] = sum_{i=l..k} s_i(x_p) L_il`` (L the identity for independent units,
+    giving ``s_l(x_p)`` for ``l <= k`` and 0 above), so that
+    ``Cov(D_j(x), D_k(y)) = sum_l out[x, j, l] out[y, k, l] rho_l(|x - y|)``.
+    """
+    n, B = fields.std_m.shape
+    low = fields.coreg if fields.coreg is not None else np.eye(B)
+    return np.cumsum(fields.std_m[:, :, None] * low[None, :, :], axis=1)
 
 
 def unit_fields(
@@ -88,12 +139,12 @@ def unit_fields(
     # Table of (mean, std, min, max) per (zone + 1, unit); row 0 = defaults.
     table = np.empty((len(ground.zones) + 1, n_thick, 4))
     for i in range(n_thick):
-        table[0, i] = _range_row(ground.units[i].thickness)
+        table[0, i] = _range_row(ground.units[i].thickness, ground.units[i])
     for z, spec in enumerate(ground.zones):
         table[z + 1] = table[0]
         for i, rng in spec.thickness.items():
             if 0 <= i < n_thick:
-                table[z + 1, i] = _range_row(rng)
+                table[z + 1, i] = _range_row(rng, ground.units[i])
     rows = table[zone + 1]  # (n, U-1, 4)
     return UnitFields(
         mean_m=np.ascontiguousarray(rows[..., 0]),
@@ -101,12 +152,17 @@ def unit_fields(
         min_m=np.ascontiguousarray(rows[..., 2]),
         max_m=np.ascontiguousarray(rows[..., 3]),
         zone=zone,
+        coreg=coregionalisation_factor(ground),
     )
 
 
 def prior_boundary_moments(fields: UnitFields) -> tuple[np.ndarray, np.ndarray]:
     """Prior mean and variance of every boundary depth: ``(n, B)`` each (m, m2).
 
-    D_k = T_1 + ... + T_k with independent thicknesses, so both are cumulative sums.
+    D_k = T_1 + ... + T_k: the mean is a cumulative sum; so is the variance with independent
+    thicknesses, else the sum of squared loadings (:func:`boundary_loadings`).
     """
-    return np.cumsum(fields.mean_m, axis=1), np.cumsum(fields.std_m**2, axis=1)
+    mean = np.cumsum(fields.mean_m, axis=1)
+    if fields.coreg is None:
+        return mean, np.cumsum(fields.std_m**2, axis=1)
+    return mean, np.einsum("nkl,nkl->nk", *(boundary_loadings(fields),) * 2)

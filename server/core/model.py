@@ -21,7 +21,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 SHAPES = ("pert", "triangular", "uniform")
-CORRELATION_MODELS = ("exponential", "gaussian", "spherical")
+CORRELATION_MODELS = ("exponential", "gaussian", "spherical", "matern32", "matern52")
 
 
 @dataclass(frozen=True)

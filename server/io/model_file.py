@@ -21,6 +21,7 @@ import math
 import re
 from collections.abc import Iterable, Iterator
 from functools import lru_cache
+from itertools import islice
 from pathlib import Path
 from typing import Annotated, Any, Literal
 
@@ -38,10 +39,11 @@ from pydantic import (
 from pyproj import CRS
 
 from server.errors import InputError
+from server.io.model_structure import structure_problems
 
 SCHEMA = "probewise/1"
 SHAPES = ("pert", "triangular", "uniform")
-CORRELATION_MODELS = ("exponential", "gaussian", "spherical")
+CORRELATION_MODELS = ("exponential", "gaussian", "spherical", "matern32", "matern52")
 METHOD_KINDS = ("borehole", "cpt", "dmt", "trial_pit", "other")
 
 # Caps that stop absurd files before any costly work: (top-level key, cap, what is counted).
@@ -341,7 +343,7 @@ class Range(_Base):
 
 
 class Correlation(_Base):
-    model: Literal["exponential", "gaussian", "spherical"]
+    model: Literal["exponential", "gaussian", "spherical", "matern32", "matern52"]
     range_m: Annotated[float, Field(gt=0, le=MAX_RANGE_M)]
 
 
@@ -828,6 +830,8 @@ def _validate(data: object, first_only: bool) -> tuple[dict | None, list[InputEr
         problems.append(problem)
         if stop():
             break
+    if not problems:  # optional structure fields and stages (server/io/model_structure.py)
+        problems.extend(islice(structure_problems(normal), 1 if first_only else None))
     return (None if problems else normal), problems
 
 

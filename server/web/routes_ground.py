@@ -39,7 +39,13 @@ from server.web.summary import depth_limits
 router = APIRouter(include_in_schema=False)
 
 SHAPE_LABELS = {"pert": "PERT", "triangular": "Triangular", "uniform": "Uniform"}
-MODEL_LABELS = {"exponential": "Exponential", "gaussian": "Gaussian", "spherical": "Spherical"}
+MODEL_LABELS = {
+    "exponential": "Exponential",
+    "gaussian": "Gaussian",
+    "spherical": "Spherical",
+    "matern32": "Matérn 3/2",
+    "matern52": "Matérn 5/2",
+}
 
 
 # ---------------------------------------------------------------- derived views
