@@ -1288,6 +1288,8 @@ CLI_CASES += [
         "thickness_correlation", "positive definite"),
     cli("cli-readings-stage-number", READINGS,
         {"m.json": model_bytes(mutated("existing[0].stage", 2))}, "existing[0].stage", "text"),
+    cli("cli-fit-nugget-one", ["fit", "{dir}/m.json"],
+        {"m.json": model_bytes(mutated("units[0].nugget", 1.0))}, "units[0].nugget", "[0, 1)"),
     cli("cli-readings-correlation-model-unknown", READINGS,
         {"m.json": model_bytes(mutated("units[0].correlation.model", "matern12"))},
         "units[0].correlation.model", ""),
