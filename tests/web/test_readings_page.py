@@ -41,3 +41,23 @@ def test_readings_page_by_stage_and_as_a_fragment(client):
 
 def test_readings_page_of_an_unknown_project_is_not_found(client):
     assert client.get("/projects/999/readings").status_code == 404
+
+
+def test_fit_panel_and_adopting_it_is_one_revision(client):
+    from edit_helpers import post
+
+    before = client.get("/api/projects/1").json()["revision"]
+    panel = client.get("/projects/1/readings/fit", headers={"HX-Request": "true"})
+    assert panel.status_code == 200
+    assert 'id="readings-fit"' in panel.text and "Log-likelihood: conceptual" in panel.text
+    answer = post(client, "/projects/1/readings/adopt", {"expected_revision": str(before)})
+    assert answer.status_code == 200, answer.text
+    assert "Adopted the fit to the readings" in answer.text
+    project = client.get("/api/projects/1").json()
+    assert project["revision"] == before + 1
+    model = client.get("/projects/1/export").json()
+    assert any("spread_multiplier" in u for u in model["units"][:-1])
+    # a stale page is refused and nothing is stored
+    stale = post(client, "/projects/1/readings/adopt", {"expected_revision": str(before)})
+    assert stale.status_code == 409
+    assert client.get("/api/projects/1").json()["revision"] == before + 1
