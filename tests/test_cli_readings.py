@@ -108,3 +108,22 @@ def test_readings_table_names_each_boundary_and_carries_the_caution():
     assert run.returncode == 0, run.stderr
     assert "Per boundary" in run.stdout and "Alluvial clay: n 2" in run.stdout
     assert "Caution:" in run.stdout
+
+
+def test_import_with_a_stage_records_one_stage_of_fieldwork(tmp_path):
+    # Recording results: the new probes come in with a stage label, and by stage they are
+    # predicted from the earlier (unlabelled) probes only.
+    data = tmp_path / "phase2.csv"
+    data.write_text(
+        "id,method,x,y,final_depth_m,base:Made ground,base:Alluvial clay\n"
+        "P2-1,BH,100,60,9,1.2,6.5\nP2-2,BH,60,90,9,0.9,4.1\n"
+    )
+    out = tmp_path / "out.json"
+    run = run_cli("import-probes", str(TINY), str(data), "--stage", "Phase 2", "-o", str(out))
+    assert run.returncode == 0, run.stderr
+    model = json.loads(out.read_text())
+    assert [p.get("stage") for p in model["existing"]] == [None, None, "Phase 2", "Phase 2"]
+    doc = json.loads(run_cli("readings", str(out), "--by-stage", "--json").stdout)
+    assert {r["stage"] for r in doc["readings"] if r["probe"].startswith("P2")} == {"Phase 2"}
+    blank = run_cli("import-probes", str(TINY), str(data), "--stage", " ", "-o", str(out))
+    assert blank.returncode == 2 and blank.stderr.startswith("--stage:")
