@@ -229,6 +229,61 @@ def _range_bounds(h: np.ndarray) -> tuple[float, float]:
     return max(0.2 * float(positive.min()), 1e-3), 10.0 * float(positive.max())
 
 
+class _Parameters:
+    """Which parameters the search moves, where it starts, and how its vector x maps back.
+
+    x holds (log multiplier, log range, nugget) of each free unit, then rho of each free
+    adjacent pair; everything else stays at the model's value.
+    """
+
+    def __init__(self, ground: GroundModel, obs: Observations):
+        B = ground.n_boundaries
+        units = ground.units[:B]
+        self.mult0 = np.array([u.spread_multiplier for u in units])
+        self.range0 = np.array([u.correlation.range_m for u in units])
+        self.nugget0 = np.array([u.correlation.nugget for u in units])
+        self.shift0 = np.array([u.mean_shift_m for u in units])
+        self.fixed_pairs = {(i, j): r for i, j, r in ground.thickness_correlation}
+        self.free_units = [i for i in range(B) if _probes_reading(obs, (i,)) >= MIN_PROBES_UNIT]
+        self.free_pairs = [
+            (i, i + 1)
+            for i in range(B - 1)
+            if i in self.free_units
+            and i + 1 in self.free_units
+            and _probes_reading(obs, tuple(range(max(i - 1, 0), i + 2))) >= MIN_PROBES_PAIR
+        ]
+        self.shift_free = np.zeros(B, dtype=bool)
+        self.shift_free[self.free_units] = True
+
+    def unpack(self, x: np.ndarray):
+        """``(mult, range_m, nugget, pairs)`` of a search vector."""
+        mult, rng, nug = self.mult0.copy(), self.range0.copy(), self.nugget0.copy()
+        for n, i in enumerate(self.free_units):
+            mult[i] = math.exp(x[3 * n])
+            rng[i] = math.exp(x[3 * n + 1])
+            nug[i] = x[3 * n + 2]
+        pairs = dict(self.fixed_pairs)
+        for n, key in enumerate(self.free_pairs):
+            pairs[key] = x[3 * len(self.free_units) + n]
+        return mult, rng, nug, tuple((i, j, r) for (i, j), r in pairs.items())
+
+    def start_and_bounds(self, r_lo: float, r_hi: float) -> tuple[np.ndarray, list]:
+        """The model's values (clipped into the bounds) and the box of the search."""
+        x0, bounds = [], []
+        log_mult = tuple(math.log(b) for b in MULTIPLIER_BOUNDS)
+        for i in self.free_units:
+            x0 += [
+                min(max(math.log(self.mult0[i]), log_mult[0]), log_mult[1]),
+                math.log(min(max(self.range0[i], r_lo), r_hi)),
+                min(self.nugget0[i], NUGGET_MAX),
+            ]
+            bounds += [log_mult, (math.log(r_lo), math.log(r_hi)), (0.0, NUGGET_MAX)]
+        for key in self.free_pairs:
+            x0.append(min(max(self.fixed_pairs.get(key, 0.0), -RHO_MAX), RHO_MAX))
+            bounds.append((-RHO_MAX, RHO_MAX))
+        return np.array(x0, dtype=float), bounds
+
+
 def fit_model(
     ground: GroundModel,
     origin: tuple[float, float],
@@ -253,93 +308,47 @@ def fit_model(
     -------
     FitResult
     """
-    B = ground.n_boundaries
     problem = _Problem(ground, origin, obs)
-    units = ground.units[:B]
-    mult0 = np.array([u.spread_multiplier for u in units])
-    range0 = np.array([u.correlation.range_m for u in units])
-    nugget0 = np.array([u.correlation.nugget for u in units])
-    shift0 = np.array([u.mean_shift_m for u in units])
-    fixed_pairs = {(i, j): r for i, j, r in ground.thickness_correlation}
-    free_units = [i for i in range(B) if _probes_reading(obs, (i,)) >= MIN_PROBES_UNIT]
-    free_pairs = [
-        (i, i + 1)
-        for i in range(B - 1)
-        if i in free_units
-        and i + 1 in free_units
-        and _probes_reading(obs, tuple(range(max(i - 1, 0), i + 2))) >= MIN_PROBES_PAIR
-    ]
-    shift_free = np.zeros(B, dtype=bool)
-    shift_free[free_units] = True
-    r_lo, r_hi = _range_bounds(problem.h)
-
-    def unpack(x):
-        mult, rng, nug = mult0.copy(), range0.copy(), nugget0.copy()
-        for n, i in enumerate(free_units):
-            mult[i] = math.exp(x[3 * n])
-            rng[i] = math.exp(x[3 * n + 1])
-            nug[i] = x[3 * n + 2]
-        pairs = dict(fixed_pairs)
-        for n, key in enumerate(free_pairs):
-            pairs[key] = x[3 * len(free_units) + n]
-        return mult, rng, nug, tuple((i, j, r) for (i, j), r in pairs.items())
-
-    grad_of = (free_units, free_pairs)
+    par = _Parameters(ground, obs)
+    grad_of = (par.free_units, par.free_pairs)
 
     def cost(x):
-        mult, rng, nug, pairs = unpack(x)
         try:
-            ll, _, grad = problem.evaluate(mult, rng, nug, pairs, shift_free, shift0, grad_of)
+            ll, _, grad = problem.evaluate(*par.unpack(x), par.shift_free, par.shift0, grad_of)
         except (LinAlgError, np.linalg.LinAlgError):
             return PENALTY, np.zeros_like(x)
         if not math.isfinite(ll):
             return PENALTY, np.zeros_like(x)
         return -ll, -grad
 
-    x0, bounds = [], []
-    for i in free_units:
-        x0 += [
-            math.log(min(max(mult0[i], MULTIPLIER_BOUNDS[0]), MULTIPLIER_BOUNDS[1])),
-            math.log(min(max(range0[i], r_lo), r_hi)),
-            min(nugget0[i], NUGGET_MAX),
-        ]
-        bounds += [
-            tuple(math.log(b) for b in MULTIPLIER_BOUNDS),
-            (math.log(r_lo), math.log(r_hi)),
-            (0.0, NUGGET_MAX),
-        ]
-    for key in free_pairs:
-        x0.append(min(max(fixed_pairs.get(key, 0.0), -RHO_MAX), RHO_MAX))
-        bounds.append((-RHO_MAX, RHO_MAX))
-    conceptual = log_likelihood(ground, origin, obs)
-    if x0:
-        best = minimize(cost, np.array(x0), jac=True, method="L-BFGS-B", bounds=bounds)
-        x_best = best.x if best.fun <= cost(np.array(x0))[0] else np.array(x0)
-    else:
-        x_best = np.zeros(0)
-    mult, rng, nug, pairs = unpack(x_best)
-    ll, shifts, _ = problem.evaluate(mult, rng, nug, pairs, shift_free, shift0)
-    fitted_ground = _adopt(ground, mult, rng, nug, shifts, pairs)
+    x0, bounds = par.start_and_bounds(*_range_bounds(problem.h))
+    x_best = x0
+    if len(x0):
+        best = minimize(cost, x0, jac=True, method="L-BFGS-B", bounds=bounds)
+        if best.fun <= cost(x0)[0]:
+            x_best = best.x
+    mult, rng, nug, pairs = par.unpack(x_best)
+    ll, shifts, _ = problem.evaluate(mult, rng, nug, pairs, par.shift_free, par.shift0)
     unit_fits = tuple(
-        UnitFit(
-            i,
-            float(mult[i]),
-            float(rng[i]),
-            float(nug[i]),
-            float(shifts[i]),
-            float(range0[i]),
-            i in free_units,
-        )
-        for i in range(B)
-    )
+        UnitFit(i, float(mult[i]), float(rng[i]), float(nug[i]), float(shifts[i]),
+                float(par.range0[i]), i in par.free_units)
+        for i in range(ground.n_boundaries)
+    )  # fmt: skip
     warnings = [
         f"{ground.units[i].name}: fitted from {n} probes; with fewer than {FEW_PROBES} the "
         "estimates (ranges and nuggets above all) are rough"
-        for i in free_units
+        for i in par.free_units
         if (n := _probes_reading(obs, (i,))) < FEW_PROBES
     ]
     warnings += lonely_maximum_warnings(ground, obs, probe_ids)
-    return FitResult(unit_fits, pairs, ll, conceptual, fitted_ground, tuple(warnings))
+    return FitResult(
+        unit_fits,
+        pairs,
+        ll,
+        log_likelihood(ground, origin, obs),
+        _adopt(ground, mult, rng, nug, shifts, pairs),
+        tuple(warnings),
+    )
 
 
 def _adopt(ground, mult, rng, nug, shifts, pairs) -> GroundModel:
