@@ -7,6 +7,7 @@ import json
 import math
 from pathlib import Path
 
+import pytest
 from cli_helpers import run_cli
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -49,3 +50,26 @@ def test_fit_table_carries_the_caution():
     run = run_cli("fit", str(DEMO))
     assert run.returncode == 0, run.stderr
     assert "Log-likelihood: conceptual" in run.stdout and "Caution:" in run.stdout
+
+
+def test_sensitivity_best_layout_matches_evaluate_on_scaled_ranges(tmp_path):
+    # Independent route: write the model with every range scaled and ask `evaluate` which
+    # layout has the most gain per cost.
+    run = run_cli("fit", str(DEMO), "--json", "--sensitivity")
+    assert run.returncode == 0, run.stderr
+    sens = json.loads(run.stdout)["sensitivity"]
+    assert set(sens["best"]) == {"0.5", "1", "2"}
+    for factor in (0.5, 2.0):
+        model = json.loads(DEMO.read_text())
+        for unit in model["units"]:
+            if "correlation" in unit:
+                unit["correlation"]["range_m"] *= factor
+        path = tmp_path / f"x{factor:g}.json"
+        path.write_text(json.dumps(model))
+        layouts = json.loads(run_cli("evaluate", str(path), "--json").stdout)["layouts"]
+        valued = [lay for lay in layouts if lay["gain_per_cost"] is not None]
+        best = max(valued, key=lambda lay: (lay["gain_per_cost"], [-ord(c) for c in lay["name"]]))
+        assert sens["best"][f"{factor:g}"] == best["name"]
+        ours = {o["name"]: o["gain_per_cost"] for o in sens["order"][f"{factor:g}"]}
+        assert ours == pytest.approx({lay["name"]: lay["gain_per_cost"] for lay in valued})
+    assert sens["holds"] == (len(set(sens["best"].values())) == 1)

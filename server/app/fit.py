@@ -71,3 +71,48 @@ def adopt_fit(model: dict, fit_doc: dict) -> dict:
     if fit_doc["thickness_correlation"]:
         out["thickness_correlation"] = fit_doc["thickness_correlation"]
     return out
+
+
+RANGE_FACTORS = (0.5, 1.0, 2.0)
+
+
+def with_ranges_scaled(project: Project, factor: float) -> Project:
+    """The project with every unit's practical range multiplied by ``factor``."""
+    import dataclasses
+
+    units = tuple(
+        u
+        if u.correlation is None
+        else dataclasses.replace(
+            u,
+            correlation=dataclasses.replace(u.correlation, range_m=u.correlation.range_m * factor),
+        )
+        for u in project.ground.units
+    )
+    return dataclasses.replace(project, ground=dataclasses.replace(project.ground, units=units))
+
+
+def range_sensitivity(project: Project) -> dict:
+    """The model file's layouts ranked with every practical range x0.5, x1 and x2.
+
+    The best option is the one with the most information gain per unit cost; the answer says
+    whether it stays best at every factor: ``{"best": {factor: name}, "order": {factor:
+    [{"name", "gain_per_cost"} by gain per cost]}, "holds": bool}`` (factors as text keys).
+    """
+    from server.core.options import rank_options
+
+    layouts = [lay for lay in project.layouts if lay.probes]
+    kinds = {lay.name: "hand" for lay in layouts}
+    best, order = {}, {}
+    for factor in RANGE_FACTORS:
+        ranked = rank_options(with_ranges_scaled(project, factor), layouts, kinds)
+        by_value = sorted(
+            (o for o in ranked if o.gain_per_cost is not None),
+            key=lambda o: (-o.gain_per_cost, o.name),
+        )
+        order[f"{factor:g}"] = [
+            {"name": o.name, "gain_per_cost": o.gain_per_cost} for o in by_value
+        ]
+        best[f"{factor:g}"] = by_value[0].name if by_value else None
+    named = [b for b in best.values() if b is not None]
+    return {"best": best, "order": order, "holds": bool(named) and len(set(named)) == 1}

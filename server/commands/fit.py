@@ -13,7 +13,7 @@ import argparse
 import json
 import sys
 
-from server.app.fit import adopt_fit, fit_json, project_fit
+from server.app.fit import adopt_fit, fit_json, project_fit, range_sensitivity
 from server.app.project import load_project, write_model
 from server.caution import CAUTION_LINE
 from server.commands.tables import format_table, num
@@ -24,6 +24,11 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--json", action="store_true", help="print JSON for a machine to read")
     parser.add_argument(
         "-o", "--output", metavar="OUT", help="write the model with the fit adopted to OUT"
+    )
+    parser.add_argument(
+        "--sensitivity",
+        action="store_true",
+        help="also rank the model's layouts with every practical range x0.5 and x2",
     )
 
 
@@ -56,6 +61,11 @@ def fit_text(project, doc: dict) -> str:
         f"fitted {num(doc['log_likelihood'])}",
     ]
     parts += [f"Warning: {w}" for w in doc["warnings"]]
+    if "sensitivity" in doc:
+        sens = doc["sensitivity"]
+        parts += ["", "Best layout (gain per cost) with every practical range scaled"]
+        parts += [f"  x{factor}: {name or '-'}" for factor, name in sens["best"].items()]
+        parts.append("  the best layout holds" if sens["holds"] else "  the best layout changes")
     parts += ["", CAUTION_LINE]
     return "\n".join(parts)
 
@@ -63,6 +73,8 @@ def fit_text(project, doc: dict) -> str:
 def run(args: argparse.Namespace) -> int:
     model, project = load_project(args.model)
     doc = fit_json(project, project_fit(project))
+    if args.sensitivity:
+        doc["sensitivity"] = range_sensitivity(project)
     if args.output:
         write_model(adopt_fit(model, doc), args.output)
     if args.json:
