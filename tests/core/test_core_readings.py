@@ -163,3 +163,21 @@ def test_verdicts_tell_over_confidence_from_one_conflicting_reading():
     one_off = good.copy()
     one_off[7] += 6.0  # one reading of the wrong unit
     assert "conflicts" in verdict(one_off) and "P7" in verdict(one_off)
+
+
+def test_a_flagged_reading_among_others_is_told_from_one_where_data_is_lacking():
+    from server.core.readings import reading_note
+
+    ground = one_unit_ground("exponential", 100.0, 5.0, 1.0)
+    # a cluster of agreeing readings with one odd one inside it, and a lone far probe
+    xy = np.array([[0, 0], [5, 0], [0, 5], [5, 5], [2, 2], [2000, 2000]], float)
+    values = np.array([5.0, 5.1, 4.9, 5.0, 8.0, 9.5])
+    obs = Observations.build(xy, np.zeros(6, int), np.full(6, 0.1), values, np.arange(6))
+    checks = check_readings(ground, ORIGIN, obs)
+    assert checks.flag[4] and checks.flag[5]
+    assert "nearby readings" in reading_note(checks, 4)
+    assert "conceptual range" in reading_note(checks, 5)
+    # (the odd reading also pulls its neighbours' predictions: they may be flagged too)
+    obs_ok = Observations.build(xy[:4], np.zeros(4, int), np.full(4, 0.1), values[:4], np.arange(4))
+    calm = check_readings(ground, ORIGIN, obs_ok)
+    assert not calm.flag.any() and all(reading_note(calm, j) == "" for j in range(4))
