@@ -1,5 +1,5 @@
 """Reading a project for the command line and the web: model file in, core project out,
-layouts found by name."""
+layouts found by name (the one lookup, for the core project and for the model document)."""
 
 from __future__ import annotations
 
@@ -49,3 +49,17 @@ def find_layout(project: Project, name: str, field: str = "--layout") -> Layout:
             return layout
     known = ", ".join(repr(n) for n in layout_names(project)) or "(none)"
     raise InputError(field, f"no layout named {name!r}; layouts are: {known}")
+
+
+def layout_position(model: dict, name: str) -> int | None:
+    """Index in ``model["layouts"]`` of the layout of that name; None when there is none."""
+    for i, layout in enumerate(model.get("layouts") or []):
+        if layout["name"] == name:
+            return i
+    return None
+
+
+def model_layout(model: dict, name: str | None) -> dict | None:
+    """The model document's layout of that name; None when there is none (or no name)."""
+    i = None if name is None else layout_position(model, name)
+    return None if i is None else model["layouts"][i]

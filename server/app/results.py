@@ -17,6 +17,7 @@ from typing import Any, TypeVar
 import sqlite_utils
 
 from server.app.layouts import layout_kind
+from server.app.project import find_layout
 from server.app.schedule import default_layout_name
 from server.app.to_core import to_core
 from server.core.evaluate import GridEvaluator, LayoutResult, with_pareto
@@ -72,10 +73,7 @@ class ProjectResults:
         return [layout.name for layout in self.project.layouts]
 
     def core_layout(self, name: str) -> Layout:
-        for layout in self.project.layouts:
-            if layout.name == name:
-                return layout
-        raise InputError("layout", f"there is no layout named {name!r}")
+        return find_layout(self.project, name, "layout")
 
     def layout_result(self, name: str) -> LayoutResult:
         """One layout's numbers (its ``pareto`` flag is provisional; see ``results``)."""
@@ -93,10 +91,8 @@ class ProjectResults:
 
     def result_named(self, name: str) -> LayoutResult:
         """A layout's numbers with its Pareto flag set against the other layouts."""
-        for result in self.results():
-            if result.name == name:
-                return result
-        raise InputError("layout", f"there is no layout named {name!r}")
+        find_layout(self.project, name, "layout")  # InputError naming the known layouts
+        return next(result for result in self.results() if result.name == name)
 
     def kinds(self) -> dict[str, str]:
         """Kind of every layout for the ranking: "hand", "guidance" or "optimised"."""

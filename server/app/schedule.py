@@ -15,6 +15,7 @@ from dataclasses import dataclass
 from typing import Any
 
 from server.app.justification import MainBoundary, OptionFigures, justification
+from server.app.project import find_layout
 from server.caution import CAUTION_LINE
 from server.core.evaluate import GridEvaluator, LayoutResult, with_pareto
 from server.core.grid import EmptyGridError
@@ -260,9 +261,8 @@ def build_schedule(
     if not project.layouts:
         raise InputError("layout", "the project has no layout to schedule")
     names = [layout.name for layout in project.layouts]
-    if layout_name is not None and layout_name not in names:
-        known = ", ".join(repr(n) for n in names)
-        raise InputError("layout", f"no layout named {layout_name!r}; layouts are: {known}")
+    if layout_name is not None:
+        find_layout(project, layout_name, "layout")  # InputError naming the known layouts
     if evaluator is None:
         evaluator = evaluator_of(project)
     if results is None:

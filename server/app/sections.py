@@ -11,6 +11,7 @@ import shapely
 
 from server.errors import InputError
 from server.io.model_file import to_shapely
+from server.numbers import read_number
 
 MIN_SECTION_M = 1.0
 
@@ -65,15 +66,7 @@ def read_section(params: dict[str, str], model: dict[str, Any]) -> SectionLine:
         return default_section(model)
     values = {}
     for k in keys:
-        try:
-            value = float(given[k].replace("\u2212", "-"))
-        except ValueError:
-            raise InputError(
-                k, f"{given[k]!r} is not a number" if given[k] else "is required"
-            ) from None
-        if not math.isfinite(value):
-            raise InputError(k, "must be a finite number")
-        values[k] = value
+        values[k] = read_number(given[k], k)
     line = SectionLine(**values)
     if line.length_m < MIN_SECTION_M:
         raise InputError("section", f"the two ends must be at least {MIN_SECTION_M:g} m apart")

@@ -29,6 +29,7 @@ from server.core.model import (
     Unit,
     Zone,
 )
+from server.core.priors import DEFAULT_SHAPE
 
 
 def core_polygon(geometry: dict) -> Polygon:
@@ -49,7 +50,10 @@ def core_polygon(geometry: dict) -> Polygon:
 
 def core_range(spec: dict) -> ThicknessRange:
     return ThicknessRange(
-        float(spec["min"]), float(spec["likely"]), float(spec["max"]), spec.get("shape", "pert")
+        float(spec["min"]),
+        float(spec["likely"]),
+        float(spec["max"]),
+        spec.get("shape", DEFAULT_SHAPE),
     )
 
 

@@ -3,11 +3,11 @@
 from __future__ import annotations
 
 import argparse
-import math
 import sys
 import time
 
 from server.errors import InputError
+from server.numbers import read_number
 
 # OptimiseError.field -> the command-line option to name in the message
 OPTION_OF_FIELD = {
@@ -39,13 +39,7 @@ def parse_positive(text: str | None, option: str, what: str = "number") -> float
     """A finite number > 0 from a command-line value (None stays None); else InputError."""
     if text is None:
         return None
-    try:
-        value = float(text)
-    except ValueError:
-        raise InputError(option, f"must be a positive {what}, not {text!r}") from None
-    if not (math.isfinite(value) and value > 0):
-        raise InputError(option, f"must be a positive {what}, not {text}")
-    return value
+    return read_number(text, option, sign="positive", what=what)
 
 
 def parse_methods(text: str | None, project) -> tuple[str, ...] | None:

@@ -102,7 +102,7 @@ def posterior_text(names, post, inside, layout_name: str | None) -> str:
 def run(args: argparse.Namespace) -> int:
     import numpy as np
 
-    from server.app.project import load_project
+    from server.app.project import find_layout, load_project
     from server.core.analysis import ProjectAnalysis
     from server.core.geometry import points_in_polygon
     from server.errors import InputError
@@ -112,15 +112,7 @@ def run(args: argparse.Namespace) -> int:
         raise InputError("--at", "give at least one point as --at X,Y (metres)")
     _, project = load_project(args.model)
     analysis = ProjectAnalysis(project)
-    layout = None
-    if args.layout is not None:
-        try:
-            layout = analysis.layout(args.layout)
-        except KeyError:
-            known = ", ".join(repr(lay.name) for lay in project.layouts) or "(none)"
-            raise InputError(
-                "--layout", f"no layout named {args.layout!r}; layouts are: {known}"
-            ) from None
+    layout = None if args.layout is None else find_layout(project, args.layout, "--layout")
     xy = np.array(points, dtype=float)
     post = analysis.at_points(xy, layout)
     names = project.ground.boundary_names

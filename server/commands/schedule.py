@@ -61,10 +61,18 @@ def _wrap(text: str) -> str:
 
 def schedule_text(schedule, today: str) -> str:
     """The schedule as plain text for a printer: header, probes, methods, totals, why, caution."""
-    from server.commands.tables import format_table
+    parts = _header_lines(schedule, today)
+    parts += _probe_lines(schedule)
+    parts += _method_lines(schedule)
+    parts += _totals_lines(schedule, today)
+    return "\n".join(parts)
 
-    cur = f" ({schedule.currency})" if schedule.currency else ""
-    t = schedule.totals
+
+def _currency_suffix(schedule) -> str:
+    return f" ({schedule.currency})" if schedule.currency else ""
+
+
+def _header_lines(schedule, today: str) -> list[str]:
     coordinates = f"metres, {schedule.crs}" if schedule.crs else "metres, local site grid"
     header = [
         "SCOPING SCHEDULE OF GROUND INVESTIGATION",
@@ -76,8 +84,10 @@ def schedule_text(schedule, today: str) -> str:
     ]
     if schedule.currency:
         header.append(f"Costs in:     {schedule.currency} (estimates, not quotations)")
-    parts = [*header, "", _wrap(schedule.caution), ""]
+    return [*header, "", _wrap(schedule.caution), ""]
 
+
+def _probe_lines(schedule) -> list[str]:
     x_name, y_name = ("Easting", "Northing") if schedule.crs else ("X", "Y")
     probe_rows = [
         [
@@ -98,10 +108,10 @@ def schedule_text(schedule, today: str) -> str:
         f"{x_name} (m)",
         f"{y_name} (m)",
         "Target depth (m)",
-        f"Est. cost{cur}",
+        f"Est. cost{_currency_suffix(schedule)}",
         "Expected to reveal the base of",
     ]
-    parts += ["PROBES", ""]
+    parts = ["PROBES", ""]
     if probe_rows:
         parts += [
             wrapped_table(probe_headers, probe_rows, left={0, 1, 6}),
@@ -117,7 +127,13 @@ def schedule_text(schedule, today: str) -> str:
         ]
     else:
         parts.append("This layout has no probes.")
+    return parts
 
+
+def _method_lines(schedule) -> list[str]:
+    from server.commands.tables import format_table
+
+    t = schedule.totals
     method_rows = [
         [
             m.id,
@@ -155,11 +171,11 @@ def schedule_text(schedule, today: str) -> str:
         "Mobilisation",
         "Locations",
         "Metres probed",
-        f"Total{cur}",
+        f"Total{_currency_suffix(schedule)}",
         "Days",
         "m/day",
     ]
-    parts += [
+    return [
         "",
         "COST AND DURATION BY METHOD",
         "",
@@ -172,9 +188,12 @@ def schedule_text(schedule, today: str) -> str:
         ),
     ]
 
+
+def _totals_lines(schedule, today: str) -> list[str]:
+    t = schedule.totals
     money = f"{schedule.currency} {_money(t.cost)}".strip()
     gain = f"{t.information_gain_bits:.2f} bits"
-    parts += [
+    return [
         "",
         "TOTALS",
         "",
@@ -195,7 +214,6 @@ def schedule_text(schedule, today: str) -> str:
         "",
         _wrap(schedule.caution),
     ]
-    return "\n".join(parts)
 
 
 def pack_items(text: str, width: int) -> list[str]:
@@ -242,12 +260,12 @@ def wrapped_table(headers: list[str], rows: list[list[str]], left: set[int]) -> 
 
 
 def _check_layout(project, name: str | None) -> None:
-    names = [layout.name for layout in project.layouts]
-    if not names:
+    from server.app.project import find_layout
+
+    if not project.layouts:
         raise InputError("layouts", "the model has no layout to schedule")
-    if name is not None and name not in names:
-        known = ", ".join(repr(n) for n in names)
-        raise InputError("--layout", f"no layout named {name!r}; layouts are: {known}")
+    if name is not None:
+        find_layout(project, name, "--layout")
 
 
 def _emit(text: str, out: str | None) -> None:

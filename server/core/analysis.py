@@ -108,13 +108,6 @@ class ProjectAnalysis:
         """Project coordinates ``(n, 2)`` -> local coordinates ``(n, 2)``."""
         return np.asarray(xy, dtype=float).reshape(-1, 2) - np.asarray(self.origin)
 
-    def layout(self, name: str) -> Layout:
-        """The project's layout of that name; KeyError when there is none."""
-        for layout in self.project.layouts:
-            if layout.name == name:
-                return layout
-        raise KeyError(name)
-
     def plan(self, layout: Layout) -> tuple[ProbePlan, ...]:
         """Planned depth and observed set of every probe of a layout (against the baseline)."""
         return plan_probes(self.ground, self.methods, self.baseline, layout.probes)

@@ -44,7 +44,3 @@ def matern32(h: np.ndarray) -> np.ndarray:
 def matern52(h: np.ndarray) -> np.ndarray:
     """Matérn 5/2 at scaled distances ``h = distance / practical range`` (any shape)."""
     return _shape_52(MATERN52_SCALE * np.asarray(h, dtype=float))
-
-
-# model-file name -> formula of the scaled distance
-MATERN_MODELS = {"matern32": matern32, "matern52": matern52}

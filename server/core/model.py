@@ -20,13 +20,13 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-SHAPES = ("pert", "triangular", "uniform")
-CORRELATION_MODELS = ("exponential", "gaussian", "spherical", "matern32", "matern52")
-
 
 @dataclass(frozen=True)
 class ThicknessRange:
-    """Thickness prior of one unit: min, most likely and max (m) and a shape name."""
+    """Thickness prior of one unit: min, most likely and max (m) and a shape name.
+
+    The shape is a name in ``server.core.priors.THICKNESS_SHAPES``.
+    """
 
     min_m: float
     likely_m: float
@@ -36,7 +36,10 @@ class ThicknessRange:
 
 @dataclass(frozen=True)
 class Correlation:
-    """Correlation model of a unit's thickness with its practical range (m)."""
+    """Correlation model of a unit's thickness with its practical range (m).
+
+    The model is a name in ``server.core.correlation.CORRELATION_MODELS``.
+    """
 
     model: str
     range_m: float

@@ -1,6 +1,6 @@
-"""Thickness priors: mean and standard deviation of a unit's thickness from its range.
+"""Thickness priors: the shapes a unit's thickness range may take, their moments and density.
 
-Closed forms of DESIGN.md "Probability model" for the range (min a, likely b, max c):
+Closed forms (docs/model.md, "Probability model") for the range (min a, likely b, max c):
 
 - uniform: mean (a+c)/2, variance (c-a)^2/12;
 - triangular: mean (a+b+c)/3, variance (a^2+b^2+c^2-ab-ac-bc)/18;
@@ -8,13 +8,91 @@ Closed forms of DESIGN.md "Probability model" for the range (min a, likely b, ma
 
 The PERT variance is that of the beta distribution with alpha = 1 + 4(b-a)/(c-a),
 beta = 1 + 4(c-b)/(c-a) scaled to [a, c] (checked against scipy.stats in the tests).
+
+Adding a shape is one entry in ``THICKNESS_SHAPES``: the model file's allowed names, the
+Ground page's choices and its density chart derive from it.
 """
 
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
+from dataclasses import dataclass
 
 from server.core.model import ThicknessRange
+
+PERT_LAMBDA = 4.0
+
+
+@dataclass(frozen=True)
+class ThicknessShape:
+    """One thickness shape: its name in the model file, a label for people and its maths.
+
+    ``moments(a, b, c)`` gives (mean, variance) in m and m^2 for min a, likely b, max c;
+    ``distribution(a, b, c)`` gives the scipy.stats frozen distribution (for density charts
+    and checks; the model itself uses only the moments).
+    """
+
+    name: str
+    label: str
+    moments: Callable[[float, float, float], tuple[float, float]]
+    distribution: Callable[[float, float, float], object]
+
+
+def _uniform_moments(a: float, b: float, c: float) -> tuple[float, float]:
+    return (a + c) / 2.0, (c - a) ** 2 / 12.0
+
+
+def _triangular_moments(a: float, b: float, c: float) -> tuple[float, float]:
+    return (a + b + c) / 3.0, (a * a + b * b + c * c - a * b - a * c - b * c) / 18.0
+
+
+def _pert_moments(a: float, b: float, c: float) -> tuple[float, float]:
+    mean = (a + PERT_LAMBDA * b + c) / (PERT_LAMBDA + 2.0)
+    return mean, (mean - a) * (c - mean) / (PERT_LAMBDA + 3.0)
+
+
+# scipy.stats is imported inside the distribution functions: it is slow to import and only
+# the charts and the tests need it.
+def _uniform_distribution(a: float, b: float, c: float):
+    from scipy import stats
+
+    return stats.uniform(loc=a, scale=c - a)
+
+
+def _triangular_distribution(a: float, b: float, c: float):
+    from scipy import stats
+
+    return stats.triang((b - a) / (c - a), loc=a, scale=c - a)
+
+
+def _pert_distribution(a: float, b: float, c: float):
+    from scipy import stats
+
+    span = c - a
+    alpha = 1.0 + PERT_LAMBDA * (b - a) / span
+    beta = 1.0 + PERT_LAMBDA * (c - b) / span
+    return stats.beta(alpha, beta, loc=a, scale=span)
+
+
+# The one list of thickness shapes, in the order the model file and the pages show them.
+THICKNESS_SHAPES: dict[str, ThicknessShape] = {
+    s.name: s
+    for s in (
+        ThicknessShape("pert", "PERT", _pert_moments, _pert_distribution),
+        ThicknessShape("triangular", "Triangular", _triangular_moments, _triangular_distribution),
+        ThicknessShape("uniform", "Uniform", _uniform_moments, _uniform_distribution),
+    )
+}
+SHAPE_NAMES: tuple[str, ...] = tuple(THICKNESS_SHAPES)
+DEFAULT_SHAPE = "pert"
+
+
+def _shape_of(rng: ThicknessRange) -> ThicknessShape:
+    shape = THICKNESS_SHAPES.get(rng.shape)
+    if shape is None:
+        raise ValueError(f"unknown thickness shape {rng.shape!r}")
+    return shape
 
 
 def thickness_moments(rng: ThicknessRange) -> tuple[float, float]:
@@ -23,22 +101,16 @@ def thickness_moments(rng: ThicknessRange) -> tuple[float, float]:
     Parameters
     ----------
     rng : ThicknessRange
-        ``min_m <= likely_m <= max_m`` and a shape in ``server.core.model.SHAPES``.
+        ``min_m <= likely_m <= max_m`` and a shape in ``THICKNESS_SHAPES``.
 
     Returns
     -------
     (mean_m, std_m) : tuple of float
     """
-    a, b, c = float(rng.min_m), float(rng.likely_m), float(rng.max_m)
-    if rng.shape == "uniform":
-        mean = (a + c) / 2.0
-        var = (c - a) ** 2 / 12.0
-    elif rng.shape == "triangular":
-        mean = (a + b + c) / 3.0
-        var = (a * a + b * b + c * c - a * b - a * c - b * c) / 18.0
-    elif rng.shape == "pert":
-        mean = (a + 4.0 * b + c) / 6.0
-        var = (mean - a) * (c - mean) / 7.0
-    else:
-        raise ValueError(f"unknown thickness shape {rng.shape!r}")
+    mean, var = _shape_of(rng).moments(float(rng.min_m), float(rng.likely_m), float(rng.max_m))
     return mean, math.sqrt(max(var, 0.0))
+
+
+def thickness_distribution(rng: ThicknessRange):
+    """The scipy.stats frozen distribution of a thickness prior (PERT = beta on [min, max])."""
+    return _shape_of(rng).distribution(float(rng.min_m), float(rng.likely_m), float(rng.max_m))

@@ -3,6 +3,7 @@
 Reading goes through geopandas/pyogrio, reprojection through pyproj (``GeoDataFrame.to_crs``),
 checks and repairs through shapely. Functions take and return plain model-file dicts and
 never write a store; bad input raises ``InputError`` naming the file, feature or column.
+Opening files (kinds, safe unzipping, layers) is ``server.io.gis_files``.
 
 CRS rules, kept few so they can be explained on one screen:
 - GeoJSON without a ``crs`` member is EPSG:4326 (RFC 7946); other files carry their own CRS,
@@ -16,18 +17,24 @@ CRS rules, kept few so they can be explained on one screen:
 from __future__ import annotations
 
 import copy
-import io
 import math
-import re
-import stat
-import tempfile
-import zipfile
-from collections.abc import Iterator
-from contextlib import contextmanager
-from pathlib import Path, PurePosixPath
+from pathlib import Path
 from typing import Any
 
 from server.errors import InputError, OptionNeededError
+from server.io.gis_files import (  # noqa: F401 - the file caps and layer listing, public here
+    KIND_LABELS,
+    MAX_FILE_BYTES,
+    MAX_ZIP_BYTES,
+    MAX_ZIP_FILES,
+    choose_layer,
+    first_line,
+    layer_columns,
+    layers_of,
+    list_layers,
+    open_dataset,
+)
+from server.numbers import read_number
 
 ROLE_KEYS = {
     "site": "site",
@@ -37,20 +44,6 @@ ROLE_KEYS = {
     "exclusions": "exclusions",
 }
 
-# Safe extraction of zipped Shapefiles: caps on what an archive may unpack to.
-MAX_ZIP_BYTES = 50 * 1024 * 1024
-MAX_ZIP_FILES = 200
-# Cap on an uploaded file itself (a GeoPackage of site polygons is small).
-MAX_FILE_BYTES = 50 * 1024 * 1024
-
-_KINDS = {
-    ".geojson": "geojson",
-    ".json": "geojson",
-    ".gpkg": "gpkg",
-    ".zip": "zip",
-    ".shp": "shp",
-}
-_KIND_LABELS = {"geojson": "GeoJSON", "gpkg": "GeoPackage", "shp": "Shapefile"}
 _POLYGONAL = ("Polygon", "MultiPolygon")
 
 
@@ -90,200 +83,6 @@ def _require_metric_projected(crs: Any, field: str, text: str) -> None:
 def _crs_label(crs: Any) -> str:
     code = crs.to_epsg()
     return f"EPSG:{code}" if code else (crs.name or "an unnamed CRS")
-
-
-# ---------------------------------------------------------------------------------------------
-# Files and safe unzipping
-
-
-def _kind_of(filename: str) -> str:
-    suffix = Path(filename).suffix.lower()
-    if suffix not in _KINDS:
-        raise InputError(
-            filename,
-            "unknown file type; give a GeoJSON (.geojson/.json), GeoPackage (.gpkg) "
-            "or zipped Shapefile (.zip)",
-        )
-    return _KINDS[suffix]
-
-
-def _check_member(name: str, filename: str) -> PurePosixPath:
-    """A zip member's path, refused when absolute or escaping the extraction folder."""
-    norm = name.replace("\\", "/")
-    if norm.startswith("/") or re.match(r"^[A-Za-z]:", norm):
-        raise InputError(f"{filename} member {name}", "has an absolute path; refused")
-    path = PurePosixPath(norm)
-    if ".." in path.parts:
-        raise InputError(f"{filename} member {name}", "has a path escaping the folder; refused")
-    return path
-
-
-def _extract_zip(source: Path | bytes, dest: Path, filename: str) -> None:
-    """Unpack a zip into ``dest`` after checking every member; nothing is written on refusal."""
-    try:
-        zf = zipfile.ZipFile(io.BytesIO(source) if isinstance(source, bytes) else source)
-    except (zipfile.BadZipFile, OSError):
-        raise InputError(filename, "is not a readable zip archive") from None
-    with zf:
-        infos = zf.infolist()
-        if len(infos) > MAX_ZIP_FILES:
-            raise InputError(
-                filename, f"holds {len(infos)} files, over the limit of {MAX_ZIP_FILES}"
-            )
-        total = sum(i.file_size for i in infos)
-        if total > MAX_ZIP_BYTES:
-            raise InputError(
-                filename,
-                f"unzips to {total / 2**20:.1f} MB, over the {MAX_ZIP_BYTES / 2**20:.0f} MB limit",
-            )
-        members = []
-        for info in infos:
-            rel = _check_member(info.filename, filename)
-            if stat.S_ISLNK(info.external_attr >> 16):
-                raise InputError(
-                    f"{filename} member {info.filename}", "is a symbolic link; refused"
-                )
-            if not info.is_dir() and rel.parts:
-                members.append((info, rel))
-        root = dest.resolve()
-        written = 0
-        for info, rel in members:
-            target = dest.joinpath(*rel.parts)
-            if not target.resolve().is_relative_to(root):  # belt and braces
-                raise InputError(f"{filename} member {info.filename}", "escapes the folder")
-            target.parent.mkdir(parents=True, exist_ok=True)
-            try:
-                with zf.open(info) as src, open(target, "wb") as out:
-                    # count real bytes: the sizes in the directory are the archive's own claim
-                    while chunk := src.read(1 << 20):
-                        written += len(chunk)
-                        if written > MAX_ZIP_BYTES:
-                            raise InputError(
-                                filename,
-                                f"unzips to more than the {MAX_ZIP_BYTES / 2**20:.0f} MB limit",
-                            )
-                        out.write(chunk)
-            except (zipfile.BadZipFile, RuntimeError, OSError, EOFError) as exc:
-                raise InputError(
-                    f"{filename} member {info.filename}", f"cannot be read: {exc}"
-                ) from None
-
-
-def _shapefiles(folder: Path) -> dict[str, Path]:
-    """Shapefiles in an unzipped folder by layer name (file stem), skipping macOS debris."""
-    found = {}
-    for p in sorted(folder.rglob("*")):
-        if p.suffix.lower() == ".shp" and "__MACOSX" not in p.parts and p.is_file():
-            found[p.stem] = p
-    return found
-
-
-@contextmanager
-def _dataset(path_or_bytes: str | Path | bytes, filename: str | None) -> Iterator[tuple[Path, str]]:
-    """Yield (local path, kind) for a file given as a path or as uploaded bytes.
-
-    A zip is unpacked (safely) into a temporary folder; for a zip the path is that folder.
-    """
-    if isinstance(path_or_bytes, bytes | bytearray | memoryview):
-        data = bytes(path_or_bytes)
-        if filename is None:
-            raise InputError("file", "uploaded data need a file name (its type comes from it)")
-        if len(data) > MAX_FILE_BYTES:
-            raise InputError(filename, f"is over the {MAX_FILE_BYTES / 2**20:.0f} MB limit")
-        if not data:
-            raise InputError(filename, "is empty")
-        source: Path | bytes = data
-    else:
-        source = Path(path_or_bytes)
-        filename = filename or source.name
-        if not source.is_file():
-            raise InputError(filename, "no such file")
-        if source.stat().st_size == 0:
-            raise InputError(filename, "is empty")
-    kind = _kind_of(filename)
-    with tempfile.TemporaryDirectory(prefix="probewise-gis-") as tmp:
-        tmp_path = Path(tmp)
-        if kind == "zip":
-            folder = tmp_path / "unzipped"
-            folder.mkdir()
-            _extract_zip(source, folder, filename)
-            yield folder, "zip"
-        elif isinstance(source, bytes):
-            local = tmp_path / f"upload{Path(filename).suffix.lower()}"
-            local.write_bytes(source)
-            yield local, kind
-        else:
-            yield source, kind
-
-
-def _layers_of(path: Path, kind: str, filename: str) -> dict[str, Path]:
-    """Layers with geometry: name -> path to read it from."""
-    if kind == "zip":
-        return _shapefiles(path)
-    import pyogrio
-
-    try:
-        info = pyogrio.list_layers(path)
-    except Exception as exc:  # pyogrio raises its own DataSourceError and friends
-        raise InputError(
-            filename, f"cannot be read as {_KIND_LABELS[kind]}: {_first_line(exc)}"
-        ) from None
-    return {str(name): path for name, geom_type in info if geom_type is not None}
-
-
-_UPLOAD_NAME = re.compile(r"'upload\.\w+' ")  # the name an upload is saved under here
-_TEMP_FOLDER = re.compile(re.escape(tempfile.gettempdir()) + r"/probewise-gis-[^/\s]*/")
-
-
-def _first_line(exc: BaseException) -> str:
-    """The first line of a reader's message, without the private temporary folder an upload
-    was unpacked into (the user knows the file by its own name)."""
-    text = _TEMP_FOLDER.sub("", str(exc)).strip().splitlines()
-    line = text[0] if text else type(exc).__name__
-    # GDAL's advice on driver prefixes speaks to programmers, not to the user of a form
-    line = line.split("; It might help")[0].replace("not recognized as being in", "not in")
-    return _UPLOAD_NAME.sub("the file is ", line)
-
-
-def list_layers(path_or_bytes: str | Path | bytes, *, filename: str | None = None) -> list[str]:
-    """Names of the layers with geometry in a GIS file (Shapefile stems inside a zip)."""
-    with _dataset(path_or_bytes, filename) as (path, kind):
-        return list(_layers_of(path, kind, filename or Path(str(path_or_bytes)).name))
-
-
-def layer_columns(
-    path_or_bytes: str | Path | bytes, *, filename: str | None = None, layer: str | None = None
-) -> list[str]:
-    """Attribute column names of one layer of a GIS file (the only layer when ``layer`` is
-    None; InputError when there are several)."""
-    import pyogrio
-
-    with _dataset(path_or_bytes, filename) as (path, kind):
-        filename = filename or Path(str(path_or_bytes)).name
-        layer_name, layer_path = _choose_layer(_layers_of(path, kind, filename), layer, filename)
-        try:
-            info = pyogrio.read_info(layer_path, layer=None if kind == "zip" else layer_name)
-        except Exception as exc:  # pyogrio raises its own DataSourceError and friends
-            label = _KIND_LABELS["shp" if kind == "zip" else kind]
-            raise InputError(filename, f"cannot be read as {label}: {_first_line(exc)}") from None
-    return [str(c) for c in info.get("fields", [])]
-
-
-def _choose_layer(layers: dict[str, Path], layer: str | None, filename: str) -> tuple[str, Path]:
-    if not layers:
-        what = "no .shp file" if filename.lower().endswith(".zip") else "no layer with geometry"
-        raise InputError(filename, f"holds {what}")
-    if layer is None:
-        if len(layers) > 1:
-            raise OptionNeededError(
-                filename, f"has {len(layers)} layers ({', '.join(layers)}); choose one", "layer"
-            )
-        layer = next(iter(layers))
-    elif layer not in layers:
-        raise InputError(
-            f"{filename} layer {layer}", f"not found; the file has: {', '.join(layers)}"
-        )
-    return layer, layers[layer]
 
 
 # ---------------------------------------------------------------------------------------------
@@ -351,11 +150,8 @@ def _weight_of(value: Any, where: str) -> float:
         or str(value).strip() == ""
     ):
         raise InputError(where, "empty; every area of interest needs a weight > 0")
-    try:
-        w = float(str(value).strip()) if isinstance(value, str) else float(value)
-    except (TypeError, ValueError):
-        raise InputError(where, f"'{value}' is not a number") from None
-    if not math.isfinite(w) or w <= 0:
+    w = read_number(value, where)
+    if w <= 0:
         raise InputError(where, f"{w:g} is not a weight > 0")
     return w
 
@@ -397,26 +193,79 @@ def read_polygons(
     ``target_crs`` None means the project uses a local site grid (see the module notes).
     """
     import geopandas
-    from pyproj import CRS
-    from pyproj.exceptions import CRSError
 
-    with _dataset(path_or_bytes, filename) as (path, kind):
+    frame, filename, layer_name, kind = _read_layer(path_or_bytes, filename, layer)
+    src, target = _source_and_target_crs(
+        frame, filename, target_crs, source_crs_override, assume_local
+    )
+
+    # Per-feature checks in the source CRS, so a reported coordinate is one the user can find
+    name_col, weight_col = _name_and_weight_columns(frame, filename, name_column, weight_column)
+    wheres, geoms, names, weights = [], [], [], []
+    for n, (fid, row) in enumerate(frame.iterrows(), start=1):
+        where = f"{filename} feature {n}"
+        if kind == "gpkg" and fid != n:
+            where += f" (fid {fid})"
+        wheres.append(where)
+        geoms.append(_checked_polygon(row.geometry, where, repair))
+        names.append(_name_of(row[name_col] if name_col else None, f"{layer_name} {n}"))
+        if weight_col:
+            weights.append(_weight_of(row[weight_col], f"{where}, column {weight_col}"))
+
+    series = geopandas.GeoSeries(geoms, crs=src)
+    if src is not None and target is not None and not src.equals(target):
+        series = series.to_crs(target)
+
+    out = []
+    for i, geom in enumerate(series):
+        if not all(math.isfinite(v) for v in geom.bounds):
+            raise InputError(
+                wheres[i], f"could not be transformed to {target_crs} (outside its area of use?)"
+            )
+        geom = _checked_polygon(geom, wheres[i], repair, after=" after reprojection")
+        item: dict[str, Any] = {"name": names[i], "geometry": geojson_of(geom)}
+        if weight_col:
+            item["weight"] = weights[i]
+        out.append(item)
+    return out
+
+
+def _read_layer(
+    path_or_bytes: str | Path | bytes, filename: str | None, layer: str | None
+) -> tuple[Any, str, str, str]:
+    """(GeoDataFrame, file name, layer name, file kind) of the chosen layer; not empty."""
+    import geopandas
+
+    with open_dataset(path_or_bytes, filename) as (path, kind):
         filename = filename or Path(str(path_or_bytes)).name
-        layers = _layers_of(path, kind, filename)
-        layer_name, layer_path = _choose_layer(layers, layer, filename)
+        layers = layers_of(path, kind, filename)
+        layer_name, layer_path = choose_layer(layers, layer, filename)
         read_layer = None if kind == "zip" else layer_name
         try:
             frame = geopandas.read_file(
                 layer_path, layer=read_layer, engine="pyogrio", fid_as_index=kind == "gpkg"
             )
         except Exception as exc:
-            label = _KIND_LABELS["shp" if kind == "zip" else kind]
-            raise InputError(filename, f"cannot be read as {label}: {_first_line(exc)}") from None
+            label = KIND_LABELS["shp" if kind == "zip" else kind]
+            raise InputError(filename, f"cannot be read as {label}: {first_line(exc)}") from None
 
     if len(frame) == 0:
         raise InputError(filename, f"layer {layer_name} has no features")
+    return frame, filename, layer_name, kind
 
-    # Source and target CRS
+
+def _source_and_target_crs(
+    frame: Any,
+    filename: str,
+    target_crs: str | None,
+    source_crs_override: str | None,
+    assume_local: bool,
+) -> tuple[Any, Any]:
+    """The source CRS (the file's or the override; None when unknown) and the target's
+    (None: a local site grid); InputError or OptionNeededError when they cannot be paired."""
+    from pyproj import CRS
+    from pyproj.exceptions import CRSError
+
     if source_crs_override:
         try:
             src = CRS.from_user_input(source_crs_override)
@@ -453,8 +302,13 @@ def read_polygons(
                 "project CRS first, or confirm the coordinates are site-grid metres",
                 "assume_local",
             )
+    return src, target
 
-    # Per-feature checks in the source CRS, so a reported coordinate is one the user can find
+
+def _name_and_weight_columns(
+    frame: Any, filename: str, name_column: str | None, weight_column: str | None
+) -> tuple[Any, Any]:
+    """The columns names and weights come from (None when there is none)."""
     name_col = None
     if name_column:
         name_col = _column(frame, name_column, filename, "names")
@@ -462,34 +316,7 @@ def read_polygons(
         named = [c for c in frame.columns if str(c).lower() == "name" and c != frame.geometry.name]
         name_col = named[0] if named else None
     weight_col = _column(frame, weight_column, filename, "weights") if weight_column else None
-
-    wheres, geoms, names, weights = [], [], [], []
-    for n, (fid, row) in enumerate(frame.iterrows(), start=1):
-        where = f"{filename} feature {n}"
-        if kind == "gpkg" and fid != n:
-            where += f" (fid {fid})"
-        wheres.append(where)
-        geoms.append(_checked_polygon(row.geometry, where, repair))
-        names.append(_name_of(row[name_col] if name_col else None, f"{layer_name} {n}"))
-        if weight_col:
-            weights.append(_weight_of(row[weight_col], f"{where}, column {weight_col}"))
-
-    series = geopandas.GeoSeries(geoms, crs=src)
-    if src is not None and target is not None and not src.equals(target):
-        series = series.to_crs(target)
-
-    out = []
-    for i, geom in enumerate(series):
-        if not all(math.isfinite(v) for v in geom.bounds):
-            raise InputError(
-                wheres[i], f"could not be transformed to {target_crs} (outside its area of use?)"
-            )
-        geom = _checked_polygon(geom, wheres[i], repair, after=" after reprojection")
-        item: dict[str, Any] = {"name": names[i], "geometry": geojson_of(geom)}
-        if weight_col:
-            item["weight"] = weights[i]
-        out.append(item)
-    return out
+    return name_col, weight_col
 
 
 # ---------------------------------------------------------------------------------------------

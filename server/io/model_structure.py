@@ -141,7 +141,7 @@ def _stage_problems(model: dict) -> Iterator[InputError]:
             yield InputError(f"existing[{p}].stage", f"is longer than {MAX_STAGE_CHARS} characters")
 
 
-def structure_problems(model: dict) -> Iterator[InputError]:
+def ground_structure_problems(model: dict) -> Iterator[InputError]:
     """Faults in the optional structure fields of a model that passed the main validation."""
     yield from _unit_problems(model)
     yield from _pair_problems(model)

@@ -20,11 +20,14 @@ from __future__ import annotations
 import copy
 import json
 from dataclasses import dataclass
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import sqlite_utils
 
 from server.store.db import read_snapshot, transaction, utc_now
+
+if TYPE_CHECKING:
+    from server.io.model_file import ValidModel
 from server.store.errors import (
     NothingToUndo,
     ProjectDeleted,
@@ -65,10 +68,15 @@ class RevisionInfo:
     name: str
 
 
-def _validate(model: dict) -> dict:
-    """The store never holds an invalid model: raises server.errors.InputError, else normalises."""
-    from server.io.model_file import validate_model
+def _validate(model: dict | ValidModel) -> dict:
+    """The store never holds an invalid model: raises server.errors.InputError, else normalises.
 
+    A ``ValidModel`` has been checked already (``server.io.model_file.check_model``).
+    """
+    from server.io.model_file import ValidModel, validate_model
+
+    if isinstance(model, ValidModel):
+        return model.document
     return validate_model(model)
 
 
@@ -215,14 +223,15 @@ def get_project(db: sqlite_utils.Database, project_id: int) -> StoredProject:
 def save_project(
     db: sqlite_utils.Database,
     project_id: int,
-    model: dict,
+    model: dict | ValidModel,
     expected_revision: int,
     message: str,
 ) -> int:
     """Store ``model`` as the next revision if the project is still at ``expected_revision``.
 
     Raises StaleRevision (store unchanged) when someone else saved in between, InputError when
-    the model is invalid. Returns the new revision number.
+    the model is invalid (a ``ValidModel`` is not checked again). Returns the new revision
+    number.
     """
     normalised = _validate(model)
     message = message or "Edited"

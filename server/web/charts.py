@@ -2,8 +2,8 @@
 
 matplotlib is imported inside the drawing function so the app starts fast; figures are built
 with the object API (no pyplot state), under a lock because the routes run in threads. The
-density comes from scipy.stats (PERT as a scaled beta, triangular, uniform) and the mean and
-standard deviation from server.core.priors.thickness_moments, the numbers the model uses.
+density and the mean and standard deviation come from the one registry of thickness shapes,
+server.core.priors (the numbers the model uses).
 """
 
 from __future__ import annotations
@@ -18,9 +18,8 @@ from functools import lru_cache
 import numpy as np
 
 from server.core.model import ThicknessRange
-from server.core.priors import thickness_moments
+from server.core.priors import thickness_distribution, thickness_moments
 
-PERT_LAMBDA = 4.0
 # Palette of static/css/probewise.css: ink, teal, clay and their soft tints.
 INK = "#22303a"
 INK_SOFT = "#55636d"
@@ -30,23 +29,6 @@ CLAY = "#a9561f"
 RULE = "#dcd6c8"
 
 _draw_lock = threading.Lock()
-
-
-def thickness_distribution(rng: ThicknessRange):
-    """The scipy.stats frozen distribution of a thickness prior (PERT = beta on [min, max])."""
-    from scipy import stats
-
-    a, b, c = float(rng.min_m), float(rng.likely_m), float(rng.max_m)
-    span = c - a
-    if rng.shape == "uniform":
-        return stats.uniform(loc=a, scale=span)
-    if rng.shape == "triangular":
-        return stats.triang((b - a) / span, loc=a, scale=span)
-    if rng.shape == "pert":
-        alpha = 1.0 + PERT_LAMBDA * (b - a) / span
-        beta = 1.0 + PERT_LAMBDA * (c - b) / span
-        return stats.beta(alpha, beta, loc=a, scale=span)
-    raise ValueError(f"unknown thickness shape {rng.shape!r}")
 
 
 def thickness_density(rng: ThicknessRange, n: int = 201) -> tuple[np.ndarray, np.ndarray]:

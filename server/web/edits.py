@@ -3,16 +3,18 @@
 Every model-editing page (Site, Ground model, Existing, Methods) posts its forms here through
 ``run_edit``; the pages differ only in the edit function they pass and in how they render.
 
-- ``FormReader`` reads form fields leniently: a number that does not parse is kept as typed
-  (so the page shows it back) and recorded as a problem of its model path.
+- ``FormReader`` (``server.web.forms``) reads form fields leniently: a number that does not
+  parse is kept as typed (so the page shows it back) and recorded as a problem of its path.
 - ``run_edit(db, project_id, expected_revision, edit, ...)`` refuses a stale page (409, store
-  unchanged), applies ``edit(model) -> message`` to a copy, checks the result with the
-  model-file validator (every problem, not only the first), saves it with ``save_project``
-  and returns an ``EditResult`` the page renders: the new state and a notice, or the user's
-  input with each problem beside its field (422).
-- ``FieldErrors`` places problems in templates: ``errors.at("units[2].thickness_m")`` gives
-  the problems at that model path or below it; problems on parts the page does not show (an
-  existing probe broken by reordering units) go to the edit's ``fallback`` slot.
+  unchanged), applies ``edit(model) -> message`` to a copy, checks the result once with the
+  model-file validator (``check_model``: every problem, not only the first), saves the
+  checked document with ``save_project`` (which does not check it again) and returns an
+  ``EditResult`` the page renders: the new state and a notice, or the user's input with each
+  problem beside its field (422).
+- ``FieldErrors`` (``server.web.field_errors``) places problems in templates:
+  ``errors.at("units[2].thickness_m")`` gives the problems at that model path or below it;
+  problems on parts the page does not show (an existing probe broken by reordering units) go
+  to the edit's ``fallback`` slot.
 - ``run_undo`` undoes the last change for any page; ``last_change`` names it for the header.
 - ``EditPage`` is one page: its templates and context, and the edits every page has (a field
   edit, adding an item from an add form, removing one, storing an imported file, undo).
@@ -21,18 +23,17 @@ Every model-editing page (Site, Ground model, Existing, Methods) posts its forms
 from __future__ import annotations
 
 import copy
-import math
 import re
 from collections.abc import Callable, Iterable, Mapping
 from dataclasses import dataclass, field
-from typing import Annotated, Any
+from typing import Any
 
 import sqlite_utils
-from fastapi import Depends, Request
-from starlette.datastructures import FormData, UploadFile
+from fastapi import Request
+from starlette.datastructures import FormData
 
 from server.errors import InputError
-from server.io.model_file import validate_all
+from server.io.model_file import ValidModel, check_model
 from server.store import (
     StoredProject,
     get_project,
@@ -42,269 +43,19 @@ from server.store import (
 )
 from server.store.errors import NothingToUndo, ProjectDeleted, StaleRevision
 from server.web.deps import Db
-
-FORM_MAX_FIELDS = 5000  # a precision table or a zone's overrides: far below this
-FORM_MAX_FILES = 4
-
-
-# ---------------------------------------------------------------- reading forms
-
-
-async def read_form(request: Request) -> FormData:
-    """FastAPI dependency: the posted form (urlencoded or multipart), fields by name."""
-    return await request.form(max_files=FORM_MAX_FILES, max_fields=FORM_MAX_FIELDS)
-
-
-# In a route signature: ``def save(form: PostedForm): ...`` (a sync route runs in a thread)
-PostedForm = Annotated[FormData, Depends(read_form)]
-
-
-def parse_number(text: str) -> float | None:
-    """A finite number from form text ("4.5", "4,5", " 12 "); None when it is not one."""
-    cleaned = text.strip().replace("\u2212", "-")
-    if re.fullmatch(r"[-+]?\d+,\d+", cleaned):
-        cleaned = cleaned.replace(",", ".")
-    try:
-        value = float(cleaned)
-    except ValueError:
-        return None
-    return value if math.isfinite(value) else None
-
-
-class FormReader:
-    """Reads one submitted form, collecting problems by model path instead of raising."""
-
-    def __init__(self, form: Mapping[str, Any] | FormData):
-        self.form = form
-        self.problems: list[InputError] = []
-
-    def raw(self, name: str) -> str:
-        value = self.form.get(name)
-        if value is None or isinstance(value, UploadFile):
-            return ""
-        return str(value)
-
-    def values(self) -> dict[str, str]:
-        """The text fields as submitted (what an add form shows back after a refusal)."""
-        items = self.form.multi_items() if isinstance(self.form, FormData) else self.form.items()
-        return {k: str(v) for k, v in items if not isinstance(v, UploadFile)}
-
-    def problem(self, path: str, text: str) -> None:
-        self.problems.append(InputError(path, text))
-
-    def text(self, name: str, path: str, *, required: bool = True, max_len: int = 200) -> str:
-        value = self.raw(name).strip()
-        if required and not value:
-            self.problem(path, "is required")
-        elif len(value) > max_len:
-            self.problem(path, f"is longer than {max_len} characters")
-        return value
-
-    def number(self, name: str, path: str, *, required: bool = True) -> float | str | None:
-        """A float; None when blank (a problem if required); the text as typed when bad."""
-        text = self.raw(name).strip()
-        if not text:
-            if required:
-                self.problem(path, "is required")
-            return None
-        value = parse_number(text)
-        if value is None:
-            self.problem(path, f"'{text}' is not a number")
-            return text
-        return value
-
-    def choice(self, name: str, path: str, choices: Iterable[str]) -> str:
-        value = self.raw(name).strip()
-        allowed = list(choices)
-        if value not in allowed:
-            shown = ", ".join(allowed)
-            self.problem(path, f"must be one of {shown}" if value else "choose one")
-        return value
-
-    def flag(self, name: str) -> bool:
-        return self.raw(name).strip().lower() in {"1", "true", "on", "yes"}
-
-    def all(self, name: str) -> list[str]:
-        if isinstance(self.form, FormData):
-            return [str(v) for v in self.form.getlist(name) if not isinstance(v, UploadFile)]
-        value = self.form.get(name)
-        return [] if value is None else [str(value)]
-
-    def file(self, name: str) -> UploadFile | None:
-        value = self.form.get(name)
-        if isinstance(value, UploadFile) and value.filename:
-            return value
-        return None
-
-
-def expected_revision_of(form: Mapping[str, Any] | FormData) -> int:
-    """The revision the page was showing (the hidden ``expected_revision`` field)."""
-    text = str(form.get("expected_revision") or "").strip()
-    if not text.isdigit():
-        raise InputError(
-            "expected_revision", "is missing or not a whole number; reload the page and retry"
-        )
-    return int(text)
-
-
-# ---------------------------------------------------------------- errors in templates
-
-
-def field_id(path: str) -> str:
-    """An HTML id for a model path: ``units[2].thickness_m`` -> ``f-units-2-thickness_m``."""
-    return "f-" + (re.sub(r"[^A-Za-z0-9_]+", "-", path).strip("-") or "form")
-
-
-def path_is_under(path: str, prefix: str) -> bool:
-    """``units[2].thickness_m.min`` is under ``units[2]`` and ``units[2].thickness_m``."""
-    if not prefix:
-        return True
-    return path == prefix or path.startswith(prefix + ".") or path.startswith(prefix + "[")
-
-
-@dataclass(frozen=True)
-class Problem:
-    field: str
-    problem: str
-    label: str  # the field in words: 'Unit "Alluvial clay", thickness_m'
-
-
-class FieldErrors:
-    """Problems of one refused edit, looked up by the model path of a form field.
-
-    ``own``: path prefixes the page shows fields for; a problem under none of them (or at the
-    top level) is shown at ``fallback`` as well as in the summary.
-    """
-
-    def __init__(
-        self,
-        problems: Iterable[Problem] = (),
-        *,
-        own: Iterable[str] = (),
-        fallback: str | None = None,
-    ):
-        self.problems = list(problems)
-        self.own = tuple(own)
-        self.fallback = fallback
-
-    def __bool__(self) -> bool:
-        return bool(self.problems)
-
-    def __len__(self) -> int:
-        return len(self.problems)
-
-    def _foreign(self, problem: Problem) -> bool:
-        return not any(path_is_under(problem.field, prefix) for prefix in self.own)
-
-    def at(self, path: str) -> list[str]:
-        """Messages for the field at ``path`` and anything below it (one input's slot)."""
-        return [p.problem for p in self.problems if path_is_under(p.field, path)]
-
-    def exact(self, path: str) -> list[str]:
-        """Messages at ``path`` itself (a group's or an item's slot); the fallback slot also
-        gets the problems of parts the page does not show, named in words."""
-        found = [p.problem for p in self.problems if p.field == path]
-        if self.fallback is not None and path == self.fallback:
-            found += [f"{p.label}: {p.problem}" for p in self.problems if self._foreign(p)]
-        return found
-
-    def has(self, path: str) -> bool:
-        return bool(self.at(path)) or (path == self.fallback and bool(self.exact(path)))
-
-    def any_under(self, *paths: str) -> bool:
-        return any(self.has(p) for p in paths)
-
-
-NO_ERRORS = FieldErrors()
-
-
-def _quoted(items: list[Any], index: int, key: str, what: str) -> str:
-    try:
-        return f'{what} "{items[index][key]}"'
-    except (IndexError, KeyError, TypeError):
-        return f"{what} {index + 1}"
-
-
-def describe_field(model: dict, path: str) -> str:
-    """A model path in words for a message list: ``existing[3].observed.X`` -> 'Probe "BH1" ...'."""
-    match = re.match(r"^([a-z_]+)\[(\d+)\](.*)$", path)
-    if not match:
-        return {
-            "crs": "Coordinate system",
-            "grid_spacing_m": "Grid spacing",
-            "site": "Site outline",
-            "name": "Project name",
-            "currency": "Currency label",
-            "units": "Units",
-        }.get(path.split(".")[0].split("[")[0], path) + (
-            f" ({path.split('.', 1)[1]})" if "." in path and not path.startswith("site") else ""
-        )
-    key, index_text, rest = match.groups()
-    index = int(index_text)
-    whats = {
-        "units": ("name", "Unit"),
-        "zones": ("name", "Zone"),
-        "areas_of_interest": ("name", "Area of interest"),
-        "exclusions": ("name", "Exclusion"),
-        "methods": ("id", "Method"),
-        "existing": ("id", "Probe"),
-        "layouts": ("name", "Layout"),
-    }
-    items = model.get(key) if isinstance(model.get(key), list) else []
-    if key in whats:
-        name_key, what = whats[key]
-        head = _quoted(items, index, name_key, what)
-    elif key in ("boundaries_of_interest", "bounds"):
-        what = "Boundary of interest" if key == "boundaries_of_interest" else "Bound"
-        try:
-            head = f"{what} on the base of {items[index]['base_of']}"
-        except (IndexError, KeyError, TypeError):
-            head = f"{what} {index + 1}"
-    else:
-        head = path
-        rest = ""
-    rest = rest.lstrip(".")
-    if key == "layouts" and rest.startswith("probes["):
-        inner = re.match(r"^probes\[(\d+)\]\.?(.*)$", rest)
-        if inner:
-            probes = items[index].get("probes", []) if index < len(items) else []
-            head += ", " + _quoted(probes, int(inner.group(1)), "id", "probe")
-            rest = inner.group(2)
-    return f"{head}, {_rest_in_words(rest)}" if rest else head
-
-
-_REST_WORDS = (
-    (r"^observed\.(.+)$", r"observed base of \1"),
-    (r"^precision_m\.(.+)$", r"precision for the base of \1"),
-    (r"^units\.(.+)\.thickness_m(.*)$", r"thickness of \1\2"),
-    (r"^thickness_m\b", "thickness"),
-    (r"^correlation\.range_m$", "correlation range"),
-    (r"^cannot_penetrate\[\d+\]$", "cannot penetrate"),
-    (r"^final_depth_m$", "final depth"),
-    (r"^tolerance_m$", "tolerance"),
+from server.web.field_errors import NO_ERRORS, FieldErrors, field_errors, path_is_under
+from server.web.forms import (  # noqa: F401 - the pages read their forms through edits
+    FormReader,
+    PostedForm,
+    expected_revision_of,
+    read_form,
 )
-
-
-def _rest_in_words(rest: str) -> str:
-    for pattern, words in _REST_WORDS:
-        rest = re.sub(pattern, words, rest)
-    return rest.replace("_m.", " ").replace(".", " ")
-
-
-def field_errors(
-    model: dict,
-    problems: Iterable[InputError],
-    *,
-    own: Iterable[str] = (),
-    fallback: str | None = None,
-    remap: Callable[[str], str] | None = None,
-) -> FieldErrors:
-    items = []
-    for problem in problems:
-        path = remap(problem.field) if remap else problem.field
-        items.append(Problem(path, problem.problem, describe_field(model, problem.field)))
-    return FieldErrors(items, own=own, fallback=fallback)
-
+from server.web.templating import (
+    is_htmx,
+    render,
+    render_action,
+    render_page_or_fragment,
+)
 
 # ---------------------------------------------------------------- running an edit
 
@@ -402,45 +153,52 @@ def run_edit(
         problems = (reader.problems if reader else []) + [exc]
         return refused(model, problems, 422, keep=keep_input)
 
+    valid, problems = _checked(model, reader)
+    if problems or valid is None:
+        return refused(model, problems, 422, keep=keep_input)
+    if valid.document == project.model:  # equal after normalising: 5 and 5.0 are one number
+        notice = {"kind": "info", "text": "Nothing changed, so nothing was saved."}
+        return EditResult(project, project.model, notice=notice)
+    return _save(db, project, valid, expected_revision, message, page_url)
+
+
+def _checked(model: dict, reader: FormReader | None) -> tuple[ValidModel | None, list[InputError]]:
+    """The one validation of a save: the form's own problems first, then the model's, leaving
+    out a model problem at, above or under a field the form already faulted."""
     parse_problems = list(reader.problems) if reader else []
+    valid, found = check_model(model)
     checked = [
         p
-        for p in validate_all(model)
+        for p in found
         if not any(
             path_is_under(p.field, q.field) or path_is_under(q.field, p.field)
             for q in parse_problems
         )
     ]
-    problems = parse_problems + checked
-    if problems:
-        return refused(model, problems, 422, keep=keep_input)
-    if _same_model(model, project.model):
-        notice = {"kind": "info", "text": "Nothing changed, so nothing was saved."}
-        return EditResult(project, project.model, notice=notice)
+    return valid, parse_problems + checked
+
+
+def _save(
+    db: sqlite_utils.Database,
+    project: StoredProject,
+    valid: ValidModel,
+    expected_revision: int,
+    message: str,
+    page_url: str | None,
+) -> EditResult:
+    """Store a checked model as the next revision; a stale page or a deleted project: 409."""
     try:
-        revision = save_project(db, project_id, model, expected_revision, message)
+        revision = save_project(db, project.id, valid, expected_revision, message)
     except StaleRevision:
-        project = get_project(db, project_id)
+        project = get_project(db, project.id)
         notice = stale_notice(project, expected_revision, page_url)
         return EditResult(project, project.model, notice=notice, status_code=409)
     except ProjectDeleted:
         notice = {"kind": "error", "text": "Not saved: this project is deleted (read only)."}
         return EditResult(project, project.model, notice=notice, status_code=409)
-    except InputError as exc:  # the store's own check; validate_all should have caught it
-        return refused(model, [exc], 422, keep=keep_input)
-    saved = get_project(db, project_id)
+    saved = get_project(db, project.id)
     notice = {"kind": "ok", "text": f"Saved as revision {revision}: {message}."}
     return EditResult(saved, saved.model, notice=notice, saved=True)
-
-
-def _same_model(edited: dict, stored: dict) -> bool:
-    """Equal after the validator's normalisation (5 and 5.0 are the same number)."""
-    from server.io.model_file import validate_model
-
-    try:
-        return validate_model(edited) == stored
-    except InputError:
-        return False
 
 
 def run_undo(db: sqlite_utils.Database, project_id: int, expected_revision: int) -> EditResult:
@@ -478,16 +236,6 @@ def item_at(items: list, index: int, path: str, what: str) -> dict:
 # ---------------------------------------------------------------- page context and rendering
 
 
-def format_input_number(value: Any) -> str:
-    """A number for an input's value: exact (never rounded, so saving keeps it), no '.0'."""
-    if value is None:
-        return ""
-    if isinstance(value, bool) or not isinstance(value, int | float):
-        return str(value)
-    text = repr(float(value))
-    return text[:-2] if text.endswith(".0") else text
-
-
 def page_context(
     db: sqlite_utils.Database,
     project: StoredProject,
@@ -513,16 +261,6 @@ def page_context(
         readonly=project.deleted,
     )
     return context
-
-
-def _register_template_helpers() -> None:
-    from server.web.templating import templates
-
-    templates.env.globals.setdefault("field_id", field_id)
-    templates.env.filters.setdefault("inum", format_input_number)
-
-
-_register_template_helpers()
 
 
 # ---------------------------------------------------------------- one model-editing page
@@ -594,8 +332,6 @@ class EditPage:
 
     def show(self, request: Request, db: sqlite_utils.Database, project_id: int, **more: Any):
         """GET: the page, or its fragment for htmx."""
-        from server.web.templating import render_page_or_fragment
-
         project = get_project(db, project_id)
         return render_page_or_fragment(
             request, self.page, self.fragment, self.context(db, project, None, **more)
@@ -603,8 +339,6 @@ class EditPage:
 
     def answer(self, request: Request, db: sqlite_utils.Database, result: EditResult, **more):
         """POST: the refreshed fragment (htmx), a redirect (plain post) or the page + 4xx."""
-        from server.web.templating import render_action
-
         return render_action(
             request,
             self.page,
@@ -733,8 +467,6 @@ class EditPage:
 
         ``state``: what the area's template shows (the preview); ``error`` is shown in it, 422.
         """
-        from server.web.templating import is_htmx, render
-
         status = 422 if error else 200
         context = self.context(db, project, None, **state)
         context["import_error"] = error and {"field": error.field, "problem": error.problem}

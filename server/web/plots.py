@@ -14,57 +14,49 @@ shared between threads.
 
 from __future__ import annotations
 
-import io
-import threading
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
-import matplotlib
 import numpy as np
-from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 from matplotlib.patches import PathPatch
 from matplotlib.path import Path as MplPath
 from matplotlib.ticker import FuncFormatter
 
+from server.web.plot_style import (
+    AREA_EDGE,
+    CHOSEN,
+    CURVE,
+    EXCLUSION_EDGE,
+    INK,
+    INK_SOFT,
+    KIND_STYLE,
+    MAP_CMAP,
+    PARETO,
+    RULE,
+    SITE_EDGE,
+    SITE_FILL,
+    ZONE_EDGE,
+    draw_lock,
+    to_bytes,
+)
+from server.web.section_plot import SectionBand, SectionProbe, depth_section
 from server.web.site_map import polygon_rings
 
-matplotlib.rcParams.update(
-    {
-        "svg.fonttype": "none",  # text stays text: searchable and sharp when printed
-        "svg.hashsalt": "probewise",  # stable ids: the same figure gives the same bytes
-        "font.size": 9,
-        "axes.titlesize": 10,
-        "axes.labelsize": 9,
-        "font.family": "DejaVu Sans",
-    }
-)
-
-_draw_lock = threading.Lock()
-
-INK = "#22303a"
-INK_SOFT = "#55636d"
-RULE = "#dcd6c8"
-SITE_FILL = "#efe8d8"
-SITE_EDGE = "#6b5a43"
-AREA_EDGE = "#a9561f"
-ZONE_EDGE = "#2b7a80"
-EXCLUSION_EDGE = "#a33526"
-PARETO = "#a9561f"
-CURVE = "#2b7a80"
-CHOSEN = "#1f6fd1"
-MAP_CMAP = "YlOrBr"  # light = well known, dark = uncertain; prints in grey too
-
-KIND_STYLE = {
-    # kind: (marker, face colour)
-    "borehole": ("o", "#22303a"),
-    "cpt": ("v", "#2b7a80"),
-    "dmt": ("D", "#4f7a3a"),
-    "trial_pit": ("s", "#a9561f"),
-    "other": ("o", "#ffffff"),
-}
-BOUNDARY_COLOURS = ("#a9561f", "#2b7a80", "#4f7a3a", "#7a4f9a", "#a33526", "#3a5f9a", "#8a7a2a")
+__all__ = [
+    "ChartCurve",
+    "ChartPoint",
+    "GridRaster",
+    "MapProbePoint",
+    "SectionBand",
+    "SectionProbe",
+    "SiteShapes",
+    "cost_gain_chart",
+    "depth_section",
+    "site_plan",
+    "uncertainty_maps",
+]
 
 
 @dataclass(frozen=True)
@@ -125,16 +117,6 @@ class SiteShapes:
 
 
 # ------------------------------------------------------------------------------ helpers
-
-
-def _to_bytes(fig: Figure, fmt: str, dpi: int = 150) -> bytes:
-    FigureCanvasAgg(fig)
-    buffer = io.BytesIO()
-    metadata = {"Software": None} if fmt == "png" else {"Date": None, "Creator": None}
-    fig.savefig(
-        buffer, format=fmt, dpi=dpi, metadata=metadata, bbox_inches="tight", pad_inches=0.06
-    )
-    return buffer.getvalue()
 
 
 def _money_axis(value: float, _pos: Any = None) -> str:
@@ -257,36 +239,12 @@ def cost_gain_chart(
     currency: str = "",
 ) -> bytes:
     """Cost against information gain of each option, with the Pareto front: SVG bytes."""
-    with _draw_lock:
+    with draw_lock:
         fig = Figure(figsize=(7.2, 4.2), layout="constrained")
         ax = fig.add_subplot()
         ax.grid(True, color=RULE, linewidth=0.6)
         ax.set_axisbelow(True)
-        for n, curve in enumerate(curves):
-            if len(curve.points) < 2:
-                continue
-            xs, ys = zip(*sorted(curve.points), strict=True)
-            ax.step(
-                (0.0, *xs),
-                (0.0, *ys),
-                where="post",
-                color=CURVE,
-                linewidth=1.1,
-                alpha=0.9 if n == 0 else 0.45,
-                label="Optimiser's cost-gain curve" if n == 0 else None,
-                zorder=2,
-            )
-        front = sorted((p for p in points if p.pareto), key=lambda p: p.cost)
-        if front:
-            ax.plot(
-                [0.0] + [p.cost for p in front],
-                [0.0] + [p.gain_bits for p in front],
-                color=PARETO,
-                linewidth=1.6,
-                linestyle="--",
-                label="Pareto front",
-                zorder=3,
-            )
+        _draw_curves_and_front(ax, points, curves)
         ax.scatter([0], [0], marker="x", color=INK_SOFT, s=30, zorder=4)
         ax.annotate(
             "existing information only",
@@ -296,41 +254,7 @@ def cost_gain_chart(
             fontsize=7,
             color=INK_SOFT,
         )
-        for p in points:
-            ax.scatter(
-                [p.cost],
-                [p.gain_bits],
-                s=70 if p.chosen else 42,
-                marker="o",
-                facecolors=PARETO if p.pareto else "#ffffff",
-                edgecolors=CHOSEN if p.chosen else INK,
-                linewidths=2.2 if p.chosen else 1.0,
-                zorder=5,
-            )
-            label = p.name if len(p.name) <= 34 else p.name[:32] + "\u2026"
-            ax.annotate(
-                label,
-                (p.cost, p.gain_bits),
-                xytext=(7, -3),
-                textcoords="offset points",
-                fontsize=7.5,
-                color=INK,
-                fontweight="bold" if p.chosen else "normal",
-                zorder=6,
-            )
-        # legend entries for the point styles
-        ax.scatter([], [], s=42, facecolors=PARETO, edgecolors=INK, label="Pareto-efficient option")
-        ax.scatter([], [], s=42, facecolors="#ffffff", edgecolors=INK, label="Dominated option")
-        if any(p.chosen for p in points):
-            ax.scatter(
-                [],
-                [],
-                s=70,
-                facecolors="none",
-                edgecolors=CHOSEN,
-                linewidths=2.2,
-                label="Chosen option",
-            )
+        _draw_options(ax, points)
         ax.set_xlabel(f"Cost ({currency})" if currency else "Cost")
         ax.set_ylabel("Information gain (bits)")
         ax.xaxis.set_major_formatter(FuncFormatter(_money_axis))
@@ -340,7 +264,75 @@ def cost_gain_chart(
         ax.set_xlim(0, max(costs, default=1.0) * 1.3 or 1.0)
         ax.set_ylim(0, max(gains, default=1.0) * 1.12 or 1.0)
         ax.legend(loc="lower right", fontsize=7.5, frameon=True, framealpha=0.9)
-        return _to_bytes(fig, "svg")
+        return to_bytes(fig, "svg")
+
+
+def _draw_curves_and_front(ax, points: Sequence[ChartPoint], curves: Sequence[ChartCurve]) -> None:
+    """The optimiser's cost-gain curves (steps) and the Pareto front through the options."""
+    for n, curve in enumerate(curves):
+        if len(curve.points) < 2:
+            continue
+        xs, ys = zip(*sorted(curve.points), strict=True)
+        ax.step(
+            (0.0, *xs),
+            (0.0, *ys),
+            where="post",
+            color=CURVE,
+            linewidth=1.1,
+            alpha=0.9 if n == 0 else 0.45,
+            label="Optimiser's cost-gain curve" if n == 0 else None,
+            zorder=2,
+        )
+    front = sorted((p for p in points if p.pareto), key=lambda p: p.cost)
+    if front:
+        ax.plot(
+            [0.0] + [p.cost for p in front],
+            [0.0] + [p.gain_bits for p in front],
+            color=PARETO,
+            linewidth=1.6,
+            linestyle="--",
+            label="Pareto front",
+            zorder=3,
+        )
+
+
+def _draw_options(ax, points: Sequence[ChartPoint]) -> None:
+    """Every option as a labelled point, and legend entries for the point styles."""
+    for p in points:
+        ax.scatter(
+            [p.cost],
+            [p.gain_bits],
+            s=70 if p.chosen else 42,
+            marker="o",
+            facecolors=PARETO if p.pareto else "#ffffff",
+            edgecolors=CHOSEN if p.chosen else INK,
+            linewidths=2.2 if p.chosen else 1.0,
+            zorder=5,
+        )
+        label = p.name if len(p.name) <= 34 else p.name[:32] + "\u2026"
+        ax.annotate(
+            label,
+            (p.cost, p.gain_bits),
+            xytext=(7, -3),
+            textcoords="offset points",
+            fontsize=7.5,
+            color=INK,
+            fontweight="bold" if p.chosen else "normal",
+            zorder=6,
+        )
+    # legend entries for the point styles
+    ax.scatter([], [], s=42, facecolors=PARETO, edgecolors=INK, label="Pareto-efficient option")
+    ax.scatter([], [], s=42, facecolors="#ffffff", edgecolors=INK, label="Dominated option")
+    if any(p.chosen for p in points):
+        ax.scatter(
+            [],
+            [],
+            s=70,
+            facecolors="none",
+            edgecolors=CHOSEN,
+            linewidths=2.2,
+            label="Chosen option",
+        )
 
 
 @dataclass(frozen=True)
@@ -381,7 +373,7 @@ def uncertainty_maps(
     ``panels``: (panel title, values per grid cell ``(n,)``, probes to draw).
     """
     bounds = shapes.bounds()
-    with _draw_lock:
+    with draw_lock:
         fig = Figure(figsize=_map_figure_size(bounds, len(panels), width_in), layout="constrained")
         axes = fig.subplots(1, len(panels), squeeze=False)[0]
         top = max((float(np.nanmax(v)) for _, v, _ in panels if np.isfinite(v).any()), default=1.0)
@@ -409,7 +401,7 @@ def uncertainty_maps(
             bar.set_label(quantity_label, fontsize=8)
             bar.ax.tick_params(labelsize=7)
         fig.suptitle(title, fontsize=10, fontweight="bold")
-        return _to_bytes(fig, "png", dpi=130)
+        return to_bytes(fig, "png", dpi=130)
 
 
 def site_plan(
@@ -423,7 +415,7 @@ def site_plan(
 ) -> bytes:
     """The site with existing and planned probes, labelled: PNG bytes."""
     bounds = shapes.bounds()
-    with _draw_lock:
+    with draw_lock:
         fig = Figure(figsize=_map_figure_size(bounds, 1, width_in), layout="constrained")
         ax = fig.add_subplot()
         _draw_site(ax, shapes, filled=True)
@@ -483,111 +475,4 @@ def site_plan(
                 fontsize=7,
                 frameon=False,
             )
-        return _to_bytes(fig, "png", dpi=150)
-
-
-@dataclass(frozen=True)
-class SectionBand:
-    """P5/P50/P95 (m) of one boundary at the section's sample points, ``(n,)`` each."""
-
-    name: str
-    p05_m: np.ndarray
-    p50_m: np.ndarray
-    p95_m: np.ndarray
-
-
-@dataclass(frozen=True)
-class SectionProbe:
-    id: str
-    distance_m: float
-    depth_m: float
-    kind: str
-    existing: bool
-
-
-def depth_section(
-    distance_m: np.ndarray,
-    panels: Sequence[tuple[str, Sequence[SectionBand], Sequence[SectionProbe]]],
-    *,
-    title: str,
-    width_in: float = 9.0,
-) -> bytes:
-    """P5-P95 bands and P50 lines of every boundary along a line, one panel per state: PNG.
-
-    Depth is positive down (the axis is inverted); every panel has the same depth axis.
-    """
-    deepest = 0.0
-    for _, bands, probes in panels:
-        for band in bands:
-            deepest = max(deepest, float(np.nanmax(band.p95_m)))
-        for probe in probes:
-            deepest = max(deepest, probe.depth_m)
-    deepest = deepest * 1.05 + 0.5
-    with _draw_lock:
-        fig = Figure(figsize=(width_in, 2.6 * len(panels) + 0.9), layout="constrained")
-        axes = fig.subplots(len(panels), 1, squeeze=False, sharex=True)[:, 0]
-        for ax, (panel_title, bands, probes) in zip(axes, panels, strict=True):
-            ax.grid(True, color=RULE, linewidth=0.5)
-            ax.set_axisbelow(True)
-            for n, band in enumerate(bands):
-                colour = BOUNDARY_COLOURS[n % len(BOUNDARY_COLOURS)]
-                ax.fill_between(
-                    distance_m,
-                    band.p05_m,
-                    band.p95_m,
-                    color=colour,
-                    alpha=0.28,
-                    linewidth=0,
-                    label=f"Base of {band.name}: P5\u2013P95",
-                )
-                ax.plot(
-                    distance_m,
-                    band.p50_m,
-                    color=colour,
-                    linewidth=1.3,
-                    label=f"Base of {band.name}: P50",
-                )
-            span = float(distance_m[-1] - distance_m[0]) or 1.0
-            last_label = -np.inf
-            for probe in sorted(probes, key=lambda p: p.distance_m):
-                marker, face = KIND_STYLE.get(probe.kind, KIND_STYLE["other"])
-                ax.plot(
-                    [probe.distance_m, probe.distance_m],
-                    [0, probe.depth_m],
-                    color=INK_SOFT if probe.existing else INK,
-                    linewidth=1.6 if not probe.existing else 1.0,
-                    linestyle=":" if probe.existing else "-",
-                    zorder=5,
-                )
-                ax.scatter(
-                    [probe.distance_m],
-                    [0],
-                    marker=marker,
-                    facecolors="#9aa3a9" if probe.existing else face,
-                    edgecolors=INK,
-                    s=26,
-                    zorder=6,
-                    clip_on=False,
-                )
-                if probe.distance_m - last_label < 0.035 * span:
-                    continue  # too close to the last label to read; the symbol stays
-                last_label = probe.distance_m
-                ax.annotate(
-                    probe.id,
-                    (probe.distance_m, 0),
-                    xytext=(0, 5),
-                    textcoords="offset points",
-                    ha="center",
-                    fontsize=6.5,
-                    color=INK_SOFT if probe.existing else INK,
-                    annotation_clip=False,
-                )
-            ax.set_ylim(deepest, 0)
-            ax.set_xlim(float(distance_m[0]), float(distance_m[-1]))
-            ax.set_ylabel("Depth below ground (m)")
-            ax.set_title(panel_title, fontsize=9, loc="left", pad=14)
-        axes[-1].set_xlabel("Distance along the section (m)")
-        handles, labels = axes[0].get_legend_handles_labels()
-        fig.legend(handles, labels, loc="outside lower center", ncols=2, fontsize=7, frameon=False)
-        fig.suptitle(title, fontsize=10, fontweight="bold")
-        return _to_bytes(fig, "png", dpi=130)
+        return to_bytes(fig, "png", dpi=150)

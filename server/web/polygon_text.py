@@ -3,10 +3,10 @@ between the parts of a multi-part outline."""
 
 from __future__ import annotations
 
-import math
 import re
 
 from server.errors import InputError
+from server.numbers import read_number
 
 MAX_TEXT_POSITIONS = 20_000
 MULTI_SEPARATOR = "---"
@@ -58,15 +58,10 @@ def parse_polygon_text(text: str, path: str, *, allow_multi: bool = False) -> di
         parts = [p for p in re.split(r"[,;\t ]+", line) if p]
         if len(parts) != 2:
             raise InputError(path, f"line {number}: '{line[:40]}' is not one 'x, y' pair")
-        values = []
-        for part in parts:
-            try:
-                value = float(part)
-            except ValueError:
-                raise InputError(path, f"line {number}: '{part[:20]}' is not a number") from None
-            if not math.isfinite(value):
-                raise InputError(path, f"line {number}: '{part[:20]}' is not a finite number")
-            values.append(value)
+        try:
+            values = [read_number(part, path) for part in parts]
+        except InputError as exc:
+            raise InputError(path, f"line {number}: {exc.problem}") from None
         count += 1
         if count > MAX_TEXT_POSITIONS:
             raise InputError(path, f"has more than {MAX_TEXT_POSITIONS} positions")

@@ -26,7 +26,6 @@ from server.errors import InputError
 from server.store import get_project
 from server.web import plots
 from server.web.deps import Db
-from server.web.justify import register_template_filters
 from server.web.map_data import map_data
 from server.web.result_figures import (
     chosen_layout,
@@ -41,7 +40,6 @@ from server.web.templating import render, render_page_or_fragment
 from server.web.workflow import project_context
 
 router = APIRouter(include_in_schema=False)
-register_template_filters()
 
 QUANTITIES = {
     "std": ("Posterior standard deviation", "Posterior std (m)"),

@@ -18,10 +18,9 @@ import sqlite_utils
 from fastapi import APIRouter, HTTPException, Request
 from starlette.responses import Response
 
-from server.core.model import ThicknessRange
-from server.core.priors import thickness_moments
+from server.core.correlation import CORRELATION_MODELS
+from server.core.priors import DEFAULT_SHAPE, THICKNESS_SHAPES
 from server.errors import InputError
-from server.io.model_file import CORRELATION_MODELS, SHAPES
 from server.store import StoredProject, get_project, get_revision
 from server.web.charts import thickness_chart_svg, thickness_charts
 from server.web.deps import Db
@@ -33,45 +32,10 @@ from server.web.edits import (
     PostedForm,
     item_at,
 )
+from server.web.ground_units import moments_of, rename_unit, safe_depth_limits, unit_references
 from server.web.polygon_text import parse_polygon_text, polygon_text
-from server.web.summary import depth_limits
 
 router = APIRouter(include_in_schema=False)
-
-SHAPE_LABELS = {"pert": "PERT", "triangular": "Triangular", "uniform": "Uniform"}
-MODEL_LABELS = {
-    "exponential": "Exponential",
-    "gaussian": "Gaussian",
-    "spherical": "Spherical",
-    "matern32": "Matérn 3/2",
-    "matern52": "Matérn 5/2",
-}
-
-
-# ---------------------------------------------------------------- derived views
-
-
-def moments_of(thickness: Any) -> tuple[float, float] | None:
-    """(mean, std) of a thickness range dict, None when it is not a sound range."""
-    try:
-        rng = ThicknessRange(
-            float(thickness["min"]),
-            float(thickness["likely"]),
-            float(thickness["max"]),
-            str(thickness.get("shape", "pert")),
-        )
-        if not rng.min_m <= rng.likely_m <= rng.max_m or rng.min_m >= rng.max_m:
-            return None
-        return thickness_moments(rng)
-    except (TypeError, ValueError, KeyError):
-        return None
-
-
-def safe_depth_limits(model: dict) -> dict[str, tuple[float, float]]:
-    try:
-        return depth_limits(model)
-    except (TypeError, ValueError, KeyError):
-        return {}
 
 
 def ground_extra(
@@ -132,8 +96,8 @@ def ground_extra(
         ],
         "boundary_options": [(name, f"Base of {name}") for name in boundaries],
         "position_options": [(str(i), name) for i, name in enumerate(names)],
-        "shape_options": [(s, SHAPE_LABELS[s]) for s in SHAPES],
-        "model_options": [(m, MODEL_LABELS[m]) for m in CORRELATION_MODELS],
+        "shape_options": [(s.name, s.label) for s in THICKNESS_SHAPES.values()],
+        "model_options": [(m.name, m.label) for m in CORRELATION_MODELS.values()],
     }
 
 
@@ -154,67 +118,12 @@ def ground_page(request: Request, project_id: int, db: Db) -> Response:
 # ---------------------------------------------------------------- units
 
 
-def rename_unit(model: dict, old: str, new: str) -> None:
-    """Rename every reference to unit ``old`` (dict keys keep their order)."""
-
-    def renamed_keys(mapping: dict | None) -> dict | None:
-        if not isinstance(mapping, dict) or old not in mapping:
-            return mapping
-        return {(new if k == old else k): v for k, v in mapping.items()}
-
-    for zone in model.get("zones") or []:
-        zone["units"] = renamed_keys(zone.get("units"))
-    for key in ("boundaries_of_interest", "bounds"):
-        for item in model.get(key) or []:
-            if item.get("base_of") == old:
-                item["base_of"] = new
-    for method in model.get("methods") or []:
-        method["cannot_penetrate"] = [
-            new if n == old else n for n in method.get("cannot_penetrate") or []
-        ]
-        method["precision_m"] = renamed_keys(method.get("precision_m"))
-    for probe in model.get("existing") or []:
-        probe["observed"] = renamed_keys(probe.get("observed"))
-        if "precision_m" in probe:
-            probe["precision_m"] = renamed_keys(probe.get("precision_m"))
-
-
-def unit_references(model: dict, name: str) -> list[str]:
-    """What refers to unit ``name``, in words ("method CP (precision)")."""
-    refs = []
-    for zone in model.get("zones") or []:
-        if name in (zone.get("units") or {}):
-            refs.append(f"zone \u201c{zone['name']}\u201d (thickness override)")
-    if any(b.get("base_of") == name for b in model.get("boundaries_of_interest") or []):
-        refs.append("the boundaries of interest")
-    count = sum(1 for b in model.get("bounds") or [] if b.get("base_of") == name)
-    if count:
-        refs.append(f"{count} hard bound{'s' if count > 1 else ''}")
-    for method in model.get("methods") or []:
-        uses = []
-        if name in (method.get("precision_m") or {}):
-            uses.append("precision")
-        if name in (method.get("cannot_penetrate") or []):
-            uses.append("cannot penetrate")
-        if uses:
-            refs.append(f"method {method['id']} ({', '.join(uses)})")
-    probes = [
-        p["id"]
-        for p in model.get("existing") or []
-        if name in (p.get("observed") or {}) or name in (p.get("precision_m") or {})
-    ]
-    if probes:
-        shown = ", ".join(probes[:6]) + (", ..." if len(probes) > 6 else "")
-        refs.append(f"{len(probes)} existing probe{'s' if len(probes) > 1 else ''} ({shown})")
-    return refs
-
-
 def read_range(reader: FormReader, path: str, suffix: str = "") -> dict[str, Any]:
     return {
         "min": reader.number(f"min{suffix}", f"{path}.min"),
         "likely": reader.number(f"likely{suffix}", f"{path}.likely"),
         "max": reader.number(f"max{suffix}", f"{path}.max"),
-        "shape": reader.choice(f"shape{suffix}", f"{path}.shape", SHAPES),
+        "shape": reader.choice(f"shape{suffix}", f"{path}.shape", tuple(THICKNESS_SHAPES)),
     }
 
 
@@ -235,7 +144,7 @@ def read_unit(reader: FormReader, path: str, unit: dict, basal: bool) -> None:
     unit["correlation"] = {
         **(unit.get("correlation") or {}),
         "model": reader.choice(
-            "correlation_model", f"{path}.correlation.model", CORRELATION_MODELS
+            "correlation_model", f"{path}.correlation.model", tuple(CORRELATION_MODELS)
         ),
         "range_m": reader.number("range_m", f"{path}.correlation.range_m"),
     }
@@ -511,7 +420,7 @@ def thickness_chart(project_id: int, unit_index: int, db: Db, rev: int | None = 
             raise HTTPException(404, f"unit {unit_index + 1} has no thickness (basal or missing)")
         t = units[unit_index]["thickness_m"]
         svg = thickness_chart_svg(
-            t.get("shape", "pert"), float(t["min"]), float(t["likely"]), float(t["max"])
+            t.get("shape", DEFAULT_SHAPE), float(t["min"]), float(t["likely"]), float(t["max"])
         )
         thickness_charts.put(key, svg)
     return Response(

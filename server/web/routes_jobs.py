@@ -8,7 +8,6 @@ A test checks that pages keep answering while the optimiser runs.
 from __future__ import annotations
 
 import math
-import re
 from typing import Any
 
 import sqlite_utils
@@ -22,6 +21,7 @@ from server.app.optimiser_jobs import (
     start_optimiser,
 )
 from server.errors import InputError
+from server.numbers import to_number
 from server.store import (
     Job,
     get_job,
@@ -30,18 +30,10 @@ from server.store import (
 )
 from server.store.errors import JobNotFound
 from server.web.deps import Db
-from server.web.edits import FormReader, PostedForm, parse_number
+from server.web.edits import FormReader, PostedForm
 from server.web.templating import is_htmx, render
 
 router = APIRouter(include_in_schema=False)
-
-
-def read_amount(text: str) -> float | None:
-    """A money amount as typed: "30000", "30,000", "30 000" or "30000.50"; None if not one."""
-    cleaned = text.strip().replace("\u00a0", "").replace(" ", "")
-    if re.fullmatch(r"\d{1,3}(,\d{3})+(\.\d+)?", cleaned):
-        cleaned = cleaned.replace(",", "")
-    return parse_number(cleaned) if cleaned else None
 
 
 def job_response(
@@ -80,7 +72,7 @@ def start_optimiser_route(request: Request, project_id: int, db: Db, form: Poste
         notice = {"kind": "error", "text": "This project is deleted (read only)."}
         return job_response(request, db, project_id, None, notice=notice, status_code=409)
     method_ids = [m["id"] for m in project.model.get("methods") or []]
-    budget = read_amount(reader.raw("budget"))
+    budget = to_number(reader.raw("budget"), decimal_comma=True, money=True)
     chosen = [m for m in reader.all("methods") if m]
     name = reader.text("name", "name", required=False, max_len=120)
     problem = None

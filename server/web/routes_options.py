@@ -15,26 +15,23 @@ exclusion is allowed by the model file, so it is saved with a visible warning.
 from __future__ import annotations
 
 import copy
-import re
 from typing import Any
 from urllib.parse import parse_qs, quote, urlsplit
 
-import numpy as np
-import shapely
 import sqlite_utils
 from fastapi import APIRouter, Request
 from starlette.responses import Response
 
 from server.app.layouts import KIND_LABELS, layout_kind
 from server.app.optimiser_jobs import latest_optimiser_job
+from server.app.project import layout_position, model_layout
 from server.app.results import results_of
 from server.core.options import GUIDANCE_SPACINGS, guidance_grid_layout
 from server.errors import InputError
-from server.io.model_file import to_shapely, unique_layout_name
+from server.io.model_file import unique_layout_name
 from server.store import StoredProject, get_project
 from server.web.deps import Db
 from server.web.edits import (
-    EditRefused,
     EditResult,
     FormReader,
     PostedForm,
@@ -42,6 +39,15 @@ from server.web.edits import (
     page_context,
     run_edit,
     run_undo,
+)
+from server.web.layout_edits import (
+    exclusion_hits,
+    inside_site,
+    layout_index,
+    layout_warnings,
+    method_kinds,
+    next_probe_id,
+    probe_index,
 )
 from server.web.map_data import map_data
 from server.web.summary import layout_rows
@@ -61,72 +67,6 @@ def layout_url(project_id: int, name: str | None) -> str:
     return f"{base}?layout={quote(name, safe='')}" if name else base
 
 
-# ---------------------------------------------------------------- reading the model
-
-
-def layouts_of(model: dict[str, Any]) -> list[dict[str, Any]]:
-    return list(model.get("layouts") or [])
-
-
-def layout_index(model: dict[str, Any], name: str) -> int:
-    for i, layout in enumerate(layouts_of(model)):
-        if layout["name"] == name:
-            return i
-    raise EditRefused("layout", f"there is no layout named {name!r}; reload the page")
-
-
-def probe_index(layout: dict[str, Any], probe_id: str, path: str) -> int:
-    for j, probe in enumerate(layout.get("probes") or []):
-        if str(probe["id"]) == probe_id:
-            return j
-    raise EditRefused(path, f"layout {layout['name']!r} has no probe {probe_id!r}; reload the page")
-
-
-def method_kinds(model: dict[str, Any]) -> dict[str, str]:
-    return {m["id"]: m.get("kind", "other") for m in model.get("methods") or []}
-
-
-def next_probe_id(layout: dict[str, Any], method_id: str) -> str:
-    """``<method>-NN``: the next number not used by this layout's probes of that prefix."""
-    used = {str(p["id"]) for p in layout.get("probes") or []}
-    pattern = re.compile(rf"^{re.escape(method_id)}-(\d+)$")
-    numbers = [int(m.group(1)) for pid in used if (m := pattern.match(pid))]
-    n = max(numbers, default=0) + 1
-    while f"{method_id}-{n:02d}" in used:
-        n += 1
-    return f"{method_id}-{n:02d}"
-
-
-def exclusion_hits(model: dict[str, Any], x: float, y: float) -> list[str]:
-    """Names of the exclusions containing the point (on the edge counts)."""
-    return [
-        e["name"]
-        for e in model.get("exclusions") or []
-        if shapely.intersects_xy(to_shapely(e["geometry"]), x, y)
-    ]
-
-
-def inside_site(model: dict[str, Any], x: float, y: float) -> bool:
-    return bool(shapely.intersects_xy(to_shapely(model["site"]), x, y))
-
-
-def layout_warnings(model: dict[str, Any], name: str | None) -> list[str]:
-    """Probes of a layout that lie in an exclusion (allowed, but worth a look)."""
-    if name is None:
-        return []
-    exclusions = [(e["name"], to_shapely(e["geometry"])) for e in model.get("exclusions") or []]
-    layout = next((lay for lay in layouts_of(model) if lay["name"] == name), None)
-    if not exclusions or not layout or not layout.get("probes"):
-        return []
-    xs = np.array([p["x"] for p in layout["probes"]], dtype=float)
-    ys = np.array([p["y"] for p in layout["probes"]], dtype=float)
-    out = []
-    for exclusion, geometry in exclusions:
-        for j in np.flatnonzero(shapely.intersects_xy(geometry, xs, ys)):
-            out.append(f"{layout['probes'][j]['id']} lies in the exclusion \u201c{exclusion}\u201d")
-    return out
-
-
 # ---------------------------------------------------------------- page context
 
 
@@ -135,7 +75,7 @@ def probes_data(
 ) -> dict[str, Any]:
     """The selected layout's probes for the map, with the revision every edit must send."""
     kinds = method_kinds(model)
-    layout = next((lay for lay in layouts_of(model) if lay["name"] == selected), None)
+    layout = model_layout(model, selected)
     probes = []
     for p in (layout or {}).get("probes") or []:
         probes.append(
@@ -180,7 +120,7 @@ def options_context(
     )
     model = project.model  # always the stored state: edits here are structural
     context["model"] = model
-    layouts = layouts_of(model)
+    layouts = list(model.get("layouts") or [])
     names = [layout["name"] for layout in layouts]
     if selected not in names:
         selected = names[0] if names else None
@@ -188,7 +128,7 @@ def options_context(
     rows = layout_rows(model)
     kinds = {layout["name"]: layout_kind(layout) for layout in layouts}
     editable = not project.deleted
-    layout = layouts[names.index(selected)] if selected is not None else None
+    layout = model_layout(model, selected)
     job = latest_optimiser_job(db, project_id)
     context.update(
         page_title="Options",
@@ -419,7 +359,7 @@ def new_layout(request: Request, project_id: int, db: Db, form: PostedForm) -> R
     def edit(model: dict[str, Any]) -> str:
         layouts = model.setdefault("layouts", [])
         name = read_layout_name(reader, "name", f"layouts[{len(layouts)}].name")
-        if any(layout["name"] == name for layout in layouts):
+        if layout_position(model, name) is not None:
             raise InputError(f"layouts[{len(layouts)}].name", f"{name!r} is already a layout")
         layouts.append({"name": name, "origin": "hand", "probes": []})
         created.append(name)
@@ -459,7 +399,7 @@ def rename_layout(request: Request, project_id: int, db: Db, form: PostedForm) -
     def edit(model: dict[str, Any]) -> str:
         i = layout_index(model, name)
         new = read_layout_name(reader, "new_name", f"layouts[{i}].name")
-        if new != name and any(layout["name"] == new for layout in model["layouts"]):
+        if new != name and layout_position(model, new) is not None:
             raise InputError(f"layouts[{i}].name", f"{new!r} is already a layout")
         model["layouts"][i]["name"] = new
         renamed.append(new)

@@ -21,6 +21,7 @@ import sqlite_utils
 from fastapi import APIRouter, Request
 from starlette.responses import Response
 
+from server.app.project import model_layout
 from server.app.results import ProjectResults, project_results, results_of
 from server.app.schedule import Schedule, build_schedule, main_boundary_index, probe_rows
 from server.errors import InputError
@@ -29,7 +30,6 @@ from server.store import get_project
 from server.web import plots
 from server.web.deps import Db
 from server.web.downloads import attachment_headers, slug_of
-from server.web.justify import register_template_filters
 from server.web.result_figures import (
     chosen_layout,
     current_revision_named,
@@ -41,7 +41,6 @@ from server.web.templating import kind_label, render_page_or_fragment
 from server.web.workflow import project_context
 
 router = APIRouter(include_in_schema=False)
-register_template_filters()
 
 PAPERS = {"a4": "A4", "letter": "Letter"}
 
@@ -86,7 +85,7 @@ def schedule_context(
     main = main_boundary_index(entry.project)
     query = {"layout": chosen, "rev": str(project.revision)}
     base = f"/projects/{project_id}"
-    layout_doc = next(lay for lay in entry.model.get("layouts") or [] if lay["name"] == chosen)
+    layout_doc = model_layout(entry.model, chosen) or {}
     context.update(
         chosen=chosen,
         layout_description=layout_doc.get("description") or "",

@@ -200,41 +200,38 @@ def feature_bounds(model: dict[str, Any]) -> tuple[float, float, float, float]:
     return min(xs), min(ys), max(xs), max(ys)
 
 
-def build_site_map(model: dict[str, Any]) -> SiteMap:
-    """Everything the template needs to draw the site of a (validated) model."""
-    projection = Projection(feature_bounds(model))
-
-    def map_shapes(
-        items: list[dict[str, Any]], prefix: str, note_of=lambda item: ""
-    ) -> list[MapShape]:
-        shapes = []
-        for number, item in enumerate(items, start=1):
-            rings = polygon_rings(item.get("geometry"))
-            if not rings:
-                continue
-            lx, ly = label_point(item["geometry"], rings)
-            label_x = projection.x(lx)
-            shapes.append(
-                MapShape(
-                    name=str(item.get("name", "")),
-                    tag=f"{prefix}{number}",
-                    path=projection.path(rings),
-                    label_x=round(label_x, 1),
-                    label_y=round(projection.y(ly), 1),
-                    note=note_of(item),
-                    anchor=anchor_for(label_x, projection),
-                )
+def map_shapes(
+    projection: Projection,
+    items: list[dict[str, Any]],
+    prefix: str,
+    note_of=lambda item: "",
+) -> list[MapShape]:
+    """Labelled map shapes of a section's polygons (``Z1``, ``A2``...), in the frame."""
+    shapes = []
+    for number, item in enumerate(items, start=1):
+        rings = polygon_rings(item.get("geometry"))
+        if not rings:
+            continue
+        lx, ly = label_point(item["geometry"], rings)
+        label_x = projection.x(lx)
+        shapes.append(
+            MapShape(
+                name=str(item.get("name", "")),
+                tag=f"{prefix}{number}",
+                path=projection.path(rings),
+                label_x=round(label_x, 1),
+                label_y=round(projection.y(ly), 1),
+                note=note_of(item),
+                anchor=anchor_for(label_x, projection),
             )
-        return shapes
+        )
+    return shapes
 
-    site_rings = polygon_rings(model.get("site"))
-    site = None
-    if site_rings:
-        lx, ly = label_point(model["site"], site_rings)
-        site = MapShape("Site", "", projection.path(site_rings), projection.x(lx), projection.y(ly))
 
+def map_probes(projection: Projection, model: dict[str, Any]) -> list[MapProbe]:
+    """The existing probes in the frame."""
     kinds = {m["id"]: m.get("kind", "other") for m in model.get("methods") or []}
-    probes = [
+    return [
         MapProbe(
             id=str(p["id"]),
             method=str(p["method"]),
@@ -247,6 +244,9 @@ def build_site_map(model: dict[str, Any]) -> SiteMap:
         for p in model.get("existing") or []
     ]
 
+
+def map_ticks(projection: Projection) -> tuple[list[MapTick], list[MapTick]]:
+    """Round-numbered ticks along x and y (about five each)."""
     x_step = nice_step(projection.max_x - projection.min_x, 5)
     y_step = nice_step(projection.max_y - projection.min_y, 5)
     x_ticks = [
@@ -257,16 +257,48 @@ def build_site_map(model: dict[str, Any]) -> SiteMap:
         MapTick(round(projection.y(v), 1), format_coordinate(v, y_step))
         for v in tick_values(projection.min_y, projection.max_y, y_step)
     ]
+    return x_ticks, y_ticks
+
+
+def map_scale_bar(projection: Projection) -> ScaleBar:
+    """A scale bar of a round length, about a quarter of the frame's width, below the frame."""
+    world_w = projection.max_x - projection.min_x
+    bar_m = nice_length_at_most(world_w / 4)
+    bar_px = bar_m * projection.scale
+    frame_bottom = MARGIN_TOP_PX + projection.frame_h
+    return ScaleBar(
+        x=MARGIN_LEFT_PX,
+        y=round(frame_bottom + 58, 1),
+        length_px=round(bar_px, 1),
+        half_px=round(bar_px / 2, 1),
+        label=format_length_m(bar_m),
+    )
+
+
+def build_site_map(model: dict[str, Any]) -> SiteMap:
+    """Everything the template needs to draw the site of a (validated) model."""
+    projection = Projection(feature_bounds(model))
+
+    site_rings = polygon_rings(model.get("site"))
+    site = None
+    if site_rings:
+        lx, ly = label_point(model["site"], site_rings)
+        site = MapShape("Site", "", projection.path(site_rings), projection.x(lx), projection.y(ly))
+
+    probes = map_probes(projection, model)
+
+    x_ticks, y_ticks = map_ticks(projection)
 
     zones, areas, exclusions = spread_labels(
         [
-            map_shapes(model.get("zones") or [], "Z"),
+            map_shapes(projection, model.get("zones") or [], "Z"),
             map_shapes(
+                projection,
                 model.get("areas_of_interest") or [],
                 "A",
                 lambda item: f"weight {item.get('weight', 1):g}",
             ),
-            map_shapes(model.get("exclusions") or [], "X"),
+            map_shapes(projection, model.get("exclusions") or [], "X"),
         ]
     )
 
@@ -276,17 +308,8 @@ def build_site_map(model: dict[str, Any]) -> SiteMap:
     else:
         x_caption, y_caption, north_label = "x (m), local site grid", "y (m)", "+y"
 
-    world_w = projection.max_x - projection.min_x
-    bar_m = nice_length_at_most(world_w / 4)
-    bar_px = bar_m * projection.scale
     frame_bottom = MARGIN_TOP_PX + projection.frame_h
-    scale_bar = ScaleBar(
-        x=MARGIN_LEFT_PX,
-        y=round(frame_bottom + 58, 1),
-        length_px=round(bar_px, 1),
-        half_px=round(bar_px / 2, 1),
-        label=format_length_m(bar_m),
-    )
+    scale_bar = map_scale_bar(projection)
     return SiteMap(
         width=round(MARGIN_LEFT_PX + projection.frame_w + MARGIN_RIGHT_PX, 1),
         height=round(frame_bottom + MARGIN_BOTTOM_PX, 1),

@@ -8,6 +8,7 @@ first load and an htmx swap produce the same markup.
 from __future__ import annotations
 
 import math
+import re
 from collections.abc import Callable, Mapping
 from datetime import datetime
 from pathlib import Path
@@ -19,6 +20,7 @@ from fastapi.templating import Jinja2Templates
 from starlette.responses import RedirectResponse, Response
 
 from server.caution import CAUTION
+from server.core.priors import DEFAULT_SHAPE, THICKNESS_SHAPES
 
 REPO_ROOT = Path(__file__).resolve().parents[2]
 TEMPLATES_DIR = REPO_ROOT / "templates"
@@ -88,7 +90,44 @@ def kind_label(kind: str) -> str:
     return METHOD_KIND_LABELS.get(kind, str(kind).replace("_", " ").capitalize())
 
 
+def format_money_whole(value: object) -> str:
+    """An estimate in whole currency units with thousands separators; a dash when absent."""
+    if value is None or value == "":
+        return "\u2014"
+    number = float(value)  # type: ignore[arg-type]
+    return f"{number:,.0f}" if math.isfinite(number) else "\u2014"
+
+
+def format_percent(value: object) -> str:
+    """A share 0..1 as a whole percentage; a dash when absent (boundary not of interest)."""
+    if value is None or value == "":
+        return "\u2014"
+    return f"{100 * float(value):.0f}%"  # type: ignore[arg-type]
+
+
+def format_input_number(value: Any) -> str:
+    """A number for an input's value: exact (never rounded, so saving keeps it), no '.0'."""
+    if value is None:
+        return ""
+    if isinstance(value, bool) or not isinstance(value, int | float):
+        return str(value)
+    text = repr(float(value))
+    return text[:-2] if text.endswith(".0") else text
+
+
+def field_id(path: str) -> str:
+    """An HTML id for a model path: ``units[2].thickness_m`` -> ``f-units-2-thickness_m``."""
+    return "f-" + (re.sub(r"[^A-Za-z0-9_]+", "-", path).strip("-") or "form")
+
+
+def shape_label(name: str) -> str:
+    """A thickness shape's label (``pert`` -> ``PERT``) from the one registry of shapes."""
+    shape = THICKNESS_SHAPES.get(name)
+    return shape.label if shape else str(name)
+
+
 def build_environment(templates_dir: Path = TEMPLATES_DIR) -> jinja2.Environment:
+    """The one Jinja environment: every filter and global the templates use is set here."""
     env = jinja2.Environment(
         loader=jinja2.FileSystemLoader(str(templates_dir)),
         autoescape=True,  # every template, whatever its extension
@@ -102,8 +141,17 @@ def build_environment(templates_dir: Path = TEMPLATES_DIR) -> jinja2.Environment
         money=format_money,
         when=format_when,
         kind_label=kind_label,
+        shape_label=shape_label,
+        money0=format_money_whole,
+        percent=format_percent,
+        inum=format_input_number,
     )
-    env.globals.update(caution=CAUTION, htmx_js=find_htmx_path())
+    env.globals.update(
+        caution=CAUTION,
+        htmx_js=find_htmx_path(),
+        default_shape=DEFAULT_SHAPE,
+        field_id=field_id,
+    )
     return env
 
 

@@ -29,7 +29,7 @@ from fastapi.testclient import TestClient
 from reliability_helpers import BASE_URL, free_port, links_of, served, store_snapshot
 
 from server.errors import InputError
-from server.io.geo_io import _extract_zip
+from server.io.gis_files import extract_zip as _extract_zip
 from server.web.app import create_app
 
 # ---------------------------------------------------------------- archives

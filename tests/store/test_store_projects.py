@@ -5,6 +5,7 @@ import copy
 import pytest
 
 from server.errors import InputError
+from server.io.model_file import ValidModel, check_model
 from server.store import (
     NothingToUndo,
     ProjectDeleted,
@@ -148,6 +149,19 @@ def test_invalid_model_refused_and_store_unchanged(db, tiny, spoil):
     assert snapshot(db, project_id) == before
     assert [p.id for p in list_projects(db, include_deleted=True)] == [project_id]
     assert db["revisions"].count == 1
+
+
+def test_a_checked_model_is_stored_as_checked_and_cannot_be_forged(db, tiny):
+    project_id = create_project(db, tiny)
+    valid, problems = check_model(edited(tiny, "Checked"))
+    assert problems == [] and valid is not None
+    assert save_project(db, project_id, valid, 1, "checked edit") == 2
+    assert get_project(db, project_id).model == valid.document
+    bad = copy.deepcopy(tiny)
+    bad["schema"] = "probewise/99"
+    assert check_model(bad)[0] is None
+    with pytest.raises(TypeError):
+        ValidModel(bad)  # only check_model makes one: the store's trust is not open to forgery
 
 
 def test_undo_multi_step(db, tiny, model_validator):

@@ -9,8 +9,7 @@ import re
 from fastapi.testclient import TestClient
 from web_helpers import htmx, links_of
 
-from server.web.edits import field_id
-from server.web.templating import CAUTION
+from server.web.templating import CAUTION, field_id
 
 CAUTION_HTML = html.escape(CAUTION, quote=False)
 

@@ -15,8 +15,7 @@ from server.app.layouts import layout_kind
 from server.app.to_core import to_core
 from server.core.evaluate import evaluate_project
 from server.core.options import rank_options
-from server.web.justify import format_money_whole
-from server.web.templating import CAUTION
+from server.web.templating import CAUTION, format_money_whole
 
 CAUTION_HTML = html.escape(CAUTION, quote=False)
 PNG = b"\x89PNG\r\n\x1a\n"

@@ -20,8 +20,8 @@ from edit_helpers import (
 )
 from io_builders import TINY_EXPECTED, TINY_LAYERS, TINY_LOCATIONS, TINY_MAPPING, ags4_text
 
-from server.web.edits import field_id
 from server.web.routes_existing import guess_method, guess_unit
+from server.web.templating import field_id
 
 EXISTING = "/projects/{}/existing"
 

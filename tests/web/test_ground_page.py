@@ -23,7 +23,7 @@ from edit_helpers import (
 from server.core.model import ThicknessRange
 from server.core.priors import thickness_moments
 from server.web.charts import thickness_density, thickness_distribution
-from server.web.edits import field_id
+from server.web.templating import field_id
 
 GROUND = "/projects/{}/ground"
 

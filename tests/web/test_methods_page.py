@@ -16,7 +16,7 @@ from edit_helpers import (
     revision_of,
 )
 
-from server.web.edits import field_id
+from server.web.templating import field_id
 
 METHODS = "/projects/{}/methods"
 

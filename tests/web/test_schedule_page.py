@@ -13,9 +13,9 @@ import pytest
 from decision_helpers import attribute_values, import_model
 from web_helpers import htmx
 
+from server.app.justification import MainBoundary, OptionFigures, justification
 from server.app.to_core import to_core
 from server.core.evaluate import evaluate_project
-from server.web.justify import MainBoundary, OptionFigures, justification
 from server.web.templating import CAUTION
 
 CAUTION_HTML = html.escape(CAUTION, quote=False)

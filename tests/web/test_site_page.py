@@ -23,8 +23,9 @@ from edit_helpers import (
 )
 from web_helpers import htmx
 
-from server.web.edits import field_id
+from server.io import model_file
 from server.web.polygon_text import parse_polygon_text, polygon_text
+from server.web.templating import field_id
 
 SITE = "/projects/{}/site"
 
@@ -92,6 +93,24 @@ def test_grid_spacing_edit_saves_a_revision(client, tiny_id, tiny_model):
     assert "Saved as revision 2" in notice_of(answer.text)
     assert last_message(client, tiny_id) == "Set the grid spacing to 4 m"
     assert 'name="expected_revision" value="2"' in answer.text
+
+
+def test_a_save_validates_the_model_once(client, tiny_id, tiny_model, monkeypatch):
+    """The edit checks the whole model once and the store keeps that check."""
+    calls = []
+    checked = model_file._validate
+
+    def counted(data, first_only):
+        calls.append(first_only)
+        return checked(data, first_only)
+
+    monkeypatch.setattr(model_file, "_validate", counted)
+    answer = post(
+        client, f"/projects/{tiny_id}/site/settings", settings(tiny_model, 1, grid_spacing_m=4)
+    )
+    assert answer.status_code == 200, notice_of(answer.text)
+    assert revision_of(client, tiny_id) == 2
+    assert len(calls) == 1
 
 
 @pytest.mark.parametrize(
