@@ -28,6 +28,8 @@ COMMANDS = {
     "thickness": ("thickness", "each unit's thickness in the existing probes; ranges to check"),
     "import-gis": ("import_gis", "take a site outline, zones or areas from a GIS file"),
     "export": ("export", "export a schedule or the posterior grid to CSV/GeoJSON/GeoPackage"),
+    "readings": ("readings", "check every existing reading against its prediction"),
+    "fit": ("fit", "fit the ground model to the existing readings"),
 }
 
 

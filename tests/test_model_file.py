@@ -191,7 +191,7 @@ BROKEN = [
         "units[0].correlation.model",
         "matern",
         "=",
-        '"exponential", "gaussian" or "spherical"',
+        '"exponential", "gaussian", "spherical", "matern32" or "matern52"',
     ),
     ("correlation-range-zero", "units[0].correlation.range_m", 0, "=", "> 0"),
     # references to units

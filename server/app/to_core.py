@@ -84,9 +84,15 @@ def core_ground(model: dict) -> GroundModel:
             Unit(
                 name=u["name"],
                 thickness=core_range(thick) if thick else None,
-                correlation=Correlation(corr["model"], float(corr["range_m"])) if corr else None,
+                correlation=(
+                    Correlation(corr["model"], float(corr["range_m"]), float(u.get("nugget", 0.0)))
+                    if corr
+                    else None
+                ),
                 description=u.get("description", "") or "",
                 presence=float(u.get("presence") or 1.0),
+                spread_multiplier=float(u.get("spread_multiplier", 1.0)),
+                mean_shift_m=float(u.get("mean_shift_m", 0.0)),
             )
         )
     zones = tuple(
@@ -114,11 +120,16 @@ def core_ground(model: dict) -> GroundModel:
         )
         for b in model.get("bounds") or []
     )
+    pairs = tuple(
+        (*sorted((index[p["units"][0]], index[p["units"][1]])), float(p["rho"]))
+        for p in model.get("thickness_correlation") or []
+    )
     return GroundModel(
         tuple(units),
         zones,
         interest,
         bounds,
+        thickness_correlation=pairs,
         ground_level=core_ground_level(model.get("ground_level")),
         history=tuple(core_history_rule(r, model) for r in model.get("history") or []),
     )
@@ -231,6 +242,7 @@ def core_existing(spec: dict, model: dict, methods: dict[str, Method]) -> Existi
         final_depth_m=float(spec.get("final_depth_m") or max(observed.values(), default=0.0)),
         observed=observed,
         precision_m=precision,
+        stage=spec.get("stage"),
     )
 
 

@@ -79,6 +79,11 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         "--preview", action="store_true", help="show what would be read; write nothing"
     )
     parser.add_argument("-o", "--output", metavar="OUT", help="updated model file to write")
+    parser.add_argument(
+        "--stage",
+        metavar="TEXT",
+        help="stage label for every imported probe (e.g. 'Phase 2'), for readings --by-stage",
+    )
 
 
 def _read_bytes(path: str) -> bytes:
@@ -195,6 +200,10 @@ def _run(args: argparse.Namespace) -> int:
     importable = [p for p in probes if p["id"] not in set(outside)]
     if not importable:
         raise InputError(name, "no probe left to import")
+    if args.stage is not None:  # the results of one stage of fieldwork
+        if not args.stage.strip():
+            raise InputError("--stage", "must be a non-empty text")
+        importable = [{**p, "stage": args.stage} for p in importable]
 
     from server.io.probes_in import merge_existing
 

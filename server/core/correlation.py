@@ -5,7 +5,13 @@ The practical range r is the distance at which the correlation falls to about 5%
 
 - exponential: exp(-3 h / r);
 - gaussian: exp(-3 h^2 / r^2);
-- spherical: 1 - 1.5 (h/r) + 0.5 (h/r)^3 for h < r, else 0.
+- spherical: 1 - 1.5 (h/r) + 0.5 (h/r)^3 for h < r, else 0;
+- matern32, matern52: Matérn with smoothness 3/2 and 5/2 (``server/core/matern.py``: the
+  scale factor is solved so that the correlation is 5% at r).
+
+A unit's nugget eta in [0, 1) adds variation with no spatial structure:
+rho(h) = (1 - eta) rho_model(h) + eta [h = 0] (:func:`correlate_unit`); only exactly
+coincident points share the nugget.
 
 Adding a model is one entry in ``CORRELATION_MODELS``: the model file's allowed names and the
 Ground page's choices derive from it.
@@ -17,6 +23,8 @@ from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
+
+from server.core.matern import matern32, matern52
 
 
 @dataclass(frozen=True)
@@ -52,6 +60,8 @@ CORRELATION_MODELS: dict[str, CorrelationModel] = {
         CorrelationModel("exponential", "Exponential", _exponential),
         CorrelationModel("gaussian", "Gaussian", _gaussian),
         CorrelationModel("spherical", "Spherical", _spherical),
+        CorrelationModel("matern32", "Matérn 3/2", matern32),
+        CorrelationModel("matern52", "Matérn 5/2", matern52),
     )
 }
 CORRELATION_MODEL_NAMES: tuple[str, ...] = tuple(CORRELATION_MODELS)
@@ -77,6 +87,19 @@ def correlate(model: str, h_m: np.ndarray, range_m: float) -> np.ndarray:
     if entry is None:
         raise ValueError(f"unknown correlation model {model!r}")
     return entry.formula(np.asarray(h_m, dtype=float) / float(range_m))
+
+
+def correlate_unit(corr, h_m: np.ndarray) -> np.ndarray:
+    """A unit's correlation at distances ``h_m`` (any shape), its nugget included.
+
+    ``corr`` is a ``server.core.model.Correlation``; with nugget 0 this is exactly
+    :func:`correlate`.
+    """
+    rho = correlate(corr.model, h_m, corr.range_m)
+    eta = float(getattr(corr, "nugget", 0.0))
+    if eta:
+        rho = (1.0 - eta) * rho + eta * (np.asarray(h_m) == 0.0)
+    return rho
 
 
 def pairwise_distance_m(xy_a: np.ndarray, xy_b: np.ndarray) -> np.ndarray:

@@ -7,14 +7,19 @@ With D_k(x) = T_1(x) + ... + T_k(x) and independent units,
 (docs/model.md "Probability model"). Indices here are 0-based: boundary k is the base of unit k
 and sums units 0..k. Both functions build the sum one unit at a time, so the cost is one
 correlation evaluation per unit and pair of points, whatever the number of boundaries.
+
+Correlated thicknesses (``GroundModel.thickness_correlation``) take the general form of a
+linear model of coregionalisation, Cov(D_j(x), D_k(y)) = sum_l A_jl(x) A_kl(y) rho_l(|x-y|)
+with the loadings of ``server.core.field.boundary_loadings``; independent units keep the
+sum above unchanged. Each rho_i includes the unit's nugget (``correlate_unit``).
 """
 
 from __future__ import annotations
 
 import numpy as np
 
-from server.core.correlation import correlate, pairwise_distance_m
-from server.core.field import UnitFields
+from server.core.correlation import correlate_unit, pairwise_distance_m
+from server.core.field import UnitFields, boundary_loadings
 from server.core.model import GroundModel
 
 
@@ -50,15 +55,23 @@ def boundary_covariance(
     bnd_a = np.asarray(bnd_a, dtype=int).reshape(-1)
     bnd_b = np.asarray(bnd_b, dtype=int).reshape(-1)
     h = pairwise_distance_m(xy_a, xy_b)
+    if fields_a.coreg is not None:
+        load_a = boundary_loadings(fields_a)[np.arange(len(bnd_a)), bnd_a]  # (na, B)
+        load_b = boundary_loadings(fields_b)[np.arange(len(bnd_b)), bnd_b]
+        out = np.zeros(h.shape)
+        for i in range(ground.n_boundaries):
+            out += np.outer(load_a[:, i], load_b[:, i]) * correlate_unit(
+                ground.units[i].correlation, h
+            )
+        return out
     shallower = np.minimum(bnd_a[:, None], bnd_b[None, :])
     out = np.zeros(h.shape)
     for i in range(ground.n_boundaries):
         active = shallower >= i
         if not active.any():
             break
-        corr = ground.units[i].correlation
-        term = np.outer(fields_a.std_m[:, i], fields_b.std_m[:, i]) * correlate(
-            corr.model, h, corr.range_m
+        term = np.outer(fields_a.std_m[:, i], fields_b.std_m[:, i]) * correlate_unit(
+            ground.units[i].correlation, h
         )
         out += np.where(active, term, 0.0)
     return out
@@ -112,15 +125,31 @@ def cross_covariance_all(
     deepest = np.full(len(spots), -1)
     np.maximum.at(deepest, spot_of, bnd_obs)
     h = pairwise_distance_m(spots, xy_pts)  # (u, n)
+    if fields_obs.coreg is not None:
+        return _cross_coregionalised(ground, bnd_obs, spot_of, fields_obs, h, fields_pts)
     cum = np.empty((len(spots), B, n))
     acc = np.zeros((len(spots), n))
     for i in range(B):
         if (deepest >= i).any():
-            corr = ground.units[i].correlation
-            rho = correlate(corr.model, h, corr.range_m)
+            rho = correlate_unit(ground.units[i].correlation, h)
             rho *= s_spot[:, i, None]
             rho *= fields_pts.std_m[None, :, i]
             acc += rho
         cum[:, i, :] = acc
     level = np.minimum(bnd_obs[:, None], np.arange(B)[None, :])  # (m, B)
     return cum[spot_of[:, None], level]
+
+
+def _cross_coregionalised(ground, bnd_obs, spot_of, fields_obs, h, fields_pts):
+    """:func:`cross_covariance_all` for correlated thicknesses: ``(m, B, n)``."""
+    load_obs = boundary_loadings(fields_obs)[np.arange(len(bnd_obs)), bnd_obs]  # (m, B)
+    load_pts = boundary_loadings(fields_pts)  # (n, B, B)
+    out = np.zeros((len(bnd_obs), ground.n_boundaries, h.shape[1]))
+    for i in range(ground.n_boundaries):
+        rho = correlate_unit(ground.units[i].correlation, h)[spot_of]  # (m, n)
+        out += (
+            load_obs[:, i, None, None]
+            * rho[:, None, :]
+            * load_pts[None, :, :, i].transpose(0, 2, 1)
+        )
+    return out

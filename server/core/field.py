@@ -4,6 +4,13 @@ A point takes the first zone (in order) that contains it; a unit that zone overr
 the zone's range there, every other unit its default range (docs/model.md "Probability
 model"). A unit with a presence p < 1 takes the moments of the mixture "absent with 1 - p,
 else the range" (server.core.priors.presence_moments) and a minimum of 0.
+A unit's ``spread_multiplier`` scales its std and its ``mean_shift_m`` moves its mean,
+minimum (clamped at 0) and maximum, in every zone (an adopted fit); presence applies after.
+
+Correlated thicknesses (a linear model of coregionalisation, docs/model.md): with C the lag-0
+correlation between unit thicknesses and L = chol(C), T_i(x) - mu_i(x) = s_i(x) sum_{l<=i}
+L_il Z_l(x) for independent unit-variance fields Z_l, so boundary k loads on field l with
+A_kl(x) = sum_{i=l..k} s_i(x) L_il (:func:`boundary_loadings`).
 """
 
 from __future__ import annotations
@@ -13,7 +20,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from server.core.geometry import distance_to_edge_m, points_in_polygon
-from server.core.model import GroundModel, ThicknessRange
+from server.core.model import GroundModel, ThicknessRange, Unit
 from server.core.priors import presence_moments, thickness_moments
 
 
@@ -22,6 +29,8 @@ class UnitFields:
     """Thickness prior of each non-basal unit at ``n`` points; arrays ``(n, U-1)`` in m.
 
     ``zone`` is ``(n,)`` int: index of the zone each point takes, -1 for none.
+    ``coreg`` is the lower Cholesky factor ``(U-1, U-1)`` of the lag-0 correlation between
+    unit thicknesses, or None when the units are independent.
     """
 
     mean_m: np.ndarray
@@ -29,6 +38,7 @@ class UnitFields:
     min_m: np.ndarray
     max_m: np.ndarray
     zone: np.ndarray
+    coreg: np.ndarray | None = None
 
     @property
     def n_points(self) -> int:
@@ -42,6 +52,7 @@ class UnitFields:
             self.min_m[index],
             self.max_m[index],
             self.zone[index],
+            self.coreg,
         )
 
 
@@ -61,11 +72,51 @@ def zone_of_points(
     return zone
 
 
-def _range_row(rng: ThicknessRange, presence: float = 1.0) -> tuple[float, float, float, float]:
-    """(mean, std, min, max) of a range; a unit present with probability < 1 can be 0 thick."""
-    mean, std = presence_moments(*thickness_moments(rng), presence)
-    low = float(rng.min_m) if presence >= 1.0 else 0.0
-    return mean, std, low, float(rng.max_m)
+def _range_row(rng: ThicknessRange, unit: Unit) -> tuple[float, float, float, float]:
+    """(mean, std, min, max) of a unit's range: an adopted fit's shift and spread multiplier
+    first, then the presence mixture (a unit present with probability < 1 can be 0 thick)."""
+    mean, std = thickness_moments(rng)
+    shift = unit.mean_shift_m
+    low = max(float(rng.min_m) + shift, 0.0)
+    mean, std = mean + shift, std * unit.spread_multiplier
+    mean, std = presence_moments(mean, std, unit.presence)
+    return mean, std, (low if unit.presence >= 1.0 else 0.0), float(rng.max_m) + shift
+
+
+def lag0_correlation(ground: GroundModel) -> np.ndarray:
+    """Lag-0 correlation matrix C between the thicknesses of the non-basal units: ``(B, B)``.
+
+    Identity but for the model's pairs.
+    """
+    c = np.eye(ground.n_boundaries)
+    for i, j, rho in ground.thickness_correlation:
+        c[i, j] = c[j, i] = rho
+    return c
+
+
+def coregionalisation_factor(ground: GroundModel) -> np.ndarray | None:
+    """Lower Cholesky factor L of :func:`lag0_correlation`, or None for independent units.
+
+    Raises ValueError when C is not positive definite.
+    """
+    if not ground.thickness_correlation:
+        return None
+    try:
+        return np.linalg.cholesky(lag0_correlation(ground))
+    except np.linalg.LinAlgError:
+        raise ValueError("thickness correlation matrix is not positive definite") from None
+
+
+def boundary_loadings(fields: UnitFields) -> np.ndarray:
+    """Loadings of every boundary depth on the independent unit fields: ``(n, B, B)``.
+
+    ``out[p, k, l] = sum_{i=l..k} s_i(x_p) L_il`` (L the identity for independent units,
+    giving ``s_l(x_p)`` for ``l <= k`` and 0 above), so that
+    ``Cov(D_j(x), D_k(y)) = sum_l out[x, j, l] out[y, k, l] rho_l(|x - y|)``.
+    """
+    n, B = fields.std_m.shape
+    low = fields.coreg if fields.coreg is not None else np.eye(B)
+    return np.cumsum(fields.std_m[:, :, None] * low[None, :, :], axis=1)
 
 
 def unit_fields(
@@ -91,14 +142,13 @@ def unit_fields(
     zone = zone_of_points(ground, xy, origin)
     # Table of (mean, std, min, max) per (zone + 1, unit); row 0 = defaults.
     table = np.empty((len(ground.zones) + 1, n_thick, 4))
-    presence = [ground.units[i].presence for i in range(n_thick)]
     for i in range(n_thick):
-        table[0, i] = _range_row(ground.units[i].thickness, presence[i])
+        table[0, i] = _range_row(ground.units[i].thickness, ground.units[i])
     for z, spec in enumerate(ground.zones):
         table[z + 1] = table[0]
         for i, rng in spec.thickness.items():
             if 0 <= i < n_thick:  # a zone's range applies where the unit is present
-                table[z + 1, i] = _range_row(rng, presence[i])
+                table[z + 1, i] = _range_row(rng, ground.units[i])
     rows = table[zone + 1]  # (n, U-1, 4)
     if any(spec.transition_m > 0 for spec in ground.zones):
         rows = blend_zone_edges(ground, xy, origin, zone, table, rows)
@@ -108,6 +158,7 @@ def unit_fields(
         min_m=np.ascontiguousarray(rows[..., 2]),
         max_m=np.ascontiguousarray(rows[..., 3]),
         zone=zone,
+        coreg=coregionalisation_factor(ground),
     )
 
 
@@ -174,6 +225,10 @@ def blend_zone_edges(
 def prior_boundary_moments(fields: UnitFields) -> tuple[np.ndarray, np.ndarray]:
     """Prior mean and variance of every boundary depth: ``(n, B)`` each (m, m2).
 
-    D_k = T_1 + ... + T_k with independent thicknesses, so both are cumulative sums.
+    D_k = T_1 + ... + T_k: the mean is a cumulative sum; so is the variance with independent
+    thicknesses, else the sum of squared loadings (:func:`boundary_loadings`).
     """
-    return np.cumsum(fields.mean_m, axis=1), np.cumsum(fields.std_m**2, axis=1)
+    mean = np.cumsum(fields.mean_m, axis=1)
+    if fields.coreg is None:
+        return mean, np.cumsum(fields.std_m**2, axis=1)
+    return mean, np.einsum("nkl,nkl->nk", *(boundary_loadings(fields),) * 2)

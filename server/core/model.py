@@ -43,6 +43,7 @@ class Correlation:
 
     model: str
     range_m: float
+    nugget: float = 0.0  # share of the variance with no spatial structure, in [0, 1)
 
 
 @dataclass(frozen=True, eq=False)
@@ -59,6 +60,8 @@ class Unit:
     correlation: Correlation | None  # None on the basal unit only
     description: str = ""
     presence: float = 1.0  # probability the unit is present at a point, (0, 1]
+    spread_multiplier: float = 1.0  # multiplies the thickness range's std (an adopted fit)
+    mean_shift_m: float = 0.0  # added to mean, min and max thickness (min clamped at 0)
 
 
 @dataclass(frozen=True)
@@ -150,6 +153,9 @@ class GroundModel:
     bounds: tuple[DepthBound, ...] = ()
     ground_level: GroundLevel | None = None
     history: tuple[HistoryRule, ...] = ()
+    # Lag-0 correlation between unit thicknesses: (unit i, unit j, rho) with i < j; empty =
+    # independent units (docs/model.md, "Correlated thicknesses").
+    thickness_correlation: tuple[tuple[int, int, float], ...] = ()
 
     @property
     def n_boundaries(self) -> int:
@@ -196,6 +202,7 @@ class ExistingProbe:
     final_depth_m: float
     observed: dict[int, float]
     precision_m: dict[int, float]  # boundary index -> std (m) of each recorded depth
+    stage: str | None = None  # investigation stage label; None = earlier information
 
 
 @dataclass(frozen=True)

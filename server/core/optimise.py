@@ -44,7 +44,7 @@ import numpy as np
 from scipy.linalg import solve_triangular
 
 from server.core.analysis import ProjectAnalysis
-from server.core.correlation import correlate
+from server.core.correlation import correlate_unit
 from server.core.covariance import boundary_covariance
 from server.core.evaluate import GridEvaluator, LayoutResult, layout_cost
 from server.core.field import UnitFields, unit_fields
@@ -350,8 +350,7 @@ def _unit_correlations(ground, xy_a: np.ndarray, xy_b: np.ndarray, fa, fb) -> li
     h = np.sqrt(((xy_a[:, None, :] - xy_b[None, :, :]) ** 2).sum(axis=2))
     out = []
     for i in range(ground.n_boundaries):
-        corr = ground.units[i].correlation
-        term = correlate(corr.model, h, corr.range_m)
+        term = correlate_unit(ground.units[i].correlation, h)
         term *= fa.std_m[:, i][:, None]
         term *= fb.std_m[:, i][None, :]
         out.append(term)
@@ -558,8 +557,7 @@ class GreedyProblem:
         std = self.cand_fields.std_m
         terms = np.empty((self.B, len(h)))
         for i in range(self.B):
-            corr = self.ground.units[i].correlation
-            terms[i] = correlate(corr.model, h, corr.range_m)
+            terms[i] = correlate_unit(self.ground.units[i].correlation, h)
             terms[i] *= std[:, i]
             terms[i] *= std[l, i]
         return terms
@@ -791,6 +789,12 @@ def prepare_optimisation(
     ``options.budget`` is not used here. Raises OptimiseError (see :func:`optimise`).
     """
     report = progress or (lambda f, m: None)
+    if project.ground.thickness_correlation:  # the greedy updates sum independent units
+        raise OptimiseError(
+            "the optimiser does not yet handle correlated unit thicknesses; evaluate "
+            "hand-made layouts instead, or remove the pairs to optimise",
+            "thickness_correlation",
+        )
     analysis = ProjectAnalysis(project)
     methods = analysis.methods
     allowed_ids = tuple(dict.fromkeys(options.methods)) if options.methods else tuple(methods)

@@ -22,6 +22,7 @@ from __future__ import annotations
 
 import json
 from collections.abc import Iterable
+from itertools import islice
 from pathlib import Path
 from typing import Any
 
@@ -56,6 +57,7 @@ from server.io.model_geometry import to_shapely
 from server.io.model_history import history_problems
 from server.io.model_references import reference_problems
 from server.io.model_schema import OPTIONAL_KEYS, ModelFile
+from server.io.model_structure import ground_structure_problems
 
 
 def _validate(data: object, first_only: bool) -> tuple[dict | None, list[InputError]]:
@@ -91,6 +93,8 @@ def _validate(data: object, first_only: bool) -> tuple[dict | None, list[InputEr
             break
     if not stop():
         problems.extend(history_problems(data, normal))
+    if not problems:  # optional structure fields and stages (server/io/model_structure.py)
+        problems.extend(islice(ground_structure_problems(normal), 1 if first_only else None))
     return (None if problems else normal), problems
 
 

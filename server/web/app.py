@@ -28,6 +28,7 @@ from server.web import (
     routes_options,
     routes_overview,
     routes_projects,
+    routes_readings,
     routes_schedule,
     routes_site,
 )
@@ -45,6 +46,7 @@ ROUTERS = (
     routes_ground.router,
     routes_history.router,
     routes_existing.router,
+    routes_readings.router,
     routes_methods.router,
     routes_options.router,
     routes_compare.router,

@@ -48,6 +48,12 @@ WORKFLOW_STEPS: tuple[WorkflowStep, ...] = (
         "Earlier probes and what they found",
     ),
     WorkflowStep(
+        "readings",
+        "Readings",
+        "/projects/{project_id}/readings",
+        "Each reading against what the other probes predicted",
+    ),
+    WorkflowStep(
         "methods",
         "Methods",
         "/projects/{project_id}/methods",

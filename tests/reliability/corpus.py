@@ -1341,7 +1341,54 @@ CLI_CASES += [
         "no design elements"),
 ]  # fmt: skip
 
-CASES: list[Case] = API_CASES + UPLOAD_CASES + FORM_CASES + CLI_CASES
+# Ground-model structure (nugget, correlated thicknesses, adopted fits) and stage labels,
+# through the commands that read them.
+READINGS = ["readings", "{dir}/m.json", "--json"]
+PAIR = {"units": ["Made ground", "Alluvial clay"], "rho": -0.5}
+CLI_CASES += [
+    cli("cli-readings-nugget-one", READINGS,
+        {"m.json": model_bytes(mutated("units[0].nugget", 1.0))}, "units[0].nugget", "[0, 1)"),
+    cli("cli-readings-nugget-negative", READINGS,
+        {"m.json": model_bytes(mutated("units[1].nugget", -0.1))}, "units[1].nugget", "[0, 1)"),
+    cli("cli-readings-nugget-text", READINGS,
+        {"m.json": model_bytes(mutated("units[1].nugget", "high"))}, "units[1].nugget", "number"),
+    cli("cli-readings-nugget-on-basal", READINGS,
+        {"m.json": model_bytes(mutated("units[3].nugget", 0.2))}, "units[3].nugget", "basal"),
+    cli("cli-readings-spread-zero", READINGS,
+        {"m.json": model_bytes(mutated("units[0].spread_multiplier", 0))},
+        "units[0].spread_multiplier", "above 0"),
+    cli("cli-readings-shift-below-zero", READINGS,
+        {"m.json": model_bytes(mutated("units[0].mean_shift_m", -2.5))},
+        "units[0].mean_shift_m", "0 or below"),
+    cli("cli-readings-rho-one", READINGS,
+        {"m.json": model_bytes(mutated("thickness_correlation", [{**PAIR, "rho": 1.0}]))},
+        "thickness_correlation[0].rho", "(-1, 1)"),
+    cli("cli-readings-pair-basal", READINGS,
+        {"m.json": model_bytes(mutated("thickness_correlation",
+                                       [{**PAIR, "units": ["Made ground", "Mudstone"]}]))},
+        "thickness_correlation[0].units[1]", "basal"),
+    cli("cli-readings-pair-unknown-unit", READINGS,
+        {"m.json": model_bytes(mutated("thickness_correlation",
+                                       [{**PAIR, "units": ["Made ground", "Peat"]}]))},
+        "thickness_correlation[0].units[1]", "not one of the units"),
+    cli("cli-readings-pair-same-unit", READINGS,
+        {"m.json": model_bytes(mutated("thickness_correlation",
+                                       [{**PAIR, "units": ["Made ground", "Made ground"]}]))},
+        "thickness_correlation[0].units", "same unit"),
+    cli("cli-readings-not-positive-definite", READINGS,
+        {"m.json": model_bytes(mutated("thickness_correlation", [
+            {"units": ["Made ground", "Alluvial clay"], "rho": 0.9},
+            {"units": ["Alluvial clay", "River gravel"], "rho": 0.9},
+            {"units": ["Made ground", "River gravel"], "rho": -0.9}]))},
+        "thickness_correlation", "positive definite"),
+    cli("cli-readings-stage-number", READINGS,
+        {"m.json": model_bytes(mutated("existing[0].stage", 2))}, "existing[0].stage", "text"),
+    cli("cli-fit-nugget-one", ["fit", "{dir}/m.json"],
+        {"m.json": model_bytes(mutated("units[0].nugget", 1.0))}, "units[0].nugget", "[0, 1)"),
+    cli("cli-readings-correlation-model-unknown", READINGS,
+        {"m.json": model_bytes(mutated("units[0].correlation.model", "matern12"))},
+        "units[0].correlation.model", ""),
+]  # fmt: skip
 
 
 def cases_of(channel: str) -> list[Case]:
@@ -1401,4 +1448,4 @@ API_CASES += [
     api_create("api-history-collinear-ground", mutated("ground_level.points", LINE_POINTS,
                HISTORY), "ground_level.points", "one line"),
 ]  # fmt: skip
-CASES = API_CASES + UPLOAD_CASES + FORM_CASES + CLI_CASES
+CASES: list[Case] = API_CASES + UPLOAD_CASES + FORM_CASES + CLI_CASES
