@@ -182,10 +182,14 @@ def block_unit_terms(
         for i in range(units):
             corr = ground.units[i].correlation
             _correlate_into(rho, corr.model, h, d2, corr.range_m)
-            terms = rho.reshape(m, c1 - c0, q)
-            terms *= blocks.sub_std_m[None, c0:c1, :, i]
-            terms.mean(axis=2, out=out[i, :, c0:c1])
-    out *= np.asarray(std_pts, dtype=float).T[:units, :, None]
+            # sum over the sub-points of s_i(a) rho_i(|p - a|), one pass
+            np.einsum(
+                "mcq,cq->mc",
+                rho.reshape(m, c1 - c0, q),
+                blocks.sub_std_m[c0:c1, :, i],
+                out=out[i, :, c0:c1],
+            )
+    out *= np.asarray(std_pts, dtype=float).T[:units, :, None] / q
     return out
 
 
@@ -208,8 +212,17 @@ def _correlate_into(out: np.ndarray, model: str, h: np.ndarray, h2: np.ndarray, 
     elif model == "gaussian":
         np.multiply(h2, -3.0 / range_m**2, out=out)
         np.exp(out, out=out)
+    elif model == "spherical":
+        # 1 - x (1.5 - 0.5 x^2) with x = min(h / r, 1): exactly 0 from the range on
+        np.multiply(h, 1.0 / range_m, out=out)
+        np.minimum(out, 1.0, out=out)
+        poly = out * out
+        poly *= -0.5
+        poly += 1.5
+        poly *= out
+        np.subtract(1.0, poly, out=out)
     else:
-        out[...] = correlate(model, h, range_m)
+        out[...] = correlate(model, h, range_m)  # raises on an unknown model
 
 
 def block_cross_covariance(

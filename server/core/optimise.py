@@ -12,12 +12,11 @@ Exact incremental updates: the posterior covariance ``M`` between every candidat
 location-boundary and every target (the cell average of a boundary of interest over a cell
 of the optimisation grid: cells are areas, ``server.core.blocks``) is kept and updated by a
 rank-k step after each pick; a candidate is scored from its rows of ``M`` without re-solving
-anything. The compiled kernel
-(``server.core.greedy_kernel``) finds the best candidate in about one pass over ``M``: an
-upper bound per location (an envelope probe reading every boundary with the best precision)
-and exact scores only for the few candidates whose bound per cost can still win, so the pick
-is the one full scoring would make. ``server.core.optimise_reference`` is the brute-force
-check.
+anything. The compiled kernel (``server.core.greedy_kernel``) finds the best candidate in
+about one pass over ``M``: an upper bound per location (an envelope probe reading every
+boundary with the best precision) and exact scores only for the few candidates whose bound
+per cost can still win, so the pick is the one full scoring would make.
+``server.core.optimise_reference`` is the brute-force check.
 
 Several budgets can share one :func:`prepare_optimisation` (candidates, covariances), as the
 ranking of options does. Long runs report progress through a callback and poll a
@@ -473,7 +472,7 @@ class GreedyProblem:
         t = self.targets
         base = self.analysis.baseline
         pred_c = base.predict(self.cand.local)
-        pred_t = predict_cells(base, t.blocks)
+        pred_t = self.base_cells = predict_cells(base, t.blocks)  # reused by apply_layout
         white_c = np.concatenate(pred_c.white, axis=0) if pred_c.white else None  # (m, B, L)
         M = self._prior_cand_slots()
         real = t.slot_cell >= 0
@@ -608,7 +607,7 @@ class GreedyProblem:
         base = self.analysis.baseline
         # covariance among the block and with the slots, given the existing probes only
         t = self.targets
-        pred_t = predict_cells(base, t.blocks)
+        pred_t = self.base_cells
         white_o = base.predict(obs.xy)  # whitened blocks at the readings' points
         fields_o = white_o.fields
         k_oo = boundary_covariance(

@@ -178,3 +178,15 @@ def test_cell_blocks_do_not_depend_on_the_chunk_size(monkeypatch):
     chunked = GridEvaluator(project).base_pred
     np.testing.assert_allclose(chunked.var_m2, whole.var_m2, rtol=1e-12, atol=1e-14)
     np.testing.assert_allclose(chunked.mean_m, whole.mean_m, rtol=1e-12, atol=1e-12)
+
+
+@pytest.mark.parametrize("model", ["exponential", "gaussian", "spherical"])
+def test_in_place_correlations_equal_the_correlation_models(model):
+    """The hot loop's in-place correlations equal server.core.correlation.correlate (itself
+    checked against scikit-learn and gstools in test_core_reference_libraries.py)."""
+    from server.core.blocks import _correlate_into
+
+    h = np.linspace(0.0, 100.0, 2001).reshape(1, -1)
+    out = np.empty_like(h)
+    _correlate_into(out, model, h, h * h, 37.0)
+    np.testing.assert_allclose(out, correlate(model, h, 37.0), rtol=0, atol=1e-15)
