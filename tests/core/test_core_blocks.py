@@ -190,3 +190,21 @@ def test_in_place_correlations_equal_the_correlation_models(model):
     out = np.empty_like(h)
     _correlate_into(out, model, h, h * h, 37.0)
     np.testing.assert_allclose(out, correlate(model, h, 37.0), rtol=0, atol=1e-15)
+
+
+def test_posterior_grid_export_gives_cell_averages():
+    """`probewise export --what posterior` writes the cell averages (dense reference), not
+    the depths at the cell centres."""
+    from server.commands.export import posterior_grid
+
+    model = validate_model(tiny_with_split_zone())
+    dense = Dense(model)
+    g = model["grid_spacing_m"]
+    for name in (None, model["layouts"][0]["name"]):
+        xy, _, fields = posterior_grid(model, name)
+        idx = np.array([int(np.argmin(np.hypot(*(xy - c).T))) for c in CELLS])
+        np.testing.assert_allclose(xy[idx], CELLS)
+        planned = _planned(dense, model["layouts"][0]) if name else ()
+        mean, var = dense.cell_posterior(CELLS, g, planned)
+        np.testing.assert_allclose(fields["mean_m"][idx], mean, rtol=TOL, atol=TOL)
+        np.testing.assert_allclose(fields["std_m"][idx], np.sqrt(var), rtol=1e-8, atol=1e-8)
