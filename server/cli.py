@@ -10,6 +10,7 @@ import argparse
 import importlib
 import sys
 
+from server.core.model import ModelLimitError
 from server.errors import InputError
 
 # sub-command -> (module in server.commands, one-line help)
@@ -57,7 +58,7 @@ def main(argv: list[str] | None = None) -> int:
     args = parser.parse_args(argv)
     try:
         return int(args._run(args) or 0)
-    except InputError as exc:
+    except (InputError, ModelLimitError) as exc:
         sys.stderr.write(f"{exc}\n")
         return 2
     except KeyboardInterrupt:

@@ -27,10 +27,10 @@ def posterior_grid(model: dict, layout_name: str | None):
     """(xy (n, 2) project coordinates, boundary names, fields {name: (n, B)}) on the grid.
 
     Adapter to the core: the evaluation grid of the site, conditioned on the existing probes
-    and, when named, the layout's planned probes; P50 is the median of the truncated
+    and, when named, the layout's planned probes; each cell is the average of the depth over
+    the cell (docs/model.md "Numbers reported for a layout"); P50 is the median of the truncated
     posterior, like P5 and P95.
     """
-    import numpy as np
 
     from server.core.analysis import ProjectAnalysis
     from server.core.bounds import truncated_quantiles
@@ -43,8 +43,8 @@ def posterior_grid(model: dict, layout_name: str | None):
         grid = evaluation_grid(project.site, analysis.origin)
     except EmptyGridError as exc:
         raise InputError("grid_spacing_m", str(exc)) from None
-    xy = grid.xy + np.asarray(analysis.origin)
-    post = analysis.at_points(xy, layout)
+    post = analysis.at_cells(grid, layout)
+    xy = post.xy
     p50 = truncated_quantiles(post.mean_m, post.std_m, post.lo_m, post.hi_m, 0.5)
     fields = {
         "mean_m": post.mean_m,

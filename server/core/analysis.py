@@ -11,7 +11,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from server.core.blocks import cell_blocks, predict_cells
 from server.core.bounds import depth_bounds, truncated_quantiles
+from server.core.grid import EvaluationGrid
 from server.core.model import ExistingProbe, Layout, Method, Project
 from server.core.planning import ProbePlan, plan_probes, planned_observations
 from server.core.posterior import Observations, PosteriorState, Prediction, condition
@@ -144,6 +146,18 @@ class ProjectAnalysis:
         self._bounds_at = (np.array(pred.xy, copy=True), lo, hi)
         return lo, hi
 
+    def at_cells(self, grid: EvaluationGrid, layout: Layout | None = None) -> PointPosterior:
+        """Prior and posterior of the cell average of every boundary over a grid's cells.
+
+        Cells are areas (``server.core.blocks``; docs/model.md "Numbers reported for a
+        layout"): means and stds are those of the cell averages, hard bounds and the
+        truncation of P5/P95 those at the cell centres (``xy``, project coordinates).
+        """
+        state, _ = self.layout_state(layout)
+        blocks = cell_blocks(self.ground, grid.xy, grid.spacing_m, self.origin)
+        pred = predict_cells(state, blocks)
+        return self._posterior(grid.xy_project, pred)
+
     def at_points(self, xy: np.ndarray, layout: Layout | None = None) -> PointPosterior:
         """Prior and posterior of every boundary at points given in project coordinates.
 
@@ -155,7 +169,9 @@ class ProjectAnalysis:
             Planned probes added to the existing ones (they reduce the variance only).
         """
         state, _ = self.layout_state(layout)
-        pred = state.predict(self.to_local(xy))
+        return self._posterior(xy, state.predict(self.to_local(xy)))
+
+    def _posterior(self, xy: np.ndarray, pred: Prediction) -> PointPosterior:
         lo, hi, p05, p95 = self.quantiles(pred)
         return PointPosterior(
             np.asarray(xy, dtype=float).reshape(-1, 2),

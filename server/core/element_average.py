@@ -23,7 +23,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.linalg import solve_triangular
 
-from server.core.correlation import correlate, pairwise_distance_m
+from server.core.correlation import correlate, correlate_unit, pairwise_distance_m
 from server.core.field import UnitFields, prior_boundary_moments, unit_fields
 from server.core.grid import EvaluationGrid
 from server.core.model import GroundModel
@@ -42,7 +42,12 @@ def subpoint_offsets_m(spacing_m: float, per_side: int = SUBPOINTS_PER_SIDE) -> 
 
 
 def lattice_pair_mean(
-    lattice: np.ndarray, weight: np.ndarray, step_m: float, model: str, range_m: float
+    lattice: np.ndarray,
+    weight: np.ndarray,
+    step_m: float,
+    model: str,
+    range_m: float,
+    nugget: float = 0.0,
 ) -> float:
     """Mean over all ordered pairs (a, b) of ``weight[a] weight[b] rho(|x_a - x_b|)``.
 
@@ -75,7 +80,10 @@ def lattice_pair_mean(
     dr = np.where(np.arange(shape[0]) < rows, np.arange(shape[0]), np.arange(shape[0]) - shape[0])
     dc = np.where(np.arange(shape[1]) < cols, np.arange(shape[1]), np.arange(shape[1]) - shape[1])
     h = step_m * np.hypot(dr[:, None], dc[None, :])
-    return float((correlate(model, h, range_m) * auto).sum() / (n * n))
+    rho = correlate(model, h, range_m)
+    if nugget:  # only the zero offset (a sub-point with itself) shares the nugget
+        rho = (1.0 - nugget) * rho + nugget * (h == 0.0)
+    return float((rho * auto).sum() / (n * n))
 
 
 @dataclass(frozen=True, eq=False)
@@ -133,7 +141,9 @@ def element_average(
     var = 0.0
     for i in range(boundary + 1):
         corr = ground.units[i].correlation
-        var += lattice_pair_mean(lattice, fields.std_m[:, i], step, corr.model, corr.range_m)
+        var += lattice_pair_mean(
+            lattice, fields.std_m[:, i], step, corr.model, corr.range_m, corr.nugget
+        )
     return ElementAverage(boundary, sub_xy, fields, prior_mean, var)
 
 
@@ -161,7 +171,7 @@ def average_cross_covariance(
         h = pairwise_distance_m(spots, average.sub_xy[a0:a1])
         for i in range(deepest + 1):
             corr = ground.units[i].correlation
-            terms[i] += correlate(corr.model, h, corr.range_m) @ average.fields.std_m[a0:a1, i]
+            terms[i] += correlate_unit(corr, h) @ average.fields.std_m[a0:a1, i]
     terms *= fields_obs.std_m[first, : deepest + 1].T / n
     cum = np.cumsum(terms, axis=0)  # (units, spots)
     level = np.minimum(obs.boundary, k)

@@ -13,7 +13,10 @@ layout's probes added:
   metres; duration (days) = metres / metres per day summed per method; gain per unit cost;
   Pareto efficiency among the layouts.
 
-The baseline is solved once on the grid and reused by every layout (block Cholesky update).
+Every cell figure is that of the cell average of the boundary depth, not of the depth at the
+cell centre (block kriging, ``server.core.blocks``; docs/model.md "Numbers reported for a
+layout"). The cells' block moments and the baseline are solved once on the grid and reused by
+every layout (block Cholesky update).
 """
 
 from __future__ import annotations
@@ -24,6 +27,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from server.core.analysis import ProjectAnalysis
+from server.core.blocks import CellBlocks, cell_blocks, predict_cells
 from server.core.grid import MAX_GRID_CELLS, EvaluationGrid, evaluation_grid_capped
 from server.core.model import GroundModel, Layout, Method, Project
 from server.core.planning import ProbePlan
@@ -52,7 +56,11 @@ class MethodTotals:
 
 @dataclass(frozen=True, eq=False)
 class GridPosterior:
-    """Per-cell posterior of every boundary on the evaluation grid; arrays ``(n, B)`` in m."""
+    """Per-cell posterior of every boundary on the evaluation grid; arrays ``(n, B)`` in m.
+
+    Mean and std are those of the cell average of the depth; P5/P95 are truncated at the
+    hard bounds of the cell centre.
+    """
 
     mean_m: np.ndarray
     std_m: np.ndarray
@@ -109,7 +117,8 @@ def weighted_mean(values: np.ndarray, weight: np.ndarray) -> np.ndarray:
 
 
 def grid_posterior(analysis: ProjectAnalysis, pred: Prediction) -> GridPosterior:
-    """Mean, std and truncated P5/P95 of a prediction on the grid."""
+    """Mean, std and truncated P5/P95 of a prediction on the grid (a cell prediction of
+    :func:`server.core.blocks.predict_cells`: bounds at ``pred.xy``, the cell centres)."""
     _, _, p05, p95 = analysis.quantiles(pred)
     return GridPosterior(pred.mean_m, pred.std_m, p05, p95)
 
@@ -189,7 +198,8 @@ class GridEvaluator:
     """Evaluates layouts on a project's grid, reusing the baseline solve for every layout.
 
     A grid finer than ``max_cells`` is coarsened by a whole factor; ``grid_notice`` then
-    says so (None otherwise).
+    says so (None otherwise). ``blocks`` holds the cells' block moments and ``base_pred`` the
+    baseline prediction of the cell averages; :meth:`layout_prediction` gives a layout's.
     """
 
     def __init__(
@@ -203,14 +213,21 @@ class GridEvaluator:
         self.grid, self.grid_notice = evaluation_grid_capped(
             project.site, self.analysis.origin, max_cells
         )
-        self.base_pred = self.analysis.baseline.predict(self.grid.xy)
+        self.blocks: CellBlocks = cell_blocks(
+            self.ground, self.grid.xy, self.grid.spacing_m, self.analysis.origin
+        )
+        self.base_pred = predict_cells(self.analysis.baseline, self.blocks)
         base_post = grid_posterior(self.analysis, self.base_pred)
         self.baseline = StateResult(summarise(self.ground, self.grid, base_post), base_post)
 
+    def layout_prediction(self, layout: Layout) -> tuple[Prediction, tuple[ProbePlan, ...]]:
+        """Cell averages given the existing probes and a layout's, and the layout's plans."""
+        state, plans = self.analysis.layout_state(layout)
+        return predict_cells(state, self.blocks, base=self.base_pred), plans
+
     def evaluate_layout(self, layout: Layout) -> LayoutResult:
         """Metrics of one layout (``pareto`` is provisional: True; set it over all options)."""
-        state, plans = self.analysis.layout_state(layout)
-        pred = state.predict(self.grid.xy, base=self.base_pred)
+        pred, plans = self.layout_prediction(layout)
         post = grid_posterior(self.analysis, pred)
         gain = information_gain_bits(self.ground, self.grid, self.base_pred.var_m2, pred.var_m2)
         cost, metres, days, by_method = layout_cost(plans, self.analysis.methods)

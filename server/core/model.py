@@ -21,6 +21,26 @@ from dataclasses import dataclass, field
 import numpy as np
 
 
+class ModelLimitError(ValueError):
+    """The model asks for something a computation does not support yet.
+
+    ``field`` names the model-file field and ``problem`` says what to do, as an input error
+    does; the command line answers with exit status 2 and the web with 4xx.
+    """
+
+    def __init__(self, field: str, problem: str):
+        self.field = field
+        self.problem = problem
+        super().__init__(f"{field}: {problem}")
+
+
+CORRELATED_CELLS_PROBLEM = (
+    "layouts are scored on cell averages, which do not yet handle correlated unit "
+    "thicknesses; posterior, readings and fit do: remove the pairs to compare, value or "
+    "optimise layouts"
+)
+
+
 @dataclass(frozen=True)
 class ThicknessRange:
     """Thickness prior of one unit: min, most likely and max (m) and a shape name.

@@ -9,14 +9,14 @@ nothing more fits the budget; references: greedy variance/entropy reduction for 
 processes (Krause, Singh and Guestrin, JMLR 9, 2008).
 
 Exact incremental updates: the posterior covariance ``M`` between every candidate
-location-boundary and every target (a cell of the optimisation grid and a boundary of
-interest) is kept and updated by a rank-k step after each pick; a candidate is scored from
-its rows of ``M`` without re-solving anything. The compiled kernel
-(``server.core.greedy_kernel``) finds the best candidate in about one pass over ``M``: an
-upper bound per location (an envelope probe reading every boundary with the best precision)
-and exact scores only for the few candidates whose bound per cost can still win, so the pick
-is the one full scoring would make. ``server.core.optimise_reference`` is the brute-force
-check.
+location-boundary and every target (the cell average of a boundary of interest over a cell
+of the optimisation grid: cells are areas, ``server.core.blocks``) is kept and updated by a
+rank-k step after each pick; a candidate is scored from its rows of ``M`` without re-solving
+anything. The compiled kernel (``server.core.greedy_kernel``) finds the best candidate in
+about one pass over ``M``: an upper bound per location (an envelope probe reading every
+boundary with the best precision) and exact scores only for the few candidates whose bound
+per cost can still win, so the pick is the one full scoring would make.
+``server.core.optimise_reference`` is the brute-force check.
 
 Several budgets can share one :func:`prepare_optimisation` (candidates, covariances), as the
 ranking of options does. Long runs report progress through a callback and poll a
@@ -44,6 +44,7 @@ import numpy as np
 from scipy.linalg import solve_triangular
 
 from server.core.analysis import ProjectAnalysis
+from server.core.blocks import CellBlocks, block_unit_terms, cell_blocks, predict_cells
 from server.core.correlation import correlate_unit
 from server.core.covariance import boundary_covariance
 from server.core.evaluate import GridEvaluator, LayoutResult, layout_cost
@@ -51,7 +52,7 @@ from server.core.field import UnitFields, unit_fields
 from server.core.geometry import points_in_polygon
 from server.core.greedy_kernel import BOUND_SLACK, FOLD, Q_MIN, kernel_for, plan_runs
 from server.core.grid import EvaluationGrid, evaluation_grid_capped
-from server.core.model import Layout, PlannedProbe, Project
+from server.core.model import CORRELATED_CELLS_PROBLEM, Layout, PlannedProbe, Project
 from server.core.planning import plan_probes, planned_observations
 
 # The search runs on all cores; numba's fallback thread pool ("workqueue", used where no
@@ -297,12 +298,15 @@ def build_candidates(
 class Targets:
     """Targets of the objective, laid out in padded slots of equal weight.
 
-    ``cells (C, 2)`` local points, ``fields`` their priors, ``boundaries`` of interest
-    ``(K,)`` and ``slot_cell``/``slot_bnd`` ``(S,)`` (-1 on pad slots), runs for the kernel.
+    ``cells (C, 2)`` local cell centres, ``fields`` their priors, ``blocks`` the cells as
+    areas (a target is the cell average of a boundary, ``server.core.blocks``), ``boundaries``
+    of interest ``(K,)`` and ``slot_cell``/``slot_bnd`` ``(S,)`` (-1 on pad slots), runs for
+    the kernel.
     """
 
     cells: np.ndarray
     fields: UnitFields
+    blocks: CellBlocks
     boundaries: np.ndarray
     omega: np.ndarray
     slot_cell: np.ndarray
@@ -313,8 +317,8 @@ class Targets:
 
 
 def build_targets(analysis: ProjectAnalysis, grid: EvaluationGrid) -> Targets:
-    """Targets (cell, boundary of interest) with weight ``w_k * w_cell / sum(w_cell)``, so
-    that the kernel's total equals DESIGN.md's information gain on this grid."""
+    """Targets (cell average, boundary of interest) with weight ``w_k * w_cell / sum(w_cell)``,
+    so that the kernel's total equals the information gain of docs/model.md on this grid."""
     boi = analysis.ground.boundaries_of_interest
     if not boi:
         raise OptimiseError("the model has no boundary of interest to optimise for")
@@ -326,8 +330,8 @@ def build_targets(analysis: ProjectAnalysis, grid: EvaluationGrid) -> Targets:
     real = slot_target >= 0
     slot_cell = np.where(real, slot_target % C, -1)
     slot_bnd = np.where(real, bnds[np.maximum(slot_target, 0) // C], -1)
-    fields = unit_fields(analysis.ground, grid.xy, analysis.origin)
-    return Targets(grid.xy, fields, bnds, omega, slot_cell, slot_bnd, rs, re_, rw)
+    blocks = cell_blocks(analysis.ground, grid.xy, grid.spacing_m, analysis.origin)
+    return Targets(grid.xy, blocks.fields, blocks, bnds, omega, slot_cell, slot_bnd, rs, re_, rw)
 
 
 def forward_substitute(low: np.ndarray, rhs: np.ndarray) -> np.ndarray:
@@ -449,12 +453,11 @@ class GreedyProblem:
         self.kernel = kernel_for(self.B)
 
     def _prior_cand_slots(self) -> np.ndarray:
-        """Prior covariance of candidate location-boundaries with target slots ``(B, L, S)``."""
+        """Prior covariance of candidate location-boundaries with target slots ``(B, L, S)``
+        (a point with a cell average)."""
         t = self.targets
-        terms = _unit_correlations(
-            self.ground, self.cand.local, t.cells, self.cand_fields, t.fields
-        )
-        cum = np.cumsum(np.stack(terms), axis=0)  # (B, L, C): sum over units 0..i
+        terms = block_unit_terms(self.ground, self.cand.local, self.cand_fields.std_m, t.blocks)
+        cum = np.cumsum(terms, axis=0)  # (B, L, C): sum over units 0..i
         L, S = len(self.cand.local), len(t.slot_cell)
         out = np.zeros((self.B, L, S))
         real = t.slot_cell >= 0
@@ -468,7 +471,7 @@ class GreedyProblem:
         t = self.targets
         base = self.analysis.baseline
         pred_c = base.predict(self.cand.local)
-        pred_t = base.predict(t.cells)
+        pred_t = self.base_cells = predict_cells(base, t.blocks)  # reused by apply_layout
         white_c = np.concatenate(pred_c.white, axis=0) if pred_c.white else None  # (m, B, L)
         M = self._prior_cand_slots()
         real = t.slot_cell >= 0
@@ -602,7 +605,7 @@ class GreedyProblem:
         base = self.analysis.baseline
         # covariance among the block and with the slots, given the existing probes only
         t = self.targets
-        pred_t = base.predict(t.cells)
+        pred_t = self.base_cells
         white_o = base.predict(obs.xy)  # whitened blocks at the readings' points
         fields_o = white_o.fields
         k_oo = boundary_covariance(
@@ -616,8 +619,8 @@ class GreedyProblem:
         cov_cand -= np.einsum("lbr,rm->lbm", state.F[:, :, :R], w_o)
         # slots: prior covariance of readings with targets minus the existing probes' part
         real = t.slot_cell >= 0
-        terms = np.stack(_unit_correlations(self.ground, obs.xy, t.cells, fields_o, t.fields))
-        cum = np.cumsum(terms, axis=0)  # (B, m, C)
+        terms = block_unit_terms(self.ground, obs.xy, fields_o.std_m, t.blocks)
+        cum = np.cumsum(terms, axis=0)  # (B, m, C), readings with cell averages
         cov_slots = np.zeros((obs.size, len(t.slot_cell)))
         sb, sc = t.slot_bnd[real], t.slot_cell[real]
         cov_slots[:, real] = cum[
@@ -790,11 +793,7 @@ def prepare_optimisation(
     """
     report = progress or (lambda f, m: None)
     if project.ground.thickness_correlation:  # the greedy updates sum independent units
-        raise OptimiseError(
-            "the optimiser does not yet handle correlated unit thicknesses; evaluate "
-            "hand-made layouts instead, or remove the pairs to optimise",
-            "thickness_correlation",
-        )
+        raise OptimiseError(CORRELATED_CELLS_PROBLEM, "thickness_correlation")
     analysis = ProjectAnalysis(project)
     methods = analysis.methods
     allowed_ids = tuple(dict.fromkeys(options.methods)) if options.methods else tuple(methods)

@@ -23,6 +23,7 @@ projected coordinates lose no precision in the distances.
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
@@ -258,15 +259,50 @@ class PosteriorState:
         """
         xy = np.asarray(xy, dtype=float).reshape(-1, 2)
         fields = base.fields if base is not None else unit_fields(self.ground, xy, self.origin)
-        n, B = len(xy), self.ground.n_boundaries
         prior_mean, prior_var = prior_boundary_moments(fields)
+
+        def cross(obs: Observations, fields_obs: UnitFields) -> np.ndarray:
+            return cross_covariance_all(self.ground, obs.xy, obs.boundary, fields_obs, xy, fields)
+
+        return self.predict_targets(xy, fields, prior_mean, prior_var, cross, base)
+
+    def predict_targets(
+        self,
+        xy: np.ndarray,
+        fields: UnitFields,
+        prior_mean: np.ndarray,
+        prior_var: np.ndarray,
+        cross: Callable[[Observations, UnitFields], np.ndarray],
+        base: Prediction | None = None,
+    ) -> Prediction:
+        """Prior and posterior of every boundary at targets given by their prior moments
+        and their covariance with readings (points, or cell averages: server.core.blocks).
+
+        Parameters
+        ----------
+        xy : (n, 2) float
+            Where the targets are (points, or cell centres), relative to ``origin``.
+        fields : UnitFields
+            Thickness priors at ``xy`` (they give the hard bounds).
+        prior_mean, prior_var : (n, B) float
+            Prior mean and variance of every boundary of each target.
+        cross : callable(Observations, UnitFields) -> (m, B, n) float
+            Prior covariance of a block of readings (with their fields) with the targets.
+        base : Prediction, optional
+            A prediction of the same targets from a state this one extends; its whitened
+            blocks are reused and only the new blocks are solved.
+
+        Returns
+        -------
+        Prediction
+        """
+        n, B = len(xy), self.ground.n_boundaries
         white = list(base.white) if base is not None else []
         starts = np.cumsum((0, *self.block_sizes))
         for b in range(len(white), len(self.observations)):
             obs, f_obs = self.observations[b], self.fields[b]
             lo, hi = starts[b], starts[b + 1]
-            rhs = cross_covariance_all(self.ground, obs.xy, obs.boundary, f_obs, xy, fields)
-            rhs = rhs.reshape(hi - lo, B * n)
+            rhs = cross(obs, f_obs).reshape(hi - lo, B * n)
             for a in range(b):  # subtract what earlier blocks already explain
                 rhs -= self.chol[lo:hi, starts[a] : starts[a + 1]] @ white[a].reshape(-1, B * n)
             w = solve_triangular(self.chol[lo:hi, lo:hi], rhs, lower=True, check_finite=False)

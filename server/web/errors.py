@@ -13,6 +13,7 @@ from fastapi.exceptions import RequestValidationError
 from starlette.exceptions import HTTPException as StarletteHTTPException
 from starlette.responses import JSONResponse, Response
 
+from server.core.model import ModelLimitError
 from server.errors import InputError
 from server.store.errors import (
     JobNotFound,
@@ -184,7 +185,8 @@ def install_error_handlers(app: FastAPI) -> None:
         return error_response(request, status, text, field_problems=problems)
 
     @app.exception_handler(InputError)
-    async def on_input_error(request: Request, exc: InputError) -> Response:
+    @app.exception_handler(ModelLimitError)
+    async def on_input_error(request: Request, exc: InputError | ModelLimitError) -> Response:
         status = 422 if wants_json(request) else 400
         problems = [{"field": exc.field, "problem": exc.problem}]
         return error_response(request, status, str(exc), field_problems=problems)

@@ -4,7 +4,10 @@ It reads the model-file dict directly (not the core dataclasses), builds dense c
 matrices entry by entry, solves with ``np.linalg.solve`` and takes truncated quantiles from
 ``scipy.stats.truncnorm``. Slow and simple on purpose: the fast path in ``server.core`` is
 checked against it. Source of every formula: docs/model.md "Probability model" and "Numbers
-reported for a layout".
+reported for a layout"; cells as areas (block kriging) after Journel and Huijbregts, Mining
+Geostatistics (1978): the variance of a cell average is the mean of the covariances of all
+pairs of its sub-points, here taken literally from the dense posterior covariance matrix of the
+sub-points of each cell.
 """
 
 from __future__ import annotations
@@ -59,6 +62,26 @@ def moments(rng):
         return (a + b + c) / 3, math.sqrt((a * a + b * b + c * c - a * b - a * c - b * c) / 18)
     mean = (a + 4 * b + c) / 6
     return mean, math.sqrt((mean - a) * (c - mean) / 7)
+
+
+SUB_PER_SIDE = 4  # k x k sub-points per cell (docs/model.md "Numbers reported for a layout")
+
+
+def subpoints(x, y, g, k=SUB_PER_SIDE):
+    """Centres of the k x k equal squares of the cell of side g centred on (x, y)."""
+    return [
+        (x - g / 2 + (i + 0.5) * g / k, y - g / 2 + (j + 0.5) * g / k)
+        for j in range(k)
+        for i in range(k)
+    ]
+
+
+def rho_array(model, h, r):
+    if model == "exponential":
+        return np.exp(-3 * h / r)
+    if model == "gaussian":
+        return np.exp(-3 * h * h / (r * r))
+    return np.where(h < r, 1 - 1.5 * (h / r) + 0.5 * (h / r) ** 3, 0.0)
 
 
 def rho(model, h, r):
@@ -147,6 +170,56 @@ class Dense:
                 if n_e:
                     mean[p, k] += c[:n_e] @ np.linalg.solve(K[:n_e, :n_e], resid)
                 var[p, k] = prior_v - (c @ np.linalg.solve(K, c) if m else 0.0)
+        return mean, np.maximum(var, 0.0)
+
+    def cov_matrix(self, pa, pb):
+        """Dense covariance of two lists of (x, y, k), vectorised over the pairs."""
+        xa, ya, ka = (np.array([p[i] for p in pa], float) for i in range(3))
+        xb, yb, kb = (np.array([p[i] for p in pb], float) for i in range(3))
+        h = np.hypot(xa[:, None] - xb[None, :], ya[:, None] - yb[None, :])
+        shallower = np.minimum(ka[:, None], kb[None, :])
+        total = np.zeros(h.shape)
+        for i in range(self.B):
+            c = self.units[i]["correlation"]
+            sa = np.array([self.s(i, p[0], p[1]) for p in pa])
+            sb = np.array([self.s(i, p[0], p[1]) for p in pb])
+            term = sa[:, None] * sb[None, :] * rho_array(c["model"], h, c["range_m"])
+            total += np.where(shallower >= i, term, 0.0)
+        return total
+
+    def cell_posterior(self, cells, g, planned=(), k=SUB_PER_SIDE):
+        """Posterior of the cell averages of every boundary over square cells of side g.
+
+        cells: list of (x, y) centres. For each cell and boundary, the posterior covariance
+        matrix of its k x k sub-points (prior - C^T K^-1 C, dense) is averaged over all
+        pairs; the mean is the mean of the sub-points' posterior means.
+        Returns mean, var arrays (n, B).
+        """
+        ex = self.existing_obs()
+        allobs = [(x, y, kk, t) for x, y, kk, t, _ in ex] + list(planned)
+        n_e, m, q = len(ex), len(allobs), k * k
+        K = self.cov_matrix([o[:3] for o in allobs], [o[:3] for o in allobs]) if m else None
+        if m:
+            K += np.diag([o[3] ** 2 for o in allobs])
+        resid = np.array([d - self.prior_mean(kk, x, y) for x, y, kk, _, d in ex])
+        mean = np.zeros((len(cells), self.B))
+        var = np.zeros((len(cells), self.B))
+        sub = [p for x, y in cells for p in subpoints(x, y, g, k)]
+        for b in range(self.B):
+            targets = [(x, y, b) for x, y in sub]
+            prior_m = np.array([self.prior_mean(b, x, y) for x, y in sub])
+            if m:
+                C = self.cov_matrix([o[:3] for o in allobs], targets)  # (m, n q)
+                A = np.linalg.solve(K, C)
+                if n_e:
+                    prior_m = prior_m + C[:n_e].T @ np.linalg.solve(K[:n_e, :n_e], resid)
+            for c in range(len(cells)):
+                cols = slice(c * q, (c + 1) * q)
+                post = self.cov_matrix(targets[cols], targets[cols])  # prior (q, q)
+                if m:
+                    post = post - C[:, cols].T @ A[:, cols]
+                var[c, b] = post.mean()
+                mean[c, b] = prior_m[cols].mean()
         return mean, np.maximum(var, 0.0)
 
     # ---- bounds and quantiles
@@ -258,8 +331,9 @@ class Dense:
     def evaluate(self):
         cells, area = self.grid()
         pts = [(x, y) for x, y, _ in cells]
+        g = self.m["grid_spacing_m"]
         w = np.array([c[2] for c in cells])
-        mean0, var0 = self.posterior(pts)
+        mean0, var0 = self.cell_posterior(pts, g)
         result = {"baseline": {"boundaries": self.metrics(cells, area, mean0, var0)}}
         layouts = []
         for lay in self.m.get("layouts", []):
@@ -269,7 +343,7 @@ class Dense:
                 meth = self.method(p["method"])
                 for k in observes:
                     planned.append((p["x"], p["y"], k, meth["precision_m"][self.names[k]]))
-            _, var1 = self.posterior(pts, planned)
+            _, var1 = self.cell_posterior(pts, g, planned)
             gain = 0.0
             for b in self.m["boundaries_of_interest"]:
                 k = self.names.index(b["base_of"])

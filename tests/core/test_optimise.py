@@ -45,7 +45,12 @@ from server.core.optimise import (
     prepare_optimisation,
     upper_envelope,
 )
-from server.core.optimise_reference import greedy_reference
+from server.core.optimise_reference import (
+    cell_prior_variance,
+    cell_subpoints,
+    cell_variance,
+    greedy_reference,
+)
 from server.io.model_file import validate_model
 
 ROOT = Path(__file__).resolve().parents[2]
@@ -127,7 +132,9 @@ def test_full_scoring_equals_the_pruned_search(tiny_problem):
 
 def test_state_after_a_hand_made_layout_equals_a_fresh_solve():
     # Exact low-rank update: the target variances after conditioning on a hand-made layout
-    # equal a fresh Gaussian conditioning of the targets on existing + planned readings.
+    # equal a fresh Gaussian conditioning of the targets on existing + planned readings
+    # (targets are cell averages: conditioned at the sub-points and averaged by the
+    # brute-force reference, not by server.core.blocks).
     project = tiny_project()
     problem = small_problem(tiny_dict(), 20.0, 1500)
     state = problem.base_state.copy()
@@ -137,7 +144,10 @@ def test_state_after_a_hand_made_layout_equals_a_fresh_solve():
     fresh, _ = analysis.layout_state(layout)
     t = problem.targets
     real = t.slot_cell >= 0
-    var = fresh.predict(t.cells).var_m2[t.slot_cell[real], t.slot_bnd[real]]
+    q = t.blocks.per_side**2
+    sub = cell_subpoints(t.cells, t.blocks.spacing_m, t.blocks.per_side)
+    cell_var = cell_variance(cell_prior_variance(fresh, sub, q), fresh.predict(sub), q)
+    var = cell_var[t.slot_cell[real], t.slot_bnd[real]]
     np.testing.assert_allclose(state.V[real], var, rtol=1e-8, atol=1e-12)
     assert cost == pytest.approx(evaluate_project(project, [layout]).layouts[0].cost)
     assert gain > 0
