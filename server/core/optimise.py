@@ -108,6 +108,10 @@ class OptimiseOptions:
         Most exchange sweeps of the refinement (``server.core.refine``); 0 turns it off.
     refine_cells : int
         The refinement scores on the evaluation grid coarsened to at most this many cells.
+    refine_work : float
+        Most candidate-target covariances the refinement's tried exchanges may sweep (each
+        try updates and scores every candidate's row once or twice); bounds its run time on
+        large layouts.
     """
 
     budget: float
@@ -120,6 +124,7 @@ class OptimiseOptions:
     warm_start: bool = True
     refine_sweeps: int = 3
     refine_cells: int = 3000
+    refine_work: float = 5e8
 
 
 @dataclass(frozen=True, eq=False)
@@ -674,6 +679,12 @@ class GreedyProblem:
             return np.zeros((0, len(bnds)))
         w = np.concatenate(pred.white, axis=0)  # (m_e, B, m)
         return w[:, bnds, np.arange(len(bnds))]
+
+    def gain_bits(self, var_before: np.ndarray, var_after: np.ndarray) -> float:
+        """Information gain (bits) of going from target variances ``var_before`` to
+        ``var_after`` (both ``(S,)``, as ``GreedyState.V``)."""
+        ratio = var_before / np.maximum(var_after, 1e-300)
+        return float(np.sum(self._slot_omega() * 0.5 * np.log2(ratio)))
 
     def _slot_omega(self) -> np.ndarray:
         t = self.targets

@@ -110,14 +110,15 @@ class RefineState:
     def flush(self) -> None:  # the search kernel's protocol: nothing is ever pending here
         self.pending = False
 
-    def _factors(self, l: int, obs: np.ndarray, noise_var: np.ndarray, sign: float):
-        """Whitened covariance of the readings with every location-boundary ``(k, N)`` and
-        with every target ``(k, S)``: adding (``sign`` 1) or removing (-1) them."""
+    def _factors(self, l, obs, noise_var, sign: float, rows: bool = True):
+        """Whitened covariance of the readings with every location-boundary ``(k, N)``
+        (None unless ``rows``) and with every target ``(k, S)``: adding (``sign`` 1) or
+        removing (-1) them."""
         idx = l * self.B + obs
         block = self.Q[np.ix_(idx, idx)]
         k = np.diag(noise_var) + sign * block
         low = np.linalg.cholesky(0.5 * (k + k.T))
-        w = solve_triangular(low, self.Q[idx, :], lower=True, check_finite=False)
+        w = solve_triangular(low, self.Q[idx, :], lower=True, check_finite=False) if rows else None
         h = solve_triangular(low, self.M[obs, l, :], lower=True, check_finite=False)
         return w, h
 
@@ -137,7 +138,11 @@ class RefineState:
         w, h = self._factors(l, obs, noise_var, 1.0)
         self._update_m(w, h, 1.0)
         self._update_small(w, h, 1.0)
-        self.Q -= w.T @ w
+        self._update_q(w, 1.0)
+
+    def _update_q(self, w: np.ndarray, sign: float) -> None:
+        """``Q -= sign w^T w`` in place (``Q`` is symmetric, so its transpose is updated)."""
+        dgemm(-sign, w.T, w, 1.0, self.Q.T, 0, 0, 1)
 
     def remove_trial(self, l: int, obs: np.ndarray, noise_var: np.ndarray):
         """Take those readings out of ``M``, ``V`` and ``P`` (not ``Q``); returns what
@@ -156,8 +161,7 @@ class RefineState:
 
     def commit(self, trial) -> None:
         """Make a trial removal final (``Q`` too)."""
-        w = trial[0]
-        self.Q += w.T @ w
+        self._update_q(trial[0], -1.0)
 
 
 def prior_candidate_covariance(problem: GreedyProblem) -> np.ndarray:
@@ -266,6 +270,16 @@ class Exchange:
             ok &= (np.hypot(*(cand.local - p).T) >= spec.min_spacing_m)[:, None]
         return ok
 
+    def removal_losses(self) -> np.ndarray:
+        """``(n,)`` gain (bits) each pick would lose if taken out alone."""
+        out = np.empty(len(self.picks))
+        for i, (l, j) in enumerate(self.picks):
+            _, obs, noise = self._readings(l, j)
+            h = self.state._factors(l, obs, noise, -1.0, rows=False)[1]
+            after = self.state.V + np.einsum("qs,qs->s", h, h)
+            out[i] = self.problem.gain_bits(after, self.state.V)
+        return out
+
     def try_exchange(self, i: int) -> bool:
         """Replace pick ``i`` by the best candidate if that gains more; True if replaced."""
         l, j = self.picks[i]
@@ -304,29 +318,39 @@ def refine_picks(
     spec: RefineSpec,
     start: GreedyState,
     max_sweeps: int,
+    max_work: float = math.inf,
     on_step: Callable[[float], None] | None = None,
 ) -> tuple[list[tuple[int, int]], int, int]:
     """Exchange sweeps from the greedy picks; returns (picks, moves, sweeps).
 
-    ``start`` is the problem's state with the fixed part applied (not modified).
-    ``on_step(fraction)`` is called after every tried exchange; it may raise to cancel.
+    Each sweep tries the picks in increasing order of the gain they alone bring (the likeliest
+    to be improved first), then spends any money freed. Sweeps stop when one changes nothing,
+    after ``max_sweeps``, or when the tries have swept ``max_work`` candidate-target
+    covariances. ``start`` is the problem's state with the fixed part applied (not modified).
+    ``on_step(fraction)`` is called after every try; it may raise to cancel.
     """
     state = RefineState(problem, start.copy())
     ex = Exchange(problem, spec, state)
     for l, j in ex.picks:
         state.add(*ex._readings(l, j))
-    sweeps = 0
-    for sweep in range(max_sweeps):
+    per_try = float(state.M.size)
+    tries_left = max(int(max_work // per_try), 1)
+    total = min(max_sweeps * len(ex.picks), tries_left)
+    sweeps = tried = 0
+    while sweeps < max_sweeps and tries_left > 0:
         sweeps += 1
         changed = False
-        for i in range(len(ex.picks)):
-            changed |= ex.try_exchange(i)
+        for i in np.argsort(ex.removal_losses(), kind="stable"):
+            if tries_left <= 0:
+                break
+            changed |= ex.try_exchange(int(i))
+            tries_left -= 1
+            tried += 1
             if on_step is not None:
-                on_step((sweep + (i + 1) / len(ex.picks)) / max_sweeps)
+                on_step(min(tried / max(total, 1), 1.0))
         before = len(ex.picks)
         ex.fill()
-        changed |= len(ex.picks) > before
-        if not changed:
+        if not changed and len(ex.picks) == before:
             break
     return ex.picks, ex.moves, sweeps
 
@@ -369,7 +393,9 @@ def refine_layout(
         dict(setup.mobilisation),
         setup.min_spacing_m,
     )
-    new_picks, moves, sweeps = refine_picks(problem, spec, state, options.refine_sweeps, on_step)
+    new_picks, moves, sweeps = refine_picks(
+        problem, spec, state, options.refine_sweeps, options.refine_work, on_step
+    )
     n_loc = len(problem.cand.local)
     if moves:
         refined = layout_from_picks(problem.cand, new_picks, start, layout.name)
