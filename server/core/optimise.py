@@ -1073,7 +1073,7 @@ def optimise(
         report(0.85 + 0.14 * fraction, "refining the layout by exchanges")
 
     layout, result, refinement = refine_layout(
-        setup, runs[r_idx], n, starts[r_idx], (layout, result), options.budget, on_step
+        setup, options, runs[r_idx], n, starts[r_idx], (layout, result), options.budget, on_step
     )
     report(1.0, "done")
     return OptimiseResult(

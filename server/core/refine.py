@@ -48,6 +48,7 @@ from server.core.optimise import (
     GreedyProblem,
     GreedyRun,
     GreedyState,
+    OptimiseOptions,
     OptimiseSetup,
     Refinement,
     build_candidates,
@@ -357,6 +358,7 @@ def refine_picks(
 
 def refine_layout(
     setup: OptimiseSetup,
+    options: OptimiseOptions,
     run: GreedyRun,
     n_picks: int,
     start: Layout | None,
@@ -368,11 +370,10 @@ def refine_layout(
 
     Returns the refined layout and its full-grid result when it gains more than the greedy
     layout ``greedy`` (its layout and full-grid result) within the budget, else ``greedy``;
-    and what the refinement added. ``setup.options.refine_sweeps`` 0 skips it.
+    and what the refinement added. ``options.refine_sweeps`` 0 skips it.
     """
     t0 = time.perf_counter()
     layout, result = greedy
-    options = setup.options
     picks = [(p.location, p.method) for p in run.picks[:n_picks]]
     g0 = result.information_gain_bits
     if options.refine_sweeps <= 0 or not picks:
