@@ -4,10 +4,12 @@ After J. W. van Groenigen and A. Stein (1998), Constrained optimization of spati
 using continuous simulated annealing, Journal of Environmental Quality 27, 1078-1086 (details
 from memory): a fixed number of points starts at random; each iteration moves one point, chosen
 at random, in a random direction by a random distance whose maximum shrinks linearly over the
-run; a move that leaves the allowed area (here: outside the site, inside an exclusion, closer
-than the minimum spacing to another probe, or over the budget) is drawn again; a move is
-accepted when it does not lower the objective, and otherwise with the Metropolis probability
-``exp(delta / T)``, the temperature ``T`` falling geometrically.
+run; a move that leaves the allowed area (here: outside the site, inside an exclusion or
+closer than the minimum spacing to another probe) is drawn again, and a layout over the budget
+is rejected; a move is accepted when it does not lower the objective, and otherwise with the
+Metropolis probability ``exp(delta / T)``, the temperature ``T`` falling geometrically (here
+from the value at which a 1 % loss is accepted half the time, a thousandfold over the run;
+common practice, no source).
 
 The objective is the information gain as ``server.core.evaluate`` computes it (the layout's
 readings planned by ``server.core.planning``, the posterior re-solved from the existing
