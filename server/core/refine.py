@@ -11,8 +11,9 @@ probes do not use included) and keep the minimum spacing. After each sweep any m
 spent greedily. Sweeps repeat until one changes nothing (or a set number of sweeps).
 
 Candidates are the greedy's grid plus a finer local grid around every greedy pick (the cell
-centres of the refinement grid, or half the candidate spacing when those are coarser, within
-half the candidate spacing of the pick), planned exactly as the greedy plans them. Targets are
+centres of the refinement grid, every one or every few so that the step is at least a quarter
+of the candidate spacing, or half the candidate spacing when the cells are coarser, within half
+the candidate spacing of the pick), planned exactly as the greedy plans them. Targets are
 the evaluation grid coarsened to at most ``refine_cells`` cells, built by the optimiser's own
 ``build_targets``, so the refinement uses whatever target kind the optimiser uses.
 
@@ -225,7 +226,10 @@ def refinement_problem(setup, picks: Sequence[tuple[int, int]], refine_cells: in
     project, analysis, cand = setup.project, setup.analysis, setup.candidates
     grid, _ = evaluation_grid_capped(project.site, analysis.origin, refine_cells)
     spacing = setup.candidate_spacing_m
-    step = grid.spacing_m if grid.spacing_m <= 0.5 * spacing else 0.5 * spacing
+    # cell centres of the grid, thinned to about a quarter of the candidate spacing (at most
+    # 5 x 5 points a pick); half the candidate spacing when the cells are coarser than that
+    g = grid.spacing_m
+    step = g * max(1, math.ceil(0.25 * spacing / g - 1e-9)) if g <= 0.5 * spacing else 0.5 * spacing
     centres = cand.xy[[l for l, _ in picks]] if picks else np.zeros((0, 2))
     anchor = grid.xy_project[0]
     extra = local_points(project, spacing, step, centres, anchor)
