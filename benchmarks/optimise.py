@@ -21,7 +21,7 @@
     call, planning included) against the spatial simulated annealing of
     ``server.core.anneal_reference`` (van Groenigen and Stein, 1998; seed 1, random start,
     every layout scored on the full evaluation grid by the path of ``evaluate``) given 10
-    times the optimiser's wall time (its number of moves set from a timing of the scorer):
+    times the optimiser's wall time (the annealing schedule follows the time spent):
     gain ratio (optimiser / annealing, both on the full grid) and time ratio.
 
 Figures are printed and written to ``benchmarks/out/optimise.json``. Cases are built by
@@ -229,15 +229,13 @@ def part_d(sizes=(5, 10, 20), factor: float = 10.0) -> dict:
         t0 = time.perf_counter()
         out = optimise(project, OptimiseOptions(budget=budget, methods=("CPT",)))
         t_opt = time.perf_counter() - t0
-        probe = anneal_layout(project, "CPT", n, budget, out.min_spacing_m, 10, 2, scorer=scorer)
         t0 = time.perf_counter()
-        anneal_layout(project, "CPT", n, budget, out.min_spacing_m, 20, 2, scorer=scorer)
-        per_move = (time.perf_counter() - t0) / 20
-        del probe
-        moves = max(int(factor * t_opt / per_move), 10)
-        t0 = time.perf_counter()
-        ann = anneal_layout(project, "CPT", n, budget, out.min_spacing_m, moves, 1, scorer=scorer)
+        spacing = out.min_spacing_m
+        ann = anneal_layout(
+            project, "CPT", n, budget, spacing, 0, 1, scorer=scorer, seconds=factor * t_opt
+        )
         t_ann = time.perf_counter() - t0
+        moves = ann.iterations
         r = out.refinement
         rows.append(
             {

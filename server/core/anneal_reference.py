@@ -20,6 +20,7 @@ design; used by the tests and ``benchmarks/optimise.py`` only.
 from __future__ import annotations
 
 import math
+import time
 from dataclasses import dataclass
 
 import numpy as np
@@ -90,6 +91,7 @@ def anneal_layout(
     seed: int,
     max_cells: int | None = None,
     scorer: LayoutScorer | None = None,
+    seconds: float | None = None,
 ) -> AnnealResult:
     """Anneal ``n_probes`` probes of one method within a budget; the best layout met.
 
@@ -110,6 +112,9 @@ def anneal_layout(
         Score on the evaluation grid coarsened to at most this many cells.
     scorer : LayoutScorer, optional
         Reused across runs on the same project and grid.
+    seconds : float, optional
+        Run for this wall time instead of ``iterations`` moves; the step and the
+        temperature then follow the fraction of the time spent.
     """
     rng = np.random.default_rng(seed)
     scorer = scorer or LayoutScorer(project, max_cells)
@@ -121,10 +126,15 @@ def anneal_layout(
     step0_m = 0.5 * float(np.max(hi - lo))  # first moves may cross half the site
     step1_m = 1.0
     temp0 = max(0.01 * gain, 1e-9) / math.log(2.0)  # a 1 % loss is accepted half the time
-    cool = 1e-3 ** (1.0 / max(iterations, 1))  # T falls a thousandfold over the run
-    temp, accepted = temp0, 0
-    for it in range(iterations):
-        frac = it / max(iterations, 1)
+    accepted = it = 0
+    t0 = time.perf_counter()
+    while True:
+        spent = time.perf_counter() - t0
+        frac = it / max(iterations, 1) if seconds is None else spent / seconds
+        if frac >= 1.0:
+            break
+        it += 1
+        temp = temp0 * 1e-3**frac  # T falls a thousandfold over the run
         step_m = step0_m + (step1_m - step0_m) * frac
         k = int(rng.integers(n_probes))
         for _ in range(100):  # draw again until the move lands where a probe may go
@@ -133,7 +143,6 @@ def anneal_layout(
             if allowed_xy(project, point[None, :])[0] and _spaced(xy, k, point, min_spacing_m):
                 break
         else:
-            temp *= cool
             continue
         trial = xy.copy()
         trial[k] = point
@@ -144,8 +153,7 @@ def anneal_layout(
             accepted += 1
             if gain > best[0]:
                 best = (gain, cost, xy.copy())
-        temp *= cool
-    return AnnealResult(_layout(method_id, best[2]), best[0], best[1], iterations, accepted)
+    return AnnealResult(_layout(method_id, best[2]), best[0], best[1], it, accepted)
 
 
 def _random_start(project, scorer, method_id, n_probes, budget, min_spacing_m, rng, lo, hi):
