@@ -16,10 +16,19 @@
     the candidate-by-target cross-covariance ``state.M`` once (``state.M.sum()``, the best of
     5, float64 as the method keeps it): the memory-bandwidth floor of any exact method.
 
+(d) Bench M, CPT only, budgets that buy about 5, 10 and 20 CPTs (mobilisation + n x the median
+    CPT candidate cost): the optimiser with its exchange refinement (the whole ``optimise``
+    call, planning included) against the spatial simulated annealing of
+    ``server.core.anneal_reference`` (van Groenigen and Stein, 1998; seed 1, random start,
+    every layout scored on the full evaluation grid by the path of ``evaluate``) given 10
+    times the optimiser's wall time (the annealing schedule follows the time spent):
+    gain ratio (optimiser / annealing, both on the full grid) and time ratio.
+
 Figures are printed and written to ``benchmarks/out/optimise.json``. Cases are built by
 ``make_case.py`` (the invented benchmark cases).
 Targets: (a) at most 20 s and 2 GiB on the project's 2-core machine; (b) ratio at
-least 100 with identical picks; (c) per-pick time within 3x of the floor.
+least 100 with identical picks; (c) per-pick time within 3x of the floor; (d) gain ratio at least
+1.00 with time ratio at most 0.1.
 """
 
 from __future__ import annotations
@@ -65,6 +74,9 @@ def child(size: str, budget: float) -> int:
                 "optimise_s": t2 - t1,
                 "cost": out.result.cost,
                 "information_gain_bits": out.result.information_gain_bits,
+                "greedy_gain_bits": out.refinement.greedy_gain_bits,
+                "refine_s": out.refinement.seconds,
+                "refine_moves": out.refinement.moves,
                 "probes": len(out.layout.probes),
                 "methods": sorted({p.method for p in out.layout.probes}),
                 "runs": len(out.runs),
@@ -198,11 +210,64 @@ def part_c(budget: float, picks: int) -> dict:
     }
 
 
+def part_d(sizes=(5, 10, 20), factor: float = 10.0) -> dict:
+    import numpy as np
+
+    from server.core.anneal_reference import LayoutScorer, anneal_layout
+    from server.core.optimise import OptimiseOptions, optimise, prepare_optimisation
+
+    project = load_case("M")
+    setup = prepare_optimisation(project, OptimiseOptions(budget=1e9, methods=("CPT",)))
+    cand = setup.candidates
+    j = cand.method_ids.index("CPT")
+    typical = float(np.median(cand.cost[cand.valid[:, j], j]))
+    scorer = LayoutScorer(project)
+    optimise(project, OptimiseOptions(budget=5000.0, methods=("CPT",)))  # loads the kernels
+    rows = []
+    for n in sizes:
+        budget = setup.mobilisation["CPT"] + n * typical
+        t0 = time.perf_counter()
+        out = optimise(project, OptimiseOptions(budget=budget, methods=("CPT",)))
+        t_opt = time.perf_counter() - t0
+        t0 = time.perf_counter()
+        spacing = out.min_spacing_m
+        ann = anneal_layout(
+            project, "CPT", n, budget, spacing, 0, 1, scorer=scorer, seconds=factor * t_opt
+        )
+        t_ann = time.perf_counter() - t0
+        moves = ann.iterations
+        r = out.refinement
+        rows.append(
+            {
+                "probes": n,
+                "budget": budget,
+                "greedy_gain_bits": r.greedy_gain_bits,
+                "refined_gain_bits": out.result.information_gain_bits,
+                "refined_probes": len(out.layout.probes),
+                "refined_cost": out.result.cost,
+                "moves": r.moves,
+                "optimise_s": t_opt,
+                "refine_s": r.seconds,
+                "anneal_gain_bits": ann.gain_bits,
+                "anneal_cost": ann.cost,
+                "anneal_moves": moves,
+                "anneal_accepted": ann.accepted,
+                "anneal_s": t_ann,
+                "gain_ratio": out.result.information_gain_bits / ann.gain_bits,
+                "greedy_ratio": r.greedy_gain_bits / ann.gain_bits,
+                "time_ratio": t_opt / t_ann,
+            }
+        )
+    return {"rows": rows}
+
+
 def main() -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--budget", type=float, default=60000.0)
     ap.add_argument("--picks", type=int, default=20)
     ap.add_argument("--skip-reference", action="store_true", help="skip (b), the slow part")
+    ap.add_argument("--skip-anneal", action="store_true", help="skip (d), the slowest part")
+    ap.add_argument("--only-anneal", action="store_true", help="run (d) only")
     ap.add_argument("--child", nargs=2, metavar=("SIZE", "BUDGET"), help=argparse.SUPPRESS)
     a = ap.parse_args()
     if a.child:
@@ -211,12 +276,36 @@ def main() -> int:
     print(f"probewise optimise benchmark; {os.cpu_count()} CPU, Python {platform.python_version()}")
     print(f"load average at start: {', '.join(f'{x:.2f}' for x in os.getloadavg())}")
     out: dict = {"budget": a.budget}
+    if not a.only_anneal:
+        parts_abc(a, out)
+    if not a.skip_anneal:
+        rd = out["M_anneal"] = part_d()
+        for row in rd["rows"]:
+            print(
+                f"(d) bench M, CPT, {row['probes']} probes (budget {row['budget']:,.0f}): "
+                f"greedy {row['greedy_gain_bits']:.4f}, refined {row['refined_gain_bits']:.4f} "
+                f"bits in {row['optimise_s']:.1f} s; annealing {row['anneal_gain_bits']:.4f} "
+                f"bits in {row['anneal_s']:.1f} s ({row['anneal_moves']} moves); gain ratio "
+                f"{row['gain_ratio']:.3f}, time ratio {row['time_ratio']:.3f}"
+                f"   [target: >= 1.00, <= 0.1]"
+            )
+    out["load_average_end"] = os.getloadavg()
+    folder = HERE / "out"
+    folder.mkdir(exist_ok=True)
+    name = "optimise-anneal.json" if a.only_anneal else "optimise.json"
+    (folder / name).write_text(json.dumps(out, indent=1) + "\n")
+    return 0
+
+
+def parts_abc(a, out: dict) -> None:
     ra = out["L_budget"] = part_a(a.budget)
     print(
         f"(a) bench L, budget {a.budget:g}: optimise {ra['optimise_s']:.2f} s "
         f"(process {ra['process_wall_s']:.2f} s), peak RSS {ra['peak_rss_mib']:.0f} MiB; "
         f"{ra['probes']} probes ({', '.join(ra['methods'])}), cost {ra['cost']:,.0f}, "
-        f"gain {ra['information_gain_bits']:.3f} bits; {ra['runs']} runs, {ra['picks']} picks, "
+        f"gain {ra['information_gain_bits']:.3f} bits (greedy {ra['greedy_gain_bits']:.3f}, "
+        f"refinement {ra['refine_s']:.1f} s, {ra['refine_moves']} moves); "
+        f"{ra['runs']} runs, {ra['picks']} picks, "
         f"{ra['candidate_locations']} locations at {ra['candidate_spacing_m']:g} m, "
         f"{ra['optimisation_cells']} cells   [target: <= 20 s, <= 2048 MiB]"
     )
@@ -236,11 +325,6 @@ def main() -> int:
         f"{rc['median_floor_ms']:.2f} ms reading M {rc['M_shape']} = {rc['M_mib']:.0f} MiB)"
         f"   [target: <= 3]"
     )
-    out["load_average_end"] = os.getloadavg()
-    folder = HERE / "out"
-    folder.mkdir(exist_ok=True)
-    (folder / "optimise.json").write_text(json.dumps(out, indent=1) + "\n")
-    return 0
 
 
 if __name__ == "__main__":

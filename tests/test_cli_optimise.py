@@ -64,6 +64,11 @@ def test_optimise_json_has_the_documented_fields():
     costs = [p["cost"] for p in curve]
     assert costs == sorted(costs) and costs[-1] <= budget
     assert doc["optimisation"]["candidate_spacing_m"] > 0
+    # what the exchange refinement added (docs/optimiser.md "Refinement by exchanges")
+    ref = doc["refinement"]
+    assert {"greedy_gain_bits", "refined_gain_bits", "moves"} <= set(ref)
+    assert ref["refined_gain_bits"] == lay["information_gain_bits"]
+    assert ref["refined_gain_bits"] >= ref["greedy_gain_bits"]
 
 
 def test_optimise_options_and_text_summary():

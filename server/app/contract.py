@@ -119,6 +119,16 @@ def optimise_json(out, boundary_names, notice: str | None = None) -> dict:
             "seconds": out.seconds,
         },
     }
+    r = out.refinement
+    if r is not None:
+        doc["refinement"] = {
+            "greedy_gain_bits": r.greedy_gain_bits,
+            "refined_gain_bits": r.refined_gain_bits,
+            "moves": r.moves,
+            "sweeps": r.sweeps,
+            "candidate_locations": r.candidate_locations,
+            "seconds": r.seconds,
+        }
     if notice:
         doc["notice"] = notice
     return doc

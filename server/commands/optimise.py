@@ -2,8 +2,9 @@
 
 With ``--json`` it prints the document of docs/model-file.md ("CLI output contract"):
 ``{"layout": <as one entry of evaluate's layouts>, "curve": [{"cost",
-"information_gain_bits"}]}`` plus an ``"optimisation"`` object saying how the search ran (and
-a ``"notice"`` when the evaluation grid was coarsened). Without it, a readable summary.
+"information_gain_bits"}]}`` plus an ``"optimisation"`` object saying how the search ran, a
+``"refinement"`` object saying what the exchange refinement added (and a ``"notice"`` when the
+evaluation grid was coarsened). Without it, a readable summary.
 ``-o OUT`` writes the model file with the proposed layout appended (under a unique name).
 A progress bar goes to stderr when stderr is a terminal; Ctrl-C cancels (exit 130).
 """
@@ -53,6 +54,15 @@ def optimise_text(out, project, budget: float) -> str:
         f"  searched {len(out.candidates.xy)} locations at {out.candidate_spacing_m:g} m "
         f"(min. spacing {out.min_spacing_m:g} m) on {out.optimisation_cells} cells of "
         f"{out.optimisation_spacing_m:g} m; {len(out.runs)} greedy runs in {out.seconds:.1f} s",
+    ]
+    ref = out.refinement
+    if ref is not None and ref.sweeps:
+        parts.append(
+            f"  refinement by exchanges: {ref.greedy_gain_bits:.3f} bits (greedy) -> "
+            f"{ref.refined_gain_bits:.3f} bits, {ref.moves} moves in {ref.sweeps} sweeps "
+            f"over {ref.candidate_locations} locations"
+        )
+    parts += [
         "",
     ]
     rows = [

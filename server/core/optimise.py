@@ -1,6 +1,6 @@
 """Greedy optimiser: the most information per unit of money, with exact low-rank updates.
 
-DESIGN.md "Optimiser". Candidates are a regular grid of locations inside the site and outside
+docs/model.md "Optimiser". Candidates are a regular grid of locations inside the site and outside
 exclusions, times the allowed methods; each candidate's planned depth and observed set are
 planned exactly as for evaluation (``server.core.planning``), so the optimiser scores what
 ``evaluate`` will report. Greedy forward selection picks, at each step, the candidate with
@@ -105,6 +105,14 @@ class OptimiseOptions:
         Largest number of methods in one mix.
     warm_start : bool
         Also start runs from the hand-made layouts that fit the budget.
+    refine_sweeps : int
+        Most exchange sweeps of the refinement (``server.core.refine``); 0 turns it off.
+    refine_cells : int
+        The refinement scores on the evaluation grid coarsened to at most this many cells.
+    refine_work : float
+        Most candidate-target covariances the refinement's tried exchanges may sweep (each
+        try updates and scores every candidate's row once or twice); bounds its run time on
+        large layouts.
     """
 
     budget: float
@@ -115,6 +123,9 @@ class OptimiseOptions:
     target_locations: int = 600
     max_methods_per_mix: int = 3
     warm_start: bool = True
+    refine_sweeps: int = 3
+    refine_cells: int = 3000
+    refine_work: float = 5e8
 
 
 @dataclass(frozen=True, eq=False)
@@ -188,9 +199,31 @@ class GreedyRun:
         return out
 
 
+@dataclass(frozen=True)
+class Refinement:
+    """What the exchange refinement (``server.core.refine``) added to the greedy layout.
+
+    Gains (bits) are on the full evaluation grid, as ``evaluate`` reports them;
+    ``refined_gain_bits`` is the returned layout's (the greedy's when refining found nothing
+    better). ``moves`` counts the exchanges and additions in the returned layout, ``sweeps``
+    the sweeps made and ``candidate_locations`` the locations searched.
+    """
+
+    greedy_gain_bits: float
+    refined_gain_bits: float
+    moves: int
+    sweeps: int
+    candidate_locations: int
+    seconds: float
+
+
 @dataclass(frozen=True, eq=False)
 class OptimiseResult:
-    """The chosen layout (evaluated on the full grid), the curve and how it was found."""
+    """The chosen layout (evaluated on the full grid), the curve and how it was found.
+
+    ``curve`` is that of the greedy prefixes (gains on the optimisation grid);
+    ``refinement`` says what the exchange refinement added to the greedy layout.
+    """
 
     layout: Layout
     result: LayoutResult
@@ -202,6 +235,7 @@ class OptimiseResult:
     candidate_spacing_m: float
     min_spacing_m: float
     seconds: float
+    refinement: Refinement | None = None
 
 
 ProgressFn = Callable[[float, str], None]
@@ -647,6 +681,12 @@ class GreedyProblem:
         w = np.concatenate(pred.white, axis=0)  # (m_e, B, m)
         return w[:, bnds, np.arange(len(bnds))]
 
+    def gain_bits(self, var_before: np.ndarray, var_after: np.ndarray) -> float:
+        """Information gain (bits) of going from target variances ``var_before`` to
+        ``var_after`` (both ``(S,)``, as ``GreedyState.V``)."""
+        ratio = var_before / np.maximum(var_after, 1e-300)
+        return float(np.sum(self._slot_omega() * 0.5 * np.log2(ratio)))
+
     def _slot_omega(self) -> np.ndarray:
         t = self.targets
         out = np.zeros(len(t.slot_cell))
@@ -726,19 +766,26 @@ def layout_from_run(
     problem: GreedyProblem, run: GreedyRun, n_picks: int, start: Layout | None, name: str
 ) -> Layout:
     """The layout of the first ``n_picks`` picks of a run (after its start layout)."""
-    cand = problem.cand
+    picks = [(p.location, p.method) for p in run.picks[:n_picks]]
+    return layout_from_picks(problem.cand, picks, start, name)
+
+
+def layout_from_picks(
+    cand: Candidates, picks: Sequence[tuple[int, int]], start: Layout | None, name: str
+) -> Layout:
+    """The layout of ``start``'s probes (if any) and candidates ``(location, method)``."""
     probes = list(start.probes) if start is not None else []
     used_ids = {p.id for p in probes}
     counters: dict[str, int] = {}
-    for p in run.picks[:n_picks]:
-        mid = cand.method_ids[p.method]
+    for l, j in picks:
+        mid = cand.method_ids[j]
         while True:
             counters[mid] = counters.get(mid, 0) + 1
             pid = f"{mid}-O{counters[mid]:02d}"
             if pid not in used_ids:
                 break
         used_ids.add(pid)
-        x, y = cand.xy[p.location]
+        x, y = cand.xy[l]
         probes.append(PlannedProbe(pid, mid, float(x), float(y)))
     return Layout(name, tuple(probes))
 
@@ -838,6 +885,129 @@ def prepare_optimisation(
     )
 
 
+def greedy_jobs(
+    project: Project, options: OptimiseOptions, setup: OptimiseSetup
+) -> list[tuple[tuple[str, ...], Layout | None]]:
+    """The greedy runs to make: one per mix of methods, one per usable hand-made layout."""
+    mob, allowed_ids = setup.mobilisation, setup.candidates.method_ids
+    jobs: list[tuple[tuple[str, ...], Layout | None]] = [
+        (mix, None)
+        for mix in method_mixes(allowed_ids, mob, options.budget, options.max_methods_per_mix)
+    ]
+    if options.warm_start:
+        for layout in project.layouts:
+            used = tuple(dict.fromkeys(p.method for p in layout.probes))
+            if layout.probes and set(used) <= set(allowed_ids):
+                jobs.append((used, layout))
+    if not jobs:
+        raise _no_mobilisation_error(options.budget, mob)
+    return jobs
+
+
+def _no_mobilisation_error(budget: float, mob: dict[str, float]) -> OptimiseError:
+    return OptimiseError(
+        f"{budget:g} does not cover the mobilisation of any allowed method "
+        f"(the cheapest is {min(mob.values()):g})",
+        "budget",
+    )
+
+
+def run_greedy_jobs(
+    setup: OptimiseSetup,
+    budget: float,
+    jobs: Sequence[tuple[tuple[str, ...], Layout | None]],
+    report: ProgressFn,
+    should_stop: Callable[[], bool] | None,
+) -> tuple[list[GreedyRun], dict[int, Layout | None]]:
+    """Every greedy run of ``jobs``; returns the runs and the start layout of each."""
+    analysis, problem, mob = setup.analysis, setup.problem, setup.mobilisation
+    cand = problem.cand
+    runs: list[GreedyRun] = []
+    starts: dict[int, Layout | None] = {}
+    for n_job, (mix, start) in enumerate(jobs):
+        if should_stop is not None and should_stop():
+            raise OptimiseCancelled()
+        state = problem.base_state.copy()
+        start_cost = start_gain = 0.0
+        taken = None
+        if start is not None:
+            start_cost = problem.layout_cost(start)
+            if start_cost > budget:
+                continue
+            start_cost, start_gain = problem.apply_layout(state, start)
+            taken = analysis.to_local(np.array([(p.x, p.y) for p in start.probes]))
+            left = budget - start_cost
+        else:
+            left = budget - sum(mob[m] for m in mix)
+        allowed = np.array([m in mix for m in cand.method_ids])
+        label = f"from {start.name!r}" if start is not None else "+".join(mix)
+
+        def on_pick(n, n_job=n_job, label=label):
+            if should_stop is not None and should_stop():
+                raise OptimiseCancelled()
+            report(0.05 + 0.75 * (n_job + min(n, 50) / 51) / len(jobs), f"{label}: {n} picks")
+
+        picks = greedy_run(
+            problem, state, allowed, left, setup.min_spacing_m, taken, on_pick=on_pick
+        )
+        starts[len(runs)] = start
+        runs.append(GreedyRun(mix, start.name if start else None, start_cost, start_gain, picks))
+        report(0.05 + 0.75 * (n_job + 1) / len(jobs), f"{label}: done, {len(picks)} picks")
+    return runs, starts
+
+
+def budget_prefixes(
+    runs: Sequence[GreedyRun], cand: Candidates, mob: dict[str, float], budget: float
+) -> list[tuple[float, float, int, int]]:
+    """``(gain, -cost, run index, n picks)`` of every prefix within the budget."""
+    prefixes = []
+    for r_idx, run in enumerate(runs):
+        for n, cost, gain in run.prefixes(cand, mob):
+            if cost <= budget + 1e-9 and (n > 0 or run.start is not None):
+                prefixes.append((gain, -cost, r_idx, n))
+    if not prefixes:
+        if budget <= min(mob.values()):
+            raise _no_mobilisation_error(budget, mob)
+        raise OptimiseError(
+            f"nothing fits a budget of {budget:g}: no allowed probe costs that little "
+            "after mobilisation",
+            "budget",
+        )
+    return prefixes
+
+
+def choose_finalist(
+    setup: OptimiseSetup,
+    runs: Sequence[GreedyRun],
+    starts: dict[int, Layout | None],
+    prefixes: Sequence[tuple[float, float, int, int]],
+    budget: float,
+    title: str,
+    should_stop: Callable[[], bool] | None,
+):
+    """Evaluate the best prefixes on the full grid; ``(layout, result, run index, n picks)``
+    of the one with the most gain (then the least cost) within the budget."""
+    finalists = sorted(prefixes, reverse=True)[:FINALISTS]
+    # the best prefix of each warm start keeps the guarantee against hand-made layouts
+    for r_idx, run in enumerate(runs):
+        if run.start is not None:
+            mine = [p for p in prefixes if p[2] == r_idx]
+            if mine:
+                finalists.append(max(mine))
+    best = None
+    for _, _, r_idx, n in dict.fromkeys(finalists):
+        if should_stop is not None and should_stop():
+            raise OptimiseCancelled()
+        layout = layout_from_run(setup.problem, runs[r_idx], n, starts[r_idx], title)
+        result = setup.evaluator.evaluate_layout(layout)
+        key = (result.information_gain_bits, -result.cost)
+        if result.cost <= budget + 1e-6 and (best is None or key > best[0]):
+            best = (key, layout, result, r_idx, n)
+    if best is None:  # pragma: no cover - prefixes were costed the same way
+        raise OptimiseError(f"nothing fits a budget of {budget:g}", "budget")
+    return best[1:]
+
+
 def optimise(
     project: Project,
     options: OptimiseOptions,
@@ -847,6 +1017,10 @@ def optimise(
     setup: OptimiseSetup | None = None,
 ) -> OptimiseResult:
     """Propose the layout that buys the most information within ``options.budget``.
+
+    Greedy runs (:func:`run_greedy_jobs`), the best prefixes evaluated on the full grid
+    (:func:`choose_finalist`), then the exchange refinement of the chosen one
+    (``server.core.refine``), kept when it gains more on the full grid.
 
     Parameters
     ----------
@@ -872,6 +1046,8 @@ def optimise(
         Bad options, no usable candidate, or nothing fits the budget; ``field`` says which.
     OptimiseCancelled
     """
+    from server.core.refine import refine_layout
+
     t_start = time.perf_counter()
     done = [0.0]
 
@@ -884,109 +1060,35 @@ def optimise(
         raise OptimiseError("the budget must be a positive number", "budget")
     if setup is None:
         setup = prepare_optimisation(project, options, report)
-    analysis, problem, mob = setup.analysis, setup.problem, setup.mobilisation
-    cand = problem.cand
-    allowed_ids = cand.method_ids
-    min_spacing = setup.min_spacing_m
-
-    jobs: list[tuple[tuple[str, ...], Layout | None]] = [
-        (mix, None)
-        for mix in method_mixes(allowed_ids, mob, options.budget, options.max_methods_per_mix)
-    ]
-    if options.warm_start:
-        for layout in project.layouts:
-            used = tuple(dict.fromkeys(p.method for p in layout.probes))
-            if layout.probes and set(used) <= set(allowed_ids):
-                jobs.append((used, layout))
-    if not jobs:
-        cheapest = min(mob.values())
-        raise OptimiseError(
-            f"{options.budget:g} does not cover the mobilisation of any allowed method "
-            f"(the cheapest is {cheapest:g})",
-            "budget",
-        )
-
-    runs: list[GreedyRun] = []
-    starts: dict[int, Layout | None] = {}
-    for n_job, (mix, start) in enumerate(jobs):
-        if should_stop is not None and should_stop():
-            raise OptimiseCancelled()
-        state = problem.base_state.copy()
-        start_cost = start_gain = 0.0
-        taken = None
-        if start is not None:
-            start_cost = problem.layout_cost(start)
-            if start_cost > options.budget:
-                continue
-            start_cost, start_gain = problem.apply_layout(state, start)
-            taken = analysis.to_local(np.array([(p.x, p.y) for p in start.probes]))
-            left = options.budget - start_cost
-        else:
-            left = options.budget - sum(mob[m] for m in mix)
-        allowed = np.array([m in mix for m in cand.method_ids])
-        label = f"from {start.name!r}" if start is not None else "+".join(mix)
-
-        def on_pick(n, n_job=n_job, label=label):
-            if should_stop is not None and should_stop():
-                raise OptimiseCancelled()
-            report(0.05 + 0.85 * (n_job + min(n, 50) / 51) / len(jobs), f"{label}: {n} picks")
-
-        picks = greedy_run(problem, state, allowed, left, min_spacing, taken, on_pick=on_pick)
-        starts[len(runs)] = start
-        runs.append(GreedyRun(mix, start.name if start else None, start_cost, start_gain, picks))
-        report(0.05 + 0.85 * (n_job + 1) / len(jobs), f"{label}: done, {len(picks)} picks")
-
-    # every prefix within the budget; the curve is their upper envelope
-    prefixes = []
-    for r_idx, run in enumerate(runs):
-        for n, cost, gain in run.prefixes(cand, mob):
-            if cost <= options.budget + 1e-9 and (n > 0 or run.start is not None):
-                prefixes.append((gain, -cost, r_idx, n))
-    if not prefixes:
-        cheapest = min(mob.values())
-        if options.budget <= cheapest:
-            raise OptimiseError(
-                f"{options.budget:g} does not cover the mobilisation of any allowed method "
-                f"(the cheapest is {cheapest:g})",
-                "budget",
-            )
-        raise OptimiseError(
-            f"nothing fits a budget of {options.budget:g}: no allowed probe costs that little "
-            "after mobilisation",
-            "budget",
-        )
+    jobs = greedy_jobs(project, options, setup)
+    runs, starts = run_greedy_jobs(setup, options.budget, jobs, report, should_stop)
+    prefixes = budget_prefixes(runs, setup.candidates, setup.mobilisation, options.budget)
     curve = upper_envelope([(-c, g) for g, c, _, _ in prefixes])
-    report(0.92, "re-evaluating the best layouts on the full grid")
-    evaluator = setup.evaluator
-    finalists = sorted(prefixes, reverse=True)[:FINALISTS]
-    # the best prefix of each warm start keeps the guarantee against hand-made layouts
-    for r_idx, run in enumerate(runs):
-        if run.start is not None:
-            mine = [p for p in prefixes if p[2] == r_idx]
-            if mine:
-                finalists.append(max(mine))
+    report(0.82, "re-evaluating the best layouts on the full grid")
     title = name or f"Optimised for {options.budget:g}"
-    best = None
-    for _, _, r_idx, n in dict.fromkeys(finalists):
+    layout, result, r_idx, n = choose_finalist(
+        setup, runs, starts, prefixes, options.budget, title, should_stop
+    )
+
+    def on_step(fraction: float) -> None:
         if should_stop is not None and should_stop():
             raise OptimiseCancelled()
-        layout = layout_from_run(problem, runs[r_idx], n, starts[r_idx], title)
-        result = evaluator.evaluate_layout(layout)
-        key = (result.information_gain_bits, -result.cost)
-        if result.cost <= options.budget + 1e-6 and (best is None or key > best[0]):
-            best = (key, layout, result)
-    if best is None:  # pragma: no cover - prefixes were costed the same way
-        raise OptimiseError(f"nothing fits a budget of {options.budget:g}", "budget")
+        report(0.85 + 0.14 * fraction, "refining the layout by exchanges")
+
+    layout, result, refinement = refine_layout(
+        setup, options, runs[r_idx], n, starts[r_idx], (layout, result), options.budget, on_step
+    )
     report(1.0, "done")
     return OptimiseResult(
-        layout=best[1],
-        result=best[2],
+        layout=layout,
+        result=result,
         curve=curve,
         runs=tuple(runs),
-        candidates=cand,
+        candidates=setup.candidates,
         optimisation_cells=setup.grid.n_cells,
         optimisation_spacing_m=setup.grid.spacing_m,
         candidate_spacing_m=setup.candidate_spacing_m,
         min_spacing_m=setup.min_spacing_m,
         seconds=time.perf_counter() - t_start,
+        refinement=refinement,
     )

@@ -8,7 +8,7 @@ Checks, each against an independent computation:
 - the exact incremental state after a hand-made layout equals a fresh solve;
 - the chosen layout never costs more than the budget (hypothesis over budgets);
 - at the cost of each hand-made layout the optimised layout gains at least as much
-  (DESIGN.md "Optimiser"; slower cases in test_optimise_guarantee.py);
+  (docs/model.md "Optimiser"; slower cases in test_optimise_guarantee.py);
 - progress is monotone and ends at 1; cancellation raises OptimiseCancelled;
 - bad options raise OptimiseError naming the field.
 """
@@ -188,7 +188,7 @@ def test_optimised_layout_is_inside_the_site_and_spaced():
 )
 @given(budget=st.floats(min_value=1800.0, max_value=30000.0))
 def test_budget_is_never_exceeded(budget):
-    # Invariant (DESIGN.md "Optimiser"): the layout costs at most the budget; the cost is
+    # Invariant (docs/model.md "Optimiser"): the layout costs at most the budget; the cost is
     # recomputed by evaluate on the full grid, mobilisation included.
     project = tiny_project()
     try:
@@ -203,7 +203,7 @@ def test_budget_is_never_exceeded(budget):
 
 
 def test_optimised_beats_every_hand_made_layout_of_the_tiny_model():
-    # DESIGN.md "Optimiser" acceptance: at the cost of every hand-made layout the optimised
+    # docs/model.md "Optimiser" acceptance: at the cost of every hand-made layout the optimised
     # layout gains at least as much information (both evaluated on the full grid).
     project = tiny_project()
     evaluator = GridEvaluator(project)

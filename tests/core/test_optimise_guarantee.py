@@ -1,10 +1,10 @@
-"""Acceptance of the optimiser (issue 4, DESIGN.md "Optimiser"): at the cost of every
+"""Acceptance of the optimiser (docs/optimiser.md): at the cost of every
 hand-made layout, the optimised layout costs no more and gains at least as much information.
 
 Both are evaluated on the full evaluation grid by ``server.core.evaluate`` (the numbers the
 user sees). Cases: the invented demo project (seed_data/), the tiny example
 (tests/data/tiny-model.json) and the synthetic bench cases S and M built by
-benchmarks/make_case.py (a copy of ../shared/bench/make_case.py). The guarantee holds by
+benchmarks/make_case.py (the invented benchmark cases). The guarantee holds by
 construction (the optimiser also starts from every hand-made layout and re-evaluates the best
 prefixes on the full grid); this checks that the construction works end to end.
 """
