@@ -1,0 +1,198 @@
+"""What the optimiser takes and gives: options, candidates, picks, runs, results and errors
+(``server.core.optimise`` and its helpers share them)."""
+
+from __future__ import annotations
+
+import threading
+from collections.abc import Callable
+from dataclasses import dataclass
+
+import numpy as np
+
+from server.core.evaluate import LayoutResult
+from server.core.model import Layout
+
+# The search runs on all cores; numba's fallback thread pool ("workqueue", used where no
+# OpenMP or TBB library is found) aborts the process if two threads enter it at once, and the
+# web may run optimisers for two projects concurrently, so searches take turns.
+KERNEL_LOCK = threading.Lock()
+MIN_GAIN_BITS = 1e-9  # a candidate that buys less than this is not worth a pick
+FINALISTS = 4  # layouts re-evaluated on the full grid before choosing
+# Each candidate location holds a row of covariances with every target and is planned per
+# method: more than this makes a run take minutes for no better answer.
+MAX_CANDIDATE_LOCATIONS = 5000
+
+
+class OptimiseCancelled(Exception):  # noqa: N818 - a signal, not an error
+    """Raised inside :func:`optimise` when the caller asks it to stop."""
+
+
+class OptimiseError(ValueError):
+    """The optimiser cannot run: no candidate, or nothing fits the budget (message says).
+
+    ``field`` names the option or model part at fault: ``budget``, ``methods``,
+    ``candidate_spacing_m``, ``min_spacing_m`` or ``boundaries_of_interest``.
+    """
+
+    def __init__(self, message: str, field: str = "budget"):
+        super().__init__(message)
+        self.field = field
+
+
+@dataclass(frozen=True)
+class OptimiseOptions:
+    """What to optimise for.
+
+    Attributes
+    ----------
+    budget : float
+        Most the layout may cost (currency units), mobilisation included.
+    methods : tuple of str, optional
+        Method ids the optimiser may use; default all.
+    candidate_spacing_m : float, optional
+        Spacing of the candidate grid; default chosen so there are about
+        ``target_locations`` locations.
+    min_spacing_m : float, optional
+        Least distance between chosen probes; default the candidate spacing.
+    max_cells : int
+        Optimise on a coarser copy of the evaluation grid when it has more cells than this.
+    target_locations : int
+        Number of candidate locations the default spacing aims at.
+    max_methods_per_mix : int
+        Largest number of methods in one mix.
+    warm_start : bool
+        Also start runs from the hand-made layouts that fit the budget.
+    refine_sweeps : int
+        Most exchange sweeps of the refinement (``server.core.refine``); 0 turns it off.
+    refine_cells : int
+        The refinement scores on the evaluation grid coarsened to at most this many cells.
+    refine_work : float
+        Most candidate-target covariances the refinement's tried exchanges may sweep (each
+        try updates and scores every candidate's row once or twice); bounds its run time on
+        large layouts.
+    """
+
+    budget: float
+    methods: tuple[str, ...] | None = None
+    candidate_spacing_m: float | None = None
+    min_spacing_m: float | None = None
+    max_cells: int = 1500
+    target_locations: int = 600
+    max_methods_per_mix: int = 3
+    warm_start: bool = True
+    refine_sweeps: int = 3
+    refine_cells: int = 3000
+    refine_work: float = 5e8
+
+
+@dataclass(frozen=True, eq=False)
+class Candidates:
+    """Candidate probes: ``L`` locations times ``J`` methods.
+
+    Attributes
+    ----------
+    xy : (L, 2) float
+        Project coordinates of the locations.
+    local : (L, 2) float
+        The same relative to the analysis origin.
+    method_ids : tuple of str, length J
+    depth_m : (L, J) float
+        Planned depth of each candidate.
+    cost : (L, J) float
+        Per-location + per-metre cost (no mobilisation).
+    noise_var : (L, J, B) float
+        Reading variance for each boundary the candidate observes; ``nan`` elsewhere.
+    valid : (L, J) bool
+        Observes at least one boundary.
+    """
+
+    xy: np.ndarray
+    local: np.ndarray
+    method_ids: tuple[str, ...]
+    depth_m: np.ndarray
+    cost: np.ndarray
+    noise_var: np.ndarray
+    valid: np.ndarray
+
+    @property
+    def observes(self) -> np.ndarray:
+        """``(L, J, B)`` bool: boundaries each candidate reads."""
+        return np.isfinite(self.noise_var)
+
+
+@dataclass(frozen=True)
+class Pick:
+    """One greedy step: candidate (location, method index), its cost and gain (bits)."""
+
+    location: int
+    method: int
+    cost: float
+    gain_bits: float
+
+
+@dataclass(frozen=True)
+class GreedyRun:
+    """One greedy run: a mix of methods, optionally started from a hand-made layout."""
+
+    mix: tuple[str, ...]
+    start: str | None
+    start_cost: float
+    start_gain_bits: float
+    picks: tuple[Pick, ...]
+
+    def prefixes(self, cand: Candidates, mobilisation: dict[str, float]):
+        """``(n_picks, cost, gain)`` of every prefix; cost pays mobilisation of methods used."""
+        used: set[str] = set()
+        cost, gain = self.start_cost, self.start_gain_bits
+        out = [(0, cost, gain)]
+        for n, p in enumerate(self.picks, start=1):
+            mid = cand.method_ids[p.method]
+            if mid not in used:
+                used.add(mid)
+                cost += mobilisation[mid]
+            cost += p.cost
+            gain += p.gain_bits
+            out.append((n, cost, gain))
+        return out
+
+
+@dataclass(frozen=True)
+class Refinement:
+    """What the exchange refinement (``server.core.refine``) added to the greedy layout.
+
+    Gains (bits) are on the full evaluation grid, as ``evaluate`` reports them;
+    ``refined_gain_bits`` is the returned layout's (the greedy's when refining found nothing
+    better). ``moves`` counts the exchanges and additions in the returned layout, ``sweeps``
+    the sweeps made and ``candidate_locations`` the locations searched.
+    """
+
+    greedy_gain_bits: float
+    refined_gain_bits: float
+    moves: int
+    sweeps: int
+    candidate_locations: int
+    seconds: float
+
+
+@dataclass(frozen=True, eq=False)
+class OptimiseResult:
+    """The chosen layout (evaluated on the full grid), the curve and how it was found.
+
+    ``curve`` is that of the greedy prefixes (gains on the optimisation grid);
+    ``refinement`` says what the exchange refinement added to the greedy layout.
+    """
+
+    layout: Layout
+    result: LayoutResult
+    curve: tuple[tuple[float, float], ...]
+    runs: tuple[GreedyRun, ...]
+    candidates: Candidates
+    optimisation_cells: int
+    optimisation_spacing_m: float
+    candidate_spacing_m: float
+    min_spacing_m: float
+    seconds: float
+    refinement: Refinement | None = None
+
+
+ProgressFn = Callable[[float, str], None]
