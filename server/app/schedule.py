@@ -210,10 +210,14 @@ def justification_of(
 
 
 def default_layout_name(project: Project, ranking: Sequence[RankedOption]) -> str | None:
-    """The option shown first: the Pareto-efficient one that buys the most information per
-    unit cost (the cheapest of equals), else the first layout; None without layouts."""
+    """The option shown first: with design elements, the one of highest net value (money leads);
+    else the Pareto-efficient one that buys the most information per unit cost (the cheapest of
+    equals); else the first layout; None without layouts."""
     if not project.layouts:
         return None
+    valued = [o for o in ranking if o.net_value is not None]
+    if valued:
+        return max(valued, key=lambda o: o.net_value).name
     efficient = [o for o in ranking if o.pareto and o.gain_per_cost is not None]
     if efficient:
         return max(efficient, key=lambda o: o.gain_per_cost).name

@@ -345,6 +345,7 @@ def compare_page(
         **project_context(project, "compare"),
         "layout_names": names,
         "selected": selected,
+        "has_elements": bool(project.model.get("elements")),
         "quantity": quantity,
         "quantities": QUANTITIES,
         "results_url": f"/projects/{project_id}/compare/results?{urlencode(query)}",
