@@ -13,19 +13,12 @@ import argparse
 import json
 import sys
 
-from server.commands.posterior import parse_point
+from server.commands.options import add_point_arguments, points_of
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("model", help="model file (JSON, schema probewise/1)")
-    parser.add_argument(
-        "--at",
-        action="append",
-        default=[],
-        metavar="X,Y",
-        help="a point in project coordinates (m); repeat for more; write --at=-5,3 "
-        "when X is negative",
-    )
+    add_point_arguments(parser)
     parser.add_argument("--json", action="store_true", help="print JSON for a machine to read")
 
 
@@ -68,11 +61,8 @@ def run(args: argparse.Namespace) -> int:
 
     from server.app.levels import bounds_json
     from server.app.project import load_project
-    from server.errors import InputError
 
-    points = [parse_point(t) for t in args.at]
-    if not points:
-        raise InputError("--at", "give at least one point as --at X,Y (metres)")
+    points = points_of(args)
     _, project = load_project(args.model)
     doc = bounds_json(project, np.array(points, dtype=float))
     if args.json:

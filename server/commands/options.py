@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import math
 import sys
 import time
 
@@ -115,3 +116,37 @@ def parse_pairs(items: list[str] | None, option: str) -> dict[str, str]:
             raise InputError(option, f"expected KEY=VALUE, got {item!r}")
         out[key.strip()] = value.strip()
     return out
+
+
+def add_point_arguments(parser: argparse.ArgumentParser) -> None:
+    """``--at X,Y``, repeatable: the points of ``posterior`` and ``bounds``."""
+    parser.add_argument(
+        "--at",
+        action="append",
+        default=[],
+        metavar="X,Y",
+        help="a point in project coordinates (m); repeat for more; write --at=-5,3 "
+        "when X is negative",
+    )
+
+
+def parse_point(text: str) -> tuple[float, float]:
+    """``"X,Y"`` -> (x, y); InputError naming ``--at`` otherwise."""
+    parts = text.split(",")
+    try:
+        if len(parts) != 2:
+            raise ValueError
+        x, y = float(parts[0]), float(parts[1])
+    except ValueError:
+        raise InputError("--at", f"expected X,Y in metres, got {text!r}") from None
+    if not (math.isfinite(x) and math.isfinite(y)):
+        raise InputError("--at", f"coordinates must be finite numbers, got {text!r}")
+    return x, y
+
+
+def points_of(args: argparse.Namespace) -> list[tuple[float, float]]:
+    """The ``--at`` points; at least one, else InputError naming ``--at``."""
+    points = [parse_point(t) for t in args.at]
+    if not points:
+        raise InputError("--at", "give at least one point as --at X,Y (metres)")
+    return points

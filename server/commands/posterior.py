@@ -11,38 +11,16 @@ from __future__ import annotations
 
 import argparse
 import json
-import math
 import sys
+
+from server.commands.options import add_point_arguments, points_of
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("model", help="model file (JSON, schema probewise/1)")
-    parser.add_argument(
-        "--at",
-        action="append",
-        default=[],
-        metavar="X,Y",
-        help="a point in project coordinates (m); repeat for more; write --at=-5,3 "
-        "when X is negative",
-    )
+    add_point_arguments(parser)
     parser.add_argument("--layout", metavar="NAME", help="add this layout's planned probes")
     parser.add_argument("--json", action="store_true", help="print JSON for a machine to read")
-
-
-def parse_point(text: str) -> tuple[float, float]:
-    """``"X,Y"`` -> (x, y); InputError naming ``--at`` otherwise."""
-    from server.errors import InputError
-
-    parts = text.split(",")
-    try:
-        if len(parts) != 2:
-            raise ValueError
-        x, y = float(parts[0]), float(parts[1])
-    except ValueError:
-        raise InputError("--at", f"expected X,Y in metres, got {text!r}") from None
-    if not (math.isfinite(x) and math.isfinite(y)):
-        raise InputError("--at", f"coordinates must be finite numbers, got {text!r}")
-    return x, y
 
 
 def posterior_json(names: tuple[str, ...], post, ground_level_m=None) -> dict:
@@ -122,9 +100,7 @@ def run(args: argparse.Namespace) -> int:
     from server.core.geometry import points_in_polygon
     from server.errors import InputError
 
-    points = [parse_point(t) for t in args.at]
-    if not points:
-        raise InputError("--at", "give at least one point as --at X,Y (metres)")
+    points = points_of(args)
     _, project = load_project(args.model)
     analysis = ProjectAnalysis(project)
     layout = None if args.layout is None else find_layout(project, args.layout, "--layout")

@@ -27,6 +27,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from server.core.correlation import correlate, correlate_unit, pairwise_distance_m
+from server.core.covariance import distinct_spots
 from server.core.field import UnitFields, prior_boundary_moments, unit_fields
 from server.core.model import CORRELATED_CELLS_PROBLEM, GroundModel, ModelLimitError
 from server.core.posterior import PosteriorState, Prediction
@@ -263,12 +264,7 @@ def block_cross_covariance(
     if m == 0:
         return np.empty((0, B, n))
     # a probe reads several boundaries at one spot: average over the sub-points once per spot
-    spots, spot_of = np.unique(
-        np.asarray(xy_obs, float).reshape(-1, 2), axis=0, return_inverse=True
-    )
-    spot_of = spot_of.reshape(-1)
-    first = np.zeros(len(spots), dtype=int)
-    first[spot_of] = np.arange(m)
+    spots, spot_of, first = distinct_spots(xy_obs)
     deepest = int(bnd_obs.max()) + 1  # deeper units never enter these covariances
     terms = block_unit_terms(ground, spots, fields_obs.std_m[first], blocks, deepest)
     cum = np.cumsum(terms, axis=0)  # (deepest, u, n)

@@ -77,6 +77,32 @@ def boundary_covariance(
     return out
 
 
+def distinct_spots(xy_obs: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The distinct places of readings: a probe reads several boundaries at one spot.
+
+    Parameters
+    ----------
+    xy_obs : (m, 2) float
+        Reading points.
+
+    Returns
+    -------
+    spots : (u, 2) float
+        Distinct points.
+    spot_of : (m,) int
+        Spot of each reading.
+    first : (u,) int
+        One reading at each spot (for the fields, which depend on the spot only).
+    """
+    spots, spot_of = np.unique(
+        np.asarray(xy_obs, float).reshape(-1, 2), axis=0, return_inverse=True
+    )
+    spot_of = spot_of.reshape(-1)
+    first = np.zeros(len(spots), dtype=int)
+    first[spot_of] = np.arange(len(spot_of))
+    return spots, spot_of, first
+
+
 def cross_covariance_all(
     ground: GroundModel,
     xy_obs: np.ndarray,
@@ -115,12 +141,7 @@ def cross_covariance_all(
     # A probe reads several boundaries at one spot: correlate each distinct spot once.
     # cum[s, i] = sum over units i' <= i of s_i'(spot) s_i'(pt) rho_i'(h); a reading of
     # boundary j then has covariance cum[s, min(j, k)] with boundary k at the points.
-    spots, spot_of = np.unique(
-        np.asarray(xy_obs, float).reshape(-1, 2), axis=0, return_inverse=True
-    )
-    spot_of = spot_of.reshape(-1)
-    first = np.zeros(len(spots), dtype=int)
-    first[spot_of] = np.arange(m)  # any reading at each spot, for its fields
+    spots, spot_of, first = distinct_spots(xy_obs)
     s_spot = fields_obs.std_m[first]  # (u, B); fields depend on the spot only
     deepest = np.full(len(spots), -1)
     np.maximum.at(deepest, spot_of, bnd_obs)
