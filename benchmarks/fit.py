@@ -23,10 +23,10 @@ sys.path.insert(0, str(HERE.parent))
 
 from readings import case_with_probes  # noqa: E402
 
-from server.app.fit import project_fit  # noqa: E402
-from server.app.to_core import to_core  # noqa: E402
-from server.core.evaluate import evaluate_project  # noqa: E402
-from server.io.model_file import validate_model  # noqa: E402
+from probewise.app.fit import project_fit  # noqa: E402
+from probewise.app.to_core import to_core  # noqa: E402
+from probewise.core.evaluate import evaluate_project  # noqa: E402
+from probewise.io.model_file import validate_model  # noqa: E402
 
 
 def main() -> None:

@@ -30,9 +30,9 @@ sys.path.insert(0, str(HERE.parent))
 
 from make_case import SIZES, make, rect  # noqa: E402
 
-from server.app.to_core import to_core  # noqa: E402
-from server.core.evaluate import evaluate_project  # noqa: E402
-from server.io.model_file import validate_model  # noqa: E402
+from probewise.app.to_core import to_core  # noqa: E402
+from probewise.core.evaluate import evaluate_project  # noqa: E402
+from probewise.io.model_file import validate_model  # noqa: E402
 
 
 def with_history(model: dict, size: str, n_points: int, seed: int) -> dict:

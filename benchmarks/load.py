@@ -44,7 +44,7 @@ from pathlib import Path
 
 import httpx
 
-from server.local_server import ServerStartError, free_port, start_server, stop_server
+from probewise.local_server import ServerStartError, free_port, start_server, stop_server
 
 HERE = Path(__file__).resolve().parent
 OUT = HERE / "out"

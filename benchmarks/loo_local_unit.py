@@ -36,9 +36,9 @@ import numpy as np
 HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE.parent))
 
-from server.app.to_core import to_core  # noqa: E402
-from server.core.analysis import ProjectAnalysis  # noqa: E402
-from server.io.model_file import validate_model  # noqa: E402
+from probewise.app.to_core import to_core  # noqa: E402
+from probewise.core.analysis import ProjectAnalysis  # noqa: E402
+from probewise.io.model_file import validate_model  # noqa: E402
 
 UNITS = ["Fill", "Marine deposit", "Alluvium"]
 RENAME = {

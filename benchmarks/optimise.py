@@ -19,7 +19,7 @@
 (d) Bench M, CPT only, budgets that buy about 5, 10 and 20 CPTs (mobilisation + n x the median
     CPT candidate cost): the optimiser with its exchange refinement (the whole ``optimise``
     call, planning included) against the spatial simulated annealing of
-    ``server.core.anneal_reference`` (van Groenigen and Stein, 1998; seed 1, random start,
+    ``probewise.core.anneal_reference`` (van Groenigen and Stein, 1998; seed 1, random start,
     every layout scored on the full evaluation grid by the path of ``evaluate``) given 10
     times the optimiser's wall time (the annealing schedule follows the time spent):
     gain ratio (optimiser / annealing, both on the full grid) and time ratio.
@@ -52,8 +52,8 @@ from make_case import make  # noqa: E402
 
 
 def load_case(size: str):
-    from server.app.to_core import to_core
-    from server.io.model_file import validate_model
+    from probewise.app.to_core import to_core
+    from probewise.io.model_file import validate_model
 
     return to_core(validate_model(make(size, 1)))
 
@@ -61,7 +61,7 @@ def load_case(size: str):
 def child(size: str, budget: float) -> int:
     """Run one optimisation and print its figures as JSON (runs in a fresh process)."""
     t0 = time.perf_counter()
-    from server.core.optimise import OptimiseOptions, optimise
+    from probewise.core.optimise import OptimiseOptions, optimise
 
     project = load_case(size)
     t1 = time.perf_counter()
@@ -115,7 +115,7 @@ def part_a(budget: float) -> dict:
 
 
 def greedy_problem(size: str, budget: float):
-    from server.core.optimise import OptimiseOptions, prepare_optimisation
+    from probewise.core.optimise import OptimiseOptions, prepare_optimisation
 
     project = load_case(size)
     setup = prepare_optimisation(project, OptimiseOptions(budget=budget))
@@ -126,8 +126,8 @@ def greedy_problem(size: str, budget: float):
 def part_b(budget: float, picks: int = 5) -> dict:
     import numpy as np
 
-    from server.core.optimise import greedy_run
-    from server.core.optimise_reference import greedy_reference
+    from probewise.core.optimise import greedy_run
+    from probewise.core.optimise_reference import greedy_reference
 
     setup, left = greedy_problem("M", budget)
     problem = setup.problem
@@ -213,8 +213,8 @@ def part_c(budget: float, picks: int) -> dict:
 def part_d(sizes=(5, 10, 20), factor: float = 10.0) -> dict:
     import numpy as np
 
-    from server.core.anneal_reference import LayoutScorer, anneal_layout
-    from server.core.optimise import OptimiseOptions, optimise, prepare_optimisation
+    from probewise.core.anneal_reference import LayoutScorer, anneal_layout
+    from probewise.core.optimise import OptimiseOptions, optimise, prepare_optimisation
 
     project = load_case("M")
     setup = prepare_optimisation(project, OptimiseOptions(budget=1e9, methods=("CPT",)))

@@ -28,8 +28,8 @@ sys.path.insert(0, str(HERE.parent))
 
 from fastapi.testclient import TestClient  # noqa: E402
 
-from server.web.app import create_app  # noqa: E402
-from server.web.workflow import WORKFLOW_STEPS  # noqa: E402
+from probewise.web.app import create_app  # noqa: E402
+from probewise.web.workflow import WORKFLOW_STEPS  # noqa: E402
 
 BASE_URL = "http://127.0.0.1"
 

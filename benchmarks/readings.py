@@ -25,10 +25,10 @@ sys.path.insert(0, str(HERE.parent))
 
 from make_case import make  # noqa: E402
 
-from server.app.readings import project_readings  # noqa: E402
-from server.app.to_core import to_core  # noqa: E402
-from server.core.evaluate import evaluate_project  # noqa: E402
-from server.io.model_file import validate_model  # noqa: E402
+from probewise.app.readings import project_readings  # noqa: E402
+from probewise.app.to_core import to_core  # noqa: E402
+from probewise.core.evaluate import evaluate_project  # noqa: E402
+from probewise.io.model_file import validate_model  # noqa: E402
 
 STEPS_M = [(0.3, 1.2), (2.0, 7.0), (1.0, 4.0), (3.0, 9.0)]  # thickness draws per unit
 

@@ -31,10 +31,10 @@ sys.path.insert(0, str(HERE.parent))
 from evaluate import extra_layouts  # noqa: E402
 from make_case import SIZES, make  # noqa: E402
 
-from server.app.to_core import to_core  # noqa: E402
-from server.app.value import project_values  # noqa: E402
-from server.core.evaluate import evaluate_project  # noqa: E402
-from server.io.model_file import validate_model  # noqa: E402
+from probewise.app.to_core import to_core  # noqa: E402
+from probewise.app.value import project_values  # noqa: E402
+from probewise.core.evaluate import evaluate_project  # noqa: E402
+from probewise.io.model_file import validate_model  # noqa: E402
 
 SHARE = 0.30  # of the site's area covered by elements
 

@@ -10,10 +10,10 @@ import argparse
 import importlib
 import sys
 
-from server.core.model import ModelLimitError
-from server.errors import InputError
+from probewise.core.model import ModelLimitError
+from probewise.errors import InputError
 
-# sub-command -> (module in server.commands, one-line help)
+# sub-command -> (module in probewise.commands, one-line help)
 COMMANDS = {
     "serve": ("serve", "run the web app (loads the demo project into a fresh database)"),
     "init": ("init", "write a new model file to start a project from nothing"),
@@ -46,7 +46,7 @@ def build_parser() -> argparse.ArgumentParser:
     parser = _Parser(prog="probewise", description="Scope a ground investigation.")
     sub = parser.add_subparsers(dest="command", required=True, parser_class=_Parser)
     for name, (module, help_text) in COMMANDS.items():
-        mod = importlib.import_module(f"server.commands.{module}")
+        mod = importlib.import_module(f"probewise.commands.{module}")
         p = sub.add_parser(name, help=help_text, description=help_text)
         mod.add_arguments(p)
         p.set_defaults(_run=mod.run)

@@ -37,7 +37,7 @@ def probewise_command() -> list[str]:
     if script.is_file():
         return [str(script)]
     found = shutil.which("probewise")
-    return [found] if found else [sys.executable, "-m", "server.cli"]
+    return [found] if found else [sys.executable, "-m", "probewise.cli"]
 
 
 def start_server(

@@ -18,7 +18,7 @@ import math
 import re
 from typing import Literal
 
-from server.errors import InputError
+from probewise.errors import InputError
 
 MINUS_SIGN = "\u2212"
 _SPACES = ("\u00a0", "\u202f", "\u2009", " ")  # no-break, narrow no-break, thin, plain

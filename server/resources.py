@@ -1,7 +1,7 @@
 """Where the app's own files are: templates, static files and the invented demo project.
 
 From a clone (or an editable install) they are the repository's top-level folders; a wheel
-carries copies in ``server/_files`` (see setup.py), so ``probewise serve`` works from any
+carries copies in ``probewise/_files`` (see setup.py), so ``probewise serve`` works from any
 directory after ``pip install .``.
 """
 

@@ -10,9 +10,9 @@ ROOT = Path(__file__).resolve().parents[1]
 
 
 def run_cli(*args: str, timeout: float = 300) -> subprocess.CompletedProcess:
-    """``probewise ARGS`` (through ``python -m server.cli``) from the repository root."""
+    """``probewise ARGS`` (through ``python -m probewise.cli``) from the repository root."""
     return subprocess.run(
-        [sys.executable, "-m", "server.cli", *args],
+        [sys.executable, "-m", "probewise.cli", *args],
         capture_output=True,
         text=True,
         cwd=ROOT,

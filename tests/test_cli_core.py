@@ -65,9 +65,9 @@ def test_evaluate_json_has_the_documented_fields():
 
 
 def test_evaluate_json_round_trips_the_core_numbers():
-    from server.app.contract import evaluation_json
-    from server.app.to_core import to_core
-    from server.core.evaluate import evaluate_project
+    from probewise.app.contract import evaluation_json
+    from probewise.app.to_core import to_core
+    from probewise.core.evaluate import evaluate_project
 
     run = cli("evaluate", str(TINY), "--json")
     expected = evaluation_json(evaluate_project(to_core(json.loads(TINY.read_text()))))

@@ -14,9 +14,9 @@ import pytest
 from cli_helpers import run_cli
 from scipy.stats import truncnorm
 
-from server.app.project import core_project
-from server.core.evaluate import evaluate_project
-from server.io.model_file import validate_model
+from probewise.app.project import core_project
+from probewise.core.evaluate import evaluate_project
+from probewise.io.model_file import validate_model
 
 ROOT = Path(__file__).resolve().parents[1]
 HISTORY = ROOT / "tests" / "data" / "history-model.json"
@@ -161,7 +161,7 @@ def test_schedule_speaks_of_the_band():
     # The demo's second layout: CPT06 at x = 340 lies east of the mapped environments
     # (x > 330), so 7 of its 8 probes are bounded; BH01 given a 2 m depth stops above the band
     # (the salt marsh's lowest potential level is more than 2 m down there).
-    from server.app.schedule import build_schedule
+    from probewise.app.schedule import build_schedule
 
     model = json.loads((ROOT / "seed_data" / "demo-reclaimed-strip.json").read_text())
     layout = "CPTu along the pavement with two boreholes"

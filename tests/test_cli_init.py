@@ -7,7 +7,7 @@ import json
 import pytest
 from cli_helpers import run_cli
 
-from server.io.model_file import validate_model
+from probewise.io.model_file import validate_model
 
 
 def test_init_writes_a_model_that_evaluates(tmp_path):

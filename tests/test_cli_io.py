@@ -16,8 +16,8 @@ from io_builders import TINY_EXPECTED, TINY_MAPPING, ags4_text, gpkg_description
 from pyproj import Transformer
 from shapely.geometry import Polygon, box, shape
 
-from server.cli import main
-from server.io.model_file import load_model_file
+from probewise.cli import main
+from probewise.io.model_file import load_model_file
 
 
 @pytest.fixture

@@ -10,7 +10,7 @@ import pytest
 from caution_check import assert_caution
 from cli_helpers import run_cli
 
-from server import cli
+from probewise import cli
 
 ROOT = Path(__file__).resolve().parents[1]
 TINY = ROOT / "tests" / "data" / "tiny-model.json"
@@ -147,7 +147,7 @@ def test_optimise_missing_model_exits_2(tmp_path):
 
 def test_ctrl_c_cancels_with_status_130(monkeypatch, capsys):
     # Ctrl-C arrives as KeyboardInterrupt in the optimiser; the CLI says so and exits 130.
-    import server.core.optimise as core_optimise
+    import probewise.core.optimise as core_optimise
 
     def interrupted(*args, **kwargs):
         raise KeyboardInterrupt
@@ -158,7 +158,7 @@ def test_ctrl_c_cancels_with_status_130(monkeypatch, capsys):
 
 
 def test_progress_bar_draws_on_a_terminal(monkeypatch, capsys):
-    from server.commands.options import ProgressBar
+    from probewise.commands.options import ProgressBar
 
     bar = ProgressBar(True)
     bar(0.0, "start")

@@ -1,5 +1,5 @@
 """`probewise schedule`: the printable schedule, its JSON, the probe list as CSV, GeoJSON and
-GeoPackage, and bad input (exit 2, one line naming the field); plus ``server.app.schedule``
+GeoPackage, and bad input (exit 2, one line naming the field); plus ``probewise.app.schedule``
 itself against the core's numbers."""
 
 from __future__ import annotations
@@ -18,9 +18,9 @@ from csv_helpers import data_lines
 from io_builders import gpkg_description
 from pyproj import Transformer
 
-from server.app.schedule import build_schedule
-from server.app.to_core import to_core
-from server.core.evaluate import GridEvaluator, evaluate_project, with_pareto
+from probewise.app.schedule import build_schedule
+from probewise.app.to_core import to_core
+from probewise.core.evaluate import GridEvaluator, evaluate_project, with_pareto
 
 ROOT = Path(__file__).resolve().parents[1]
 TINY = ROOT / "tests" / "data" / "tiny-model.json"
@@ -238,7 +238,7 @@ def test_geopackage_needs_a_file():
     one_line_error(cli(str(TINY), "--format", "gpkg"), "-o")
 
 
-# ---------------------------------------------------------------- server.app.schedule
+# ---------------------------------------------------------------- probewise.app.schedule
 
 
 def test_given_results_give_the_same_schedule():

@@ -11,9 +11,9 @@ import pytest
 from cli_helpers import run_cli
 from model_edits import edited
 
-from server.caution import CAUTION_LINE
-from server.errors import InputError
-from server.io.model_file import dump_model, validate_model
+from probewise.caution import CAUTION_LINE
+from probewise.errors import InputError
+from probewise.io.model_file import dump_model, validate_model
 
 ROOT = Path(__file__).resolve().parents[1]
 TINY = json.loads((ROOT / "tests" / "data" / "tiny-model.json").read_text())

@@ -19,7 +19,7 @@ from csv_helpers import caution_line, data_lines
 from io_builders import gpkg_description, placed_model
 from pyproj import Transformer
 
-from server.io import exports
+from probewise.io import exports
 
 PLANNED = [
     {

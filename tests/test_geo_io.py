@@ -21,10 +21,10 @@ from io_builders import BNG_OFFSET, placed_model
 from pyproj import Transformer
 from shapely.geometry import LineString, Polygon, box, mapping, shape
 
-from server.errors import InputError
-from server.io import geo_io
-from server.io.geo_io import apply_polygons, check_project_crs, list_layers, read_polygons
-from server.io.model_file import validate_model
+from probewise.errors import InputError
+from probewise.io import geo_io
+from probewise.io.geo_io import apply_polygons, check_project_crs, list_layers, read_polygons
+from probewise.io.model_file import validate_model
 
 # Frames written without a CRS on purpose (site-grid data) make pyogrio warn.
 pytestmark = pytest.mark.filterwarnings("ignore:'crs' was not provided")

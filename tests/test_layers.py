@@ -25,8 +25,8 @@ FORBIDDEN_IN_CORE = {
     "pyogrio",
     "matplotlib",
 }
-# room -> rooms (under server.) it may import; besides, every room but the core may use the
-# small top-level modules below.
+# room -> rooms (under probewise., the folder server/) it may import; besides, every room but
+# the core may use the small top-level modules below.
 ALLOWED = {
     "core": {"core"},
     "io": {"io", "core"},
@@ -55,7 +55,7 @@ def imports_of(path: Path) -> list[tuple[str, int]]:
 
 def room_of(module: str) -> str | None:
     parts = module.split(".")
-    if parts[0] != "server" or len(parts) < 2:
+    if parts[0] != "probewise" or len(parts) < 2:
         return None
     return parts[1]
 
@@ -91,13 +91,21 @@ def test_pages_do_not_import_pages():
     for path in (SERVER / "web").glob("routes_*.py"):
         for name, _ in imports_of(path):
             module = name.split(".")
-            if len(module) >= 3 and module[:2] == ["server", "web"]:
+            if len(module) >= 3 and module[:2] == ["probewise", "web"]:
                 assert not module[2].startswith("routes_"), f"{path.name} imports {name}"
 
 
 def test_layer_check_sees_a_forbidden_import(tmp_path):
     """The checker itself: a web module importing a command is caught."""
     bad = tmp_path / "bad.py"
-    bad.write_text("from server.commands.evaluate import run\n")
+    bad.write_text("from probewise.commands.evaluate import run\n")
     targets = [room_of(name) for name, _ in imports_of(bad)]
     assert "commands" in targets and "commands" not in ALLOWED["web"]
+
+
+def test_nothing_imports_the_folder_name():
+    """The installed package is ``probewise`` (the folder ``server/`` mapped to it): an import
+    of ``server.`` would work in a clone and fail in a wheel."""
+    for path in sorted(SERVER.rglob("*.py")):
+        for name, _ in imports_of(path):
+            assert name.split(".")[0] != "server", f"{path.relative_to(SERVER)} imports {name}"

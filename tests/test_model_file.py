@@ -17,8 +17,8 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from model_edits import DELETE, edited, json_paths
 
-from server.errors import InputError
-from server.io.model_file import (
+from probewise.errors import InputError
+from probewise.io.model_file import (
     MAX_EXISTING,
     MAX_LAYOUT_PROBES,
     MAX_LAYOUTS,
@@ -703,7 +703,7 @@ def test_lone_surrogate_text_is_refused(tiny_model, where, field):
 
 
 def test_unique_names_number_repeats(tiny_model):
-    from server.io.model_file import unique_layout_name, unique_name
+    from probewise.io.model_file import unique_layout_name, unique_name
 
     assert unique_name("Stage 1", []) == "Stage 1"
     assert unique_name("Stage 1", ["Stage 1", "Stage 1 (2)"]) == "Stage 1 (3)"

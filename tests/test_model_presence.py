@@ -6,10 +6,10 @@ import copy
 
 import pytest
 
-from server.app.to_core import core_ground
-from server.core.field import unit_fields
-from server.errors import InputError
-from server.io.model_file import dump_model, validate_all, validate_model
+from probewise.app.to_core import core_ground
+from probewise.core.field import unit_fields
+from probewise.errors import InputError
+from probewise.io.model_file import dump_model, validate_all, validate_model
 
 
 def test_presence_and_ground_level_are_kept_and_stay_absent_when_not_given(tiny_model):
@@ -56,7 +56,7 @@ def test_bad_ground_level_names_the_field(tiny_model):
 
 
 def test_ground_page_depth_limits_let_a_local_unit_be_absent(tiny_model):
-    from server.web.summary import depth_limits
+    from probewise.web.summary import depth_limits
 
     model = copy.deepcopy(tiny_model)
     full = depth_limits(model)

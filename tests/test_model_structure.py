@@ -8,8 +8,8 @@ from pathlib import Path
 
 from cli_helpers import run_cli
 
-from server.app.to_core import to_core
-from server.io.model_file import dump_model, validate_model
+from probewise.app.to_core import to_core
+from probewise.io.model_file import dump_model, validate_model
 
 TINY = Path(__file__).resolve().parent / "data" / "tiny-model.json"
 

@@ -2,8 +2,8 @@
 
 import pytest
 
-from server.errors import InputError
-from server.numbers import read_number, to_number
+from probewise.errors import InputError
+from probewise.numbers import read_number, to_number
 
 
 @pytest.mark.parametrize(

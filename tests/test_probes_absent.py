@@ -13,8 +13,14 @@ import io
 import pytest
 from io_builders import ags4_text
 
-from server.io.model_file import validate_model
-from server.io.probes_in import ags4_to_existing, merge_existing, parse_csv, preview_csv, read_ags4
+from probewise.io.model_file import validate_model
+from probewise.io.probes_in import (
+    ags4_to_existing,
+    merge_existing,
+    parse_csv,
+    preview_csv,
+    read_ags4,
+)
 
 # tiny model units, top down: Made ground, Alluvial clay, River gravel, Mudstone (basal)
 

@@ -14,11 +14,17 @@ import json
 import pytest
 from io_builders import ags4_text
 
-from server.cli import main
-from server.errors import InputError
-from server.io.model_file import load_model_file, validate_model
-from server.io.probes_ags3 import group_records, looks_like_ags3, parse_ags3
-from server.io.probes_in import ags4_legends, ags4_to_existing, merge_existing, read_ags, read_ags3
+from probewise.cli import main
+from probewise.errors import InputError
+from probewise.io.model_file import load_model_file, validate_model
+from probewise.io.probes_ags3 import group_records, looks_like_ags3, parse_ags3
+from probewise.io.probes_in import (
+    ags4_legends,
+    ags4_to_existing,
+    merge_existing,
+    read_ags,
+    read_ags3,
+)
 
 AGS3 = "\r\n".join(
     [

@@ -22,9 +22,9 @@ from io_builders import (
     ags4_text,
 )
 
-from server.errors import InputError
-from server.io.model_file import validate_model
-from server.io.probes_in import (
+from probewise.errors import InputError
+from probewise.io.model_file import validate_model
+from probewise.io.probes_in import (
     ags4_legends,
     ags4_to_existing,
     merge_existing,

@@ -12,11 +12,11 @@ import json
 import pytest
 from ags3_builders import FILE, RULES, reclaimed_model_of
 
-from server.cli import main
-from server.errors import InputError
-from server.io.model_file import load_model_file
-from server.io.probes_in import ags4_to_existing, parse_text_rules, read_ags
-from server.io.probes_mapping import decide_layers
+from probewise.cli import main
+from probewise.errors import InputError
+from probewise.io.model_file import load_model_file
+from probewise.io.probes_in import ags4_to_existing, parse_text_rules, read_ags
+from probewise.io.probes_mapping import decide_layers
 
 
 @pytest.fixture

@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import pytest
 
-from server.app.thickness_stats import probe_thicknesses, summarise_unit, unit_thicknesses
+from probewise.app.thickness_stats import probe_thicknesses, summarise_unit, unit_thicknesses
 
 UNITS = ["Fill", "Marine deposit", "Alluvium", "Rock"]
 
@@ -86,7 +86,7 @@ def test_unit_thicknesses_of_a_model(tiny_model):
 def test_cli_thickness_reports_presence_from_existing_probes(tiny_model, tmp_path, capsys):
     import json
 
-    from server.cli import main
+    from probewise.cli import main
 
     model = dict(tiny_model)
     extra = [

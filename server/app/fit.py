@@ -5,9 +5,9 @@ from __future__ import annotations
 
 from contextlib import nullcontext
 
-from server.core.analysis import existing_observations
-from server.core.fit import FitResult, fit_model
-from server.core.model import Project
+from probewise.core.analysis import existing_observations
+from probewise.core.fit import FitResult, fit_model
+from probewise.core.model import Project
 
 
 def _one_blas_thread():
@@ -99,7 +99,7 @@ def range_sensitivity(project: Project) -> dict:
     whether it stays best at every factor: ``{"best": {factor: name}, "order": {factor:
     [{"name", "gain_per_cost"} by gain per cost]}, "holds": bool}`` (factors as text keys).
     """
-    from server.core.options import rank_options
+    from probewise.core.options import rank_options
 
     layouts = [lay for lay in project.layouts if lay.probes]
     kinds = {lay.name: "hand" for lay in layouts}

@@ -5,11 +5,11 @@ from __future__ import annotations
 
 import numpy as np
 
-from server.core.bounds import BoundsConflictError, BoundsReport, bounds_report
-from server.core.history import NO_BOUND, OUTSIDE
-from server.core.levels import ground_level_at
-from server.core.model import Project
-from server.errors import InputError
+from probewise.core.bounds import BoundsConflictError, BoundsReport, bounds_report
+from probewise.core.history import NO_BOUND, OUTSIDE
+from probewise.core.levels import ground_level_at
+from probewise.core.model import Project
+from probewise.errors import InputError
 
 
 def ground_levels(project: Project, xy: np.ndarray) -> np.ndarray | None:

@@ -11,7 +11,7 @@ import math
 from dataclasses import dataclass, field
 from typing import Any
 
-from server.errors import InputError
+from probewise.errors import InputError
 
 SCHEMA = "probewise/1"
 DEFAULT_SIDE_M = 100.0  # the square outline used until the real one is drawn or imported
@@ -224,7 +224,7 @@ def new_model(
     """A validated model document for a new project; InputError names the field at fault."""
     from shapely.geometry import shape
 
-    from server.io.model_file import validate_model
+    from probewise.io.model_file import validate_model
 
     if not name or not name.strip():
         raise InputError("name", "is required")

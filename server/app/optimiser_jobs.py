@@ -17,12 +17,12 @@ from typing import Any
 
 import sqlite_utils
 
-from server.app.contract import optimised_layout_entry
-from server.app.to_core import to_core
-from server.core.optimise import OptimiseCancelled, OptimiseError, OptimiseOptions, optimise
-from server.errors import InputError
-from server.io.model_file import unique_layout_name
-from server.store import (
+from probewise.app.contract import optimised_layout_entry
+from probewise.app.to_core import to_core
+from probewise.core.optimise import OptimiseCancelled, OptimiseError, OptimiseOptions, optimise
+from probewise.errors import InputError
+from probewise.io.model_file import unique_layout_name
+from probewise.store import (
     Job,
     StaleRevision,
     create_job,
@@ -33,7 +33,7 @@ from server.store import (
     save_project,
     update_job,
 )
-from server.store.errors import StoreError
+from probewise.store.errors import StoreError
 
 log = logging.getLogger(__name__)
 

@@ -2,8 +2,8 @@
 
 from __future__ import annotations
 
-from server.app.project import core_project, find_layout
-from server.errors import InputError
+from probewise.app.project import core_project, find_layout
+from probewise.errors import InputError
 
 
 def schedule_probe_rows(model: dict, layout_name: str) -> list[dict]:
@@ -12,8 +12,8 @@ def schedule_probe_rows(model: dict, layout_name: str) -> list[dict]:
     Adapter to the core: planned depth and observed set against the existing probes
     (docs/model.md "Planned depth", "Observed set").
     """
-    from server.app.schedule import probe_rows
-    from server.core.analysis import ProjectAnalysis
+    from probewise.app.schedule import probe_rows
+    from probewise.core.analysis import ProjectAnalysis
 
     project = core_project(model)
     analysis = ProjectAnalysis(project)
@@ -32,9 +32,9 @@ def posterior_grid(model: dict, layout_name: str | None):
     posterior, like P5 and P95.
     """
 
-    from server.core.analysis import ProjectAnalysis
-    from server.core.bounds import truncated_quantiles
-    from server.core.grid import EmptyGridError, evaluation_grid
+    from probewise.core.analysis import ProjectAnalysis
+    from probewise.core.bounds import truncated_quantiles
+    from probewise.core.grid import EmptyGridError, evaluation_grid
 
     project = core_project(model)
     analysis = ProjectAnalysis(project)

@@ -3,28 +3,28 @@ layouts found by name (the one lookup, for the core project and for the model do
 
 from __future__ import annotations
 
-from server.core.model import Layout, Project
-from server.errors import InputError
+from probewise.core.model import Layout, Project
+from probewise.errors import InputError
 
 
 def read_model(path: str) -> dict:
     """Read and validate a model file (InputError naming MODEL on any fault)."""
-    from server.io.model_file import load_model_file
+    from probewise.io.model_file import load_model_file
 
     return load_model_file(path)
 
 
 def write_model(model: dict, path: str) -> None:
     """Write a model file in canonical form (validated), replacing OUT only when complete."""
-    from server.io.exports import write_text_file
-    from server.io.model_file import dump_model
+    from probewise.io.exports import write_text_file
+    from probewise.io.model_file import dump_model
 
     write_text_file(dump_model(model), path)
 
 
 def core_project(model: dict) -> Project:
     """A validated model document as the core's frozen dataclasses."""
-    from server.app.to_core import to_core
+    from probewise.app.to_core import to_core
 
     try:
         return to_core(model)

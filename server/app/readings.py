@@ -8,9 +8,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from server.core.analysis import existing_observations
-from server.core.model import Project
-from server.core.readings import (
+from probewise.core.analysis import existing_observations
+from probewise.core.model import Project
+from probewise.core.readings import (
     BoundarySummary,
     ReadingChecks,
     check_readings,

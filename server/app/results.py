@@ -16,18 +16,18 @@ from typing import Any, TypeVar
 
 import sqlite_utils
 
-from server.app.layouts import layout_kind
-from server.app.project import find_layout
-from server.app.schedule import default_layout_name
-from server.app.to_core import to_core
-from server.core.evaluate import GridEvaluator, LayoutResult, with_pareto
-from server.core.grid import EmptyGridError
-from server.core.model import Layout, Project
-from server.core.options import RankedOption, rank_options
-from server.core.value import EmptyElementError
-from server.errors import InputError
-from server.io.model_elements import no_cell_error
-from server.store import StoredProject, get_project
+from probewise.app.layouts import layout_kind
+from probewise.app.project import find_layout
+from probewise.app.schedule import default_layout_name
+from probewise.app.to_core import to_core
+from probewise.core.evaluate import GridEvaluator, LayoutResult, with_pareto
+from probewise.core.grid import EmptyGridError
+from probewise.core.model import Layout, Project
+from probewise.core.options import RankedOption, rank_options
+from probewise.core.value import EmptyElementError
+from probewise.errors import InputError
+from probewise.io.model_elements import no_cell_error
+from probewise.store import StoredProject, get_project
 
 MAX_ENTRIES = 16  # project revisions kept (a few MB each on the demo)
 MAX_MEMO = 96  # figures and other derived values kept per revision

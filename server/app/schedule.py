@@ -3,7 +3,7 @@
 docs/model.md workflow step 7. From a core Project and its evaluation results: the probe list
 (target depth, the boundaries each probe is expected to reveal, its cost), the cost and
 duration by method, the totals, and the justification written from the numbers
-(``server.app.justification``). Nothing here knows of a database, a request or a template:
+(``probewise.app.justification``). Nothing here knows of a database, a request or a template:
 ``build_schedule`` takes the project and, optionally, results already computed (the web
 passes its per-revision cache; the CLI lets it compute them).
 """
@@ -14,17 +14,17 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Any
 
-from server.app.justification import MainBoundary, OptionFigures, justification
-from server.app.levels import history_paragraphs
-from server.app.project import find_layout
-from server.caution import CAUTION_LINE
-from server.core.evaluate import GridEvaluator, LayoutResult, with_pareto
-from server.core.grid import EmptyGridError
-from server.core.model import Project
-from server.core.options import RankedOption, rank_options
-from server.core.planning import ProbePlan
-from server.errors import InputError
-from server.io.exports import schedule_rows
+from probewise.app.justification import MainBoundary, OptionFigures, justification
+from probewise.app.levels import history_paragraphs
+from probewise.app.project import find_layout
+from probewise.caution import CAUTION_LINE
+from probewise.core.evaluate import GridEvaluator, LayoutResult, with_pareto
+from probewise.core.grid import EmptyGridError
+from probewise.core.model import Project
+from probewise.core.options import RankedOption, rank_options
+from probewise.core.planning import ProbePlan
+from probewise.errors import InputError
+from probewise.io.exports import schedule_rows
 
 
 @dataclass(frozen=True)
@@ -64,7 +64,7 @@ class Totals:
 class Schedule:
     """The scoping schedule of one layout.
 
-    ``probes`` are the rows ``server.io.exports`` writes (``schedule_rows``: id, method,
+    ``probes`` are the rows ``probewise.io.exports`` writes (``schedule_rows``: id, method,
     method_name, kind, x, y, depth_m, target ("" when none), observes, cost without
     mobilisation); ``refusals`` the ids of probes expected to stop on a unit they cannot
     penetrate; ``main_boundary`` the boundary of interest the justification speaks of.

@@ -9,9 +9,9 @@ from typing import Any
 import numpy as np
 import shapely
 
-from server.errors import InputError
-from server.io.model_file import to_shapely
-from server.numbers import read_number
+from probewise.errors import InputError
+from probewise.io.model_file import to_shapely
+from probewise.numbers import read_number
 
 MIN_SECTION_M = 1.0
 

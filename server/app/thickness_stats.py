@@ -135,8 +135,8 @@ def _range_text(spec: dict) -> str:
 
 
 def _mean_of(spec: dict, presence: float) -> float:
-    from server.app.to_core import core_range
-    from server.core.priors import presence_moments, thickness_moments
+    from probewise.app.to_core import core_range
+    from probewise.core.priors import presence_moments, thickness_moments
 
     return presence_moments(*thickness_moments(core_range(spec)), presence)[0]
 

@@ -1,7 +1,7 @@
-"""Validated model-file dict ("probewise/1") -> ``server.core.model.Project``.
+"""Validated model-file dict ("probewise/1") -> ``probewise.core.model.Project``.
 
 Names become indices: unit ``i`` is the i-th unit top down and boundary ``k`` is the base of
-unit ``k``. The dict is assumed valid (``server.io.model_file.validate_model``); optional fields
+unit ``k``. The dict is assumed valid (``probewise.io.model_file.validate_model``); optional fields
 may be absent. Coordinates stay in project coordinates; the core localises them itself.
 """
 
@@ -12,11 +12,11 @@ import math
 
 import numpy as np
 
-from server.core.analysis import reading_precision_m
-from server.core.bounds import BoundsConflictError, depth_bounds
-from server.core.grid import EmptyGridError, evaluation_grid_capped
-from server.core.history import reference_level_m
-from server.core.model import (
+from probewise.core.analysis import reading_precision_m
+from probewise.core.bounds import BoundsConflictError, depth_bounds
+from probewise.core.grid import EmptyGridError, evaluation_grid_capped
+from probewise.core.history import reference_level_m
+from probewise.core.model import (
     AreaOfInterest,
     BoundaryOfInterest,
     ChoiceConsequence,
@@ -40,8 +40,8 @@ from server.core.model import (
     Unit,
     Zone,
 )
-from server.core.priors import DEFAULT_SHAPE
-from server.errors import InputError
+from probewise.core.priors import DEFAULT_SHAPE
+from probewise.errors import InputError
 
 
 def core_polygon(geometry: dict) -> Polygon:

@@ -6,13 +6,13 @@ from __future__ import annotations
 from collections.abc import Sequence
 from dataclasses import dataclass
 
-from server.core.analysis import ProjectAnalysis
-from server.core.evaluate import Evaluation, evaluate_project
-from server.core.grid import EmptyGridError
-from server.core.model import Layout, Project
-from server.core.value import EmptyElementError, LayoutValue, ValueEvaluator, layout_values
-from server.errors import InputError
-from server.io.model_elements import no_cell_error
+from probewise.core.analysis import ProjectAnalysis
+from probewise.core.evaluate import Evaluation, evaluate_project
+from probewise.core.grid import EmptyGridError
+from probewise.core.model import Layout, Project
+from probewise.core.value import EmptyElementError, LayoutValue, ValueEvaluator, layout_values
+from probewise.errors import InputError
+from probewise.io.model_elements import no_cell_error
 
 
 @dataclass(frozen=True)

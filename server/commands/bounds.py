@@ -13,7 +13,7 @@ import argparse
 import json
 import sys
 
-from server.commands.options import add_point_arguments, points_of
+from probewise.commands.options import add_point_arguments, points_of
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -27,8 +27,8 @@ def _m(value) -> str:
 
 
 def bounds_text(doc: dict) -> str:
-    from server.caution import CAUTION_LINE
-    from server.commands.tables import format_table
+    from probewise.caution import CAUTION_LINE
+    from probewise.commands.tables import format_table
 
     parts = ["Hard bounds on boundary depths (m below ground level) and their sources"]
     headers = ["Base of", "Min depth", "Max depth", "Former level", "Settlement"]
@@ -59,8 +59,8 @@ def bounds_text(doc: dict) -> str:
 def run(args: argparse.Namespace) -> int:
     import numpy as np
 
-    from server.app.levels import bounds_json
-    from server.app.project import load_project
+    from probewise.app.levels import bounds_json
+    from probewise.app.project import load_project
 
     points = points_of(args)
     _, project = load_project(args.model)

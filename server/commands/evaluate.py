@@ -15,10 +15,10 @@ import argparse
 import json
 import sys
 
-from server.app.contract import evaluation_json
-from server.app.project import load_project
-from server.caution import CAUTION_LINE
-from server.commands.tables import format_table, num, probe_table
+from probewise.app.contract import evaluation_json
+from probewise.app.project import load_project
+from probewise.caution import CAUTION_LINE
+from probewise.commands.tables import format_table, num, probe_table
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -94,9 +94,9 @@ def evaluation_text(evaluation, currency: str, values=None) -> str:
 
 
 def run(args: argparse.Namespace) -> int:
-    from server.core.evaluate import evaluate_project
-    from server.core.grid import EmptyGridError
-    from server.errors import InputError
+    from probewise.core.evaluate import evaluate_project
+    from probewise.core.grid import EmptyGridError
+    from probewise.errors import InputError
 
     _, project = load_project(args.model)
     try:
@@ -107,7 +107,7 @@ def run(args: argparse.Namespace) -> int:
         sys.stderr.write(f"notice: {evaluation.grid_notice}\n")
     values = None
     if project.elements:
-        from server.app.value import values_of_evaluation
+        from probewise.app.value import values_of_evaluation
 
         values = values_of_evaluation(project, evaluation)
     if args.json:

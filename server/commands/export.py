@@ -9,7 +9,7 @@
 - model: the validated model file itself (JSON).
 
 The format comes from ``--format`` or the extension of OUT; the rows and grids come from
-``server.app.outputs``.
+``probewise.app.outputs``.
 """
 
 from __future__ import annotations
@@ -18,10 +18,10 @@ import argparse
 import json
 from pathlib import Path
 
-from server.app.outputs import posterior_grid, schedule_probe_rows
-from server.app.project import read_model, write_model
-from server.caution import CAUTION_LINE
-from server.errors import InputError
+from probewise.app.outputs import posterior_grid, schedule_probe_rows
+from probewise.app.project import read_model, write_model
+from probewise.caution import CAUTION_LINE
+from probewise.errors import InputError
 
 FORMATS = {
     "schedule": ("csv", "geojson", "gpkg"),
@@ -63,7 +63,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    from server.io import exports
+    from probewise.io import exports
 
     model = read_model(args.model)
     fmt = output_format(args.format, args.output, args.what)

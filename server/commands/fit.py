@@ -13,10 +13,10 @@ import argparse
 import json
 import sys
 
-from server.app.fit import adopt_fit, fit_json, project_fit, range_sensitivity
-from server.app.project import load_project, write_model
-from server.caution import CAUTION_LINE
-from server.commands.tables import format_table, num
+from probewise.app.fit import adopt_fit, fit_json, project_fit, range_sensitivity
+from probewise.app.project import load_project, write_model
+from probewise.caution import CAUTION_LINE
+from probewise.commands.tables import format_table, num
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:

@@ -13,10 +13,10 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from server.app.project import read_model, write_model
-from server.errors import InputError
+from probewise.app.project import read_model, write_model
+from probewise.errors import InputError
 
-# The flag that sets each reader option a message calls for (server.errors.OptionNeededError).
+# The flag that sets each reader option a message calls for (probewise.errors.OptionNeededError).
 OPTION_FLAGS = {
     "layer": "--layer",
     "repair": "--repair",
@@ -59,8 +59,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    from server.errors import OptionNeededError
-    from server.io.geo_io import (
+    from probewise.errors import OptionNeededError
+    from probewise.io.geo_io import (
         apply_polygons,
         check_project_crs,
         features_outside_site,

@@ -18,13 +18,13 @@ import argparse
 import json
 from pathlib import Path
 
-from server.app.project import read_model, write_model
-from server.commands.options import parse_pairs
-from server.errors import InputError
+from probewise.app.project import read_model, write_model
+from probewise.commands.options import parse_pairs
+from probewise.errors import InputError
 
 FORMAT_SUFFIXES = {".csv": "csv", ".txt": "csv", ".xlsx": "xlsx", ".ags": "ags"}
 AGS_FORMATS = ("ags", "ags4", "ags3")  # "ags": AGS4 or AGS3, told by the first row
-# The flags that set each reader option a message calls for (server.errors.OptionNeededError).
+# The flags that set each reader option a message calls for (probewise.errors.OptionNeededError).
 OPTION_FLAGS = {
     "leave_outside": "--leave-outside",
     "method_by_type": "--method-for TYPE=METHOD, or --default-method",
@@ -162,7 +162,7 @@ def _print_probes(probes: list[dict], outside: list[str]) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    from server.errors import OptionNeededError
+    from probewise.errors import OptionNeededError
 
     try:
         return _run(args)
@@ -194,7 +194,7 @@ def _run(args: argparse.Namespace) -> int:
             "fix them or leave them out (--skip-problems)",
         )
     if outside and not args.leave_outside:
-        from server.io.probes_in import outside_error
+        from probewise.io.probes_in import outside_error
 
         raise outside_error(name, outside)
     importable = [p for p in probes if p["id"] not in set(outside)]
@@ -205,7 +205,7 @@ def _run(args: argparse.Namespace) -> int:
             raise InputError("--stage", "must be a non-empty text")
         importable = [{**p, "stage": args.stage} for p in importable]
 
-    from server.io.probes_in import merge_existing
+    from probewise.io.probes_in import merge_existing
 
     updated = merge_existing(model, importable, mode="replace" if args.replace else "append")
     write_model(updated, args.output)
@@ -223,7 +223,7 @@ def _run(args: argparse.Namespace) -> int:
 
 
 def _from_table(args, model, data, name, mapping):
-    from server.io.probes_in import preview_csv
+    from probewise.io.probes_in import preview_csv
 
     if args.mapping_text:
         raise InputError(
@@ -256,7 +256,7 @@ def _from_table(args, model, data, name, mapping):
 
 
 def _from_ags(args, model, data, name, mapping, fmt):
-    from server.io.probes_in import (
+    from probewise.io.probes_in import (
         ags4_to_existing,
         decide_layers,
         read_ags,
@@ -304,14 +304,14 @@ def _from_ags(args, model, data, name, mapping, fmt):
 
 
 def _text_rules(args, model):
-    from server.io.probes_in import parse_text_rules
+    from probewise.io.probes_in import parse_text_rules
 
     return parse_text_rules(args.mapping_text, model, "--mapping-text")
 
 
 def _print_mapping(holes, model, mapping, decided) -> None:
     """The codes with their units, then what each text rule caught."""
-    from server.io.probes_in import ags4_legends
+    from probewise.io.probes_in import ags4_legends
 
     legends = ags4_legends(holes)
     units = {u["name"].lower(): u["name"] for u in model["units"]}
@@ -351,7 +351,7 @@ def _print_mapping(holes, model, mapping, decided) -> None:
 
 def print_thickness_summary(model, probes) -> bool:
     """Each unit's thickness in the holes read, beside the model's range (docs/model.md)."""
-    from server.app.thickness_stats import display_rows, unit_thicknesses
+    from probewise.app.thickness_stats import display_rows, unit_thicknesses
 
     summaries = unit_thicknesses(model, probes)
     if not any(s.holes for s in summaries):

@@ -11,9 +11,9 @@ from __future__ import annotations
 import argparse
 import math
 
-from server.app.new_project import STARTING_POINTS, new_model, square_outline
-from server.app.project import write_model
-from server.errors import InputError
+from probewise.app.new_project import STARTING_POINTS, new_model, square_outline
+from probewise.app.project import write_model
+from probewise.errors import InputError
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:

@@ -15,19 +15,19 @@ import argparse
 import json
 import sys
 
-from server.app.contract import optimise_json, optimised_layout_entry
-from server.app.project import load_project, write_model
-from server.caution import CAUTION_LINE
-from server.commands.options import (
+from probewise.app.contract import optimise_json, optimised_layout_entry
+from probewise.app.project import load_project, write_model
+from probewise.caution import CAUTION_LINE
+from probewise.commands.options import (
     ProgressBar,
     add_optimiser_arguments,
     optimiser_input_error,
     optimiser_options,
     parse_positive,
 )
-from server.commands.tables import format_table, num, probe_table
-from server.errors import InputError
-from server.io.model_file import unique_layout_name
+from probewise.commands.tables import format_table, num, probe_table
+from probewise.errors import InputError
+from probewise.io.model_file import unique_layout_name
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -97,8 +97,8 @@ def optimise_text(out, project, budget: float) -> str:
 
 
 def run(args: argparse.Namespace) -> int:
-    from server.core.grid import EmptyGridError
-    from server.core.optimise import OptimiseError, optimise, prepare_optimisation
+    from probewise.core.grid import EmptyGridError
+    from probewise.core.optimise import OptimiseError, optimise, prepare_optimisation
 
     model, project = load_project(args.model)
     budget = parse_positive(args.budget, "--budget")

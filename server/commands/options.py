@@ -7,8 +7,8 @@ import math
 import sys
 import time
 
-from server.errors import InputError
-from server.numbers import read_number
+from probewise.errors import InputError
+from probewise.numbers import read_number
 
 # OptimiseError.field -> the command-line option to name in the message
 OPTION_OF_FIELD = {
@@ -60,7 +60,7 @@ def parse_methods(text: str | None, project) -> tuple[str, ...] | None:
 
 def optimiser_options(args: argparse.Namespace, project, budget: float):
     """OptimiseOptions from the shared command-line options."""
-    from server.core.optimise import OptimiseOptions
+    from probewise.core.optimise import OptimiseOptions
 
     return OptimiseOptions(
         budget=budget,

@@ -13,7 +13,7 @@ import argparse
 import json
 import sys
 
-from server.commands.options import add_point_arguments, points_of
+from probewise.commands.options import add_point_arguments, points_of
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -26,7 +26,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 def posterior_json(names: tuple[str, ...], post, ground_level_m=None) -> dict:
     """The ``--json`` document; ``p50_m`` is the truncated-posterior median; with a ground
     level, ``level_m`` (ground level at the point) and each boundary's ``mean_level_m``."""
-    from server.core.bounds import truncated_quantiles
+    from probewise.core.bounds import truncated_quantiles
 
     p50 = truncated_quantiles(post.mean_m, post.std_m, post.lo_m, post.hi_m, 0.5)
     points = []
@@ -53,8 +53,8 @@ def posterior_json(names: tuple[str, ...], post, ground_level_m=None) -> dict:
 
 
 def posterior_text(names, post, inside, layout_name: str | None, ground_level_m=None) -> str:
-    from server.caution import CAUTION_LINE
-    from server.commands.tables import format_table
+    from probewise.caution import CAUTION_LINE
+    from probewise.commands.tables import format_table
 
     given = f"existing probes and layout '{layout_name}'" if layout_name else "existing probes"
     parts = [f"Boundary depths (m below ground level) given {given}"]
@@ -93,12 +93,12 @@ def posterior_text(names, post, inside, layout_name: str | None, ground_level_m=
 def run(args: argparse.Namespace) -> int:
     import numpy as np
 
-    from server.app.levels import ground_levels
-    from server.app.project import find_layout, load_project
-    from server.core.analysis import ProjectAnalysis
-    from server.core.bounds import BoundsConflictError
-    from server.core.geometry import points_in_polygon
-    from server.errors import InputError
+    from probewise.app.levels import ground_levels
+    from probewise.app.project import find_layout, load_project
+    from probewise.core.analysis import ProjectAnalysis
+    from probewise.core.bounds import BoundsConflictError
+    from probewise.core.geometry import points_in_polygon
+    from probewise.errors import InputError
 
     points = points_of(args)
     _, project = load_project(args.model)

@@ -17,18 +17,18 @@ import json
 import sys
 from dataclasses import replace
 
-from server.app.project import load_project
-from server.caution import CAUTION_LINE
-from server.commands.options import (
+from probewise.app.project import load_project
+from probewise.caution import CAUTION_LINE
+from probewise.commands.options import (
     ProgressBar,
     add_optimiser_arguments,
     optimiser_input_error,
     optimiser_options,
     parse_positive,
 )
-from server.commands.tables import format_table
-from server.errors import InputError
-from server.io.model_file import unique_name
+from probewise.commands.tables import format_table
+from probewise.errors import InputError
+from probewise.io.model_file import unique_name
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -59,7 +59,7 @@ def parse_budgets(text: str | None) -> list[float] | None:
 
 def guidance_layouts(items: list[str] | None, project, taken: set[str]):
     """Layouts of ``METHOD:SPACING`` items; InputError naming --guidance when bad."""
-    from server.core.options import guidance_grid_layout
+    from probewise.core.options import guidance_grid_layout
 
     out = []
     for item in items or []:
@@ -141,11 +141,11 @@ def ranking_text(ranked, currency: str) -> str:
 
 
 def run(args: argparse.Namespace) -> int:
-    from server.core.grid import EmptyGridError
-    from server.core.optimise import OptimiseError, optimise, prepare_optimisation
-    from server.core.options import rank_options
-    from server.core.value import EmptyElementError
-    from server.io.model_elements import no_cell_error
+    from probewise.core.grid import EmptyGridError
+    from probewise.core.optimise import OptimiseError, optimise, prepare_optimisation
+    from probewise.core.options import rank_options
+    from probewise.core.value import EmptyElementError
+    from probewise.io.model_elements import no_cell_error
 
     _, project = load_project(args.model)
     budgets = parse_budgets(args.budgets)

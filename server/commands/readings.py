@@ -13,10 +13,10 @@ import argparse
 import json
 import sys
 
-from server.app.project import load_project
-from server.app.readings import project_readings, reading_notes, readings_json
-from server.caution import CAUTION_LINE
-from server.commands.tables import format_table, num
+from probewise.app.project import load_project
+from probewise.app.readings import project_readings, reading_notes, readings_json
+from probewise.caution import CAUTION_LINE
+from probewise.commands.tables import format_table, num
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:

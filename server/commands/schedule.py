@@ -1,6 +1,6 @@
 """`probewise schedule MODEL [--layout NAME] [--format text|csv|geojson|gpkg|json] [-o OUT]`.
 
-The scoping schedule of one layout, built by ``server.app.schedule`` (the same as the web page's
+The scoping schedule of one layout, built by ``probewise.app.schedule`` (the same as the web page's
 Schedule): the probe list with target depths and the boundaries each probe is expected to
 reveal, cost and duration by method, totals, the justification written from the numbers
 and the caution. Without ``--layout`` the layout is the one the web page shows first: the
@@ -8,7 +8,7 @@ Pareto-efficient option that buys the most information per unit cost.
 
 - text (default): a printable schedule;
 - json: ``{"project", "layout", "currency", "crs", "date", "probes", "by_method", "totals",
-  "main_boundary", "justification", "caution"}`` (``server.app.schedule.schedule_json``);
+  "main_boundary", "justification", "caution"}`` (``probewise.app.schedule.schedule_json``);
 - csv, geojson, gpkg: the probe list as ``probewise export --what schedule`` writes it
   (a GeoPackage needs ``-o``).
 
@@ -24,8 +24,8 @@ import sys
 import textwrap
 from datetime import date
 
-from server.caution import CAUTION_LINE
-from server.errors import InputError
+from probewise.caution import CAUTION_LINE
+from probewise.errors import InputError
 
 FORMATS = ("text", "csv", "geojson", "gpkg", "json")
 WIDTH = 96  # wrap of the prose in the text schedule
@@ -131,7 +131,7 @@ def _probe_lines(schedule) -> list[str]:
 
 
 def _method_lines(schedule) -> list[str]:
-    from server.commands.tables import format_table
+    from probewise.commands.tables import format_table
 
     t = schedule.totals
     method_rows = [
@@ -260,7 +260,7 @@ def wrapped_table(headers: list[str], rows: list[list[str]], left: set[int]) -> 
 
 
 def _check_layout(project, name: str | None) -> None:
-    from server.app.project import find_layout
+    from probewise.app.project import find_layout
 
     if not project.layouts:
         raise InputError("layouts", "the model has no layout to schedule")
@@ -272,15 +272,15 @@ def _emit(text: str, out: str | None) -> None:
     if out is None:
         sys.stdout.write(text)
     else:
-        from server.io.exports import write_text_file
+        from probewise.io.exports import write_text_file
 
         write_text_file(text, out)
 
 
 def run(args: argparse.Namespace) -> int:
-    from server.app.project import load_project
-    from server.app.schedule import build_schedule, evaluator_of, schedule_json
-    from server.io import exports
+    from probewise.app.project import load_project
+    from probewise.app.schedule import build_schedule, evaluator_of, schedule_json
+    from probewise.io import exports
 
     if args.format == "gpkg" and not args.output:
         raise InputError("-o", "a GeoPackage is a file: name it with -o OUT")

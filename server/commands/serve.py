@@ -12,7 +12,7 @@ import socket
 import sys
 from pathlib import Path
 
-from server.errors import InputError
+from probewise.errors import InputError
 
 DEFAULT_HOST = "127.0.0.1"
 DEFAULT_PORT = 8000
@@ -82,7 +82,7 @@ def check_port_free(host: str, port: int) -> None:
 
 
 def resolve_db_path(value: str | None) -> Path:
-    from server.store import default_db_path
+    from probewise.store import default_db_path
 
     if value is None:
         return default_db_path()
@@ -106,7 +106,7 @@ def run(args: argparse.Namespace) -> int:
 
     import uvicorn
 
-    from server.web.app import create_app
+    from probewise.web.app import create_app
 
     extra_hosts = own_names() if host in WILDCARD_HOSTS else set()
     if not is_loopback(host):

@@ -11,7 +11,7 @@ from __future__ import annotations
 import argparse
 import json
 
-from server.app.project import read_model
+from probewise.app.project import read_model
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -20,8 +20,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    from server.app.thickness_stats import unit_thicknesses
-    from server.commands.import_probes import print_thickness_summary
+    from probewise.app.thickness_stats import unit_thicknesses
+    from probewise.commands.import_probes import print_thickness_summary
 
     model = read_model(args.model)
     probes = model.get("existing") or []

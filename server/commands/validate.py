@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import argparse
 
-from server.io.model_file import list_notes, load_model_file, summarise_model
+from probewise.io.model_file import list_notes, load_model_file, summarise_model
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -19,7 +19,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 def run(args: argparse.Namespace) -> int:
     model = load_model_file(args.model)
     if model.get("history"):  # history bounds that conflict with other bounds (to_core)
-        from server.app.project import core_project
+        from probewise.app.project import core_project
 
         core_project(model)
     print(f"{args.model}: valid ({summarise_model(model)})")

@@ -12,10 +12,10 @@ import argparse
 import json
 import sys
 
-from server.app.contract import value_json
-from server.app.project import find_layout, load_project
-from server.caution import CAUTION_LINE
-from server.commands.tables import format_table, num
+from probewise.app.contract import value_json
+from probewise.app.project import find_layout, load_project
+from probewise.caution import CAUTION_LINE
+from probewise.commands.tables import format_table, num
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -94,7 +94,7 @@ def value_text(report) -> str:
 
 
 def run(args: argparse.Namespace) -> int:
-    from server.app.value import project_values
+    from probewise.app.value import project_values
 
     _, project = load_project(args.model)
     layouts = None

@@ -11,12 +11,12 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from server.core.blocks import cell_blocks, predict_cells
-from server.core.bounds import depth_bounds, truncated_quantiles
-from server.core.grid import EvaluationGrid
-from server.core.model import ExistingProbe, Layout, Method, Project
-from server.core.planning import ProbePlan, plan_probes, planned_observations
-from server.core.posterior import Observations, PosteriorState, Prediction, condition
+from probewise.core.blocks import cell_blocks, predict_cells
+from probewise.core.bounds import depth_bounds, truncated_quantiles
+from probewise.core.grid import EvaluationGrid
+from probewise.core.model import ExistingProbe, Layout, Method, Project
+from probewise.core.planning import ProbePlan, plan_probes, planned_observations
+from probewise.core.posterior import Observations, PosteriorState, Prediction, condition
 
 # Precision of a reading when neither the probe nor its method gives one for that boundary
 # (common practice, no source).
@@ -149,7 +149,7 @@ class ProjectAnalysis:
     def at_cells(self, grid: EvaluationGrid, layout: Layout | None = None) -> PointPosterior:
         """Prior and posterior of the cell average of every boundary over a grid's cells.
 
-        Cells are areas (``server.core.blocks``; docs/model.md "Numbers reported for a
+        Cells are areas (``probewise.core.blocks``; docs/model.md "Numbers reported for a
         layout"): means and stds are those of the cell averages, hard bounds and the
         truncation of P5/P95 those at the cell centres (``xy``, project coordinates).
         """

@@ -11,8 +11,8 @@ Metropolis probability ``exp(delta / T)``, the temperature ``T`` falling geometr
 from the value at which a 1 % loss is accepted half the time, a thousandfold over the run;
 common practice, no source).
 
-The objective is the information gain as ``server.core.evaluate`` computes it (the layout's
-readings planned by ``server.core.planning``, the posterior re-solved from the existing
+The objective is the information gain as ``probewise.core.evaluate`` computes it (the layout's
+readings planned by ``probewise.core.planning``, the posterior re-solved from the existing
 probes by ``PosteriorState.extend``); nothing of the optimiser's cached state is used. Slow by
 design; used by the tests and ``benchmarks/optimise.py`` only.
 """
@@ -25,9 +25,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from server.core.evaluate import GridEvaluator, information_gain_bits, layout_cost
-from server.core.geometry import points_in_polygon
-from server.core.model import Layout, PlannedProbe, Project
+from probewise.core.evaluate import GridEvaluator, information_gain_bits, layout_cost
+from probewise.core.geometry import points_in_polygon
+from probewise.core.model import Layout, PlannedProbe, Project
 
 
 @dataclass(frozen=True)

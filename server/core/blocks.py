@@ -11,12 +11,12 @@ sub-point sits at the centre) and, with ``D_b(cell)`` the mean of ``D_b`` over t
 - block prior mean = mean of the sub-point prior means;
 - block prior variance = mean of the prior covariances of all sub-point pairs of the cell;
 - covariance of the block with a reading at ``x`` = mean over the sub-points;
-- block posterior by the same Gaussian conditioning as a point (``server.core.posterior``).
+- block posterior by the same Gaussian conditioning as a point (``probewise.core.posterior``).
 
 Hard bounds of a cell (for the truncated P5/P95) are those at its centre.
 
 ``CellBlocks`` is built once per grid and reused by every state: the baseline and every layout
-(``server.core.evaluate``) and the optimiser's targets (``server.core.optimise``). Covariances
+(``probewise.core.evaluate``) and the optimiser's targets (``probewise.core.optimise``). Covariances
 with the sub-points are averaged chunk by chunk so memory stays bounded on large grids.
 """
 
@@ -26,11 +26,11 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from server.core.correlation import correlate, correlate_unit, pairwise_distance_m
-from server.core.covariance import distinct_spots
-from server.core.field import UnitFields, prior_boundary_moments, unit_fields
-from server.core.model import CORRELATED_CELLS_PROBLEM, GroundModel, ModelLimitError
-from server.core.posterior import PosteriorState, Prediction
+from probewise.core.correlation import correlate, correlate_unit, pairwise_distance_m
+from probewise.core.covariance import distinct_spots
+from probewise.core.field import UnitFields, prior_boundary_moments, unit_fields
+from probewise.core.model import CORRELATED_CELLS_PROBLEM, GroundModel, ModelLimitError
+from probewise.core.posterior import PosteriorState, Prediction
 
 SUBPOINTS_PER_SIDE = 4  # k: a cell is k x k sub-points
 CHUNK_ENTRIES = 1 << 21  # distances held at once while averaging (16 MiB of float64)
@@ -209,7 +209,7 @@ def _squared_distances(xy_a: np.ndarray, xy_b: np.ndarray) -> np.ndarray:
 def _correlate_into(
     out: np.ndarray, model: str, h: np.ndarray, h2: np.ndarray, range_m: float, nugget: float = 0.0
 ):
-    """``server.core.correlation.correlate`` written into ``out``, from the distances ``h``
+    """``probewise.core.correlation.correlate`` written into ``out``, from the distances ``h``
     and their squares ``h2`` (saves the temporaries of the hottest loop)."""
     if model == "exponential":
         np.multiply(h, -3.0 / range_m, out=out)
@@ -257,7 +257,7 @@ def block_cross_covariance(
     -------
     (m, B, n) float
         ``out[j, k, c] = Cov(D_{bnd_obs[j]}(xy_obs[j]), D_k(cell c))`` in m2, laid out as
-        ``server.core.covariance.cross_covariance_all`` lays out its points.
+        ``probewise.core.covariance.cross_covariance_all`` lays out its points.
     """
     bnd_obs = np.asarray(bnd_obs, dtype=int).reshape(-1)
     m, n, B = len(bnd_obs), blocks.n_cells, ground.n_boundaries

@@ -4,7 +4,7 @@ Bounds (docs/model.md "Hard bounds"): D_k(x) lies in [sum of unit minima, sum of
 of units 1..k (zone overrides applied), intersected with every user bound on boundary k that
 applies at x (everywhere, or inside its polygon). Should a user bound not overlap the range
 from the thicknesses at all, the user bound is kept: it is the engineer's explicit statement
-about that boundary. A history rule (``server.core.history``: former surface and settlement)
+about that boundary. A history rule (``probewise.core.history``: former surface and settlement)
 then bounds the boundary it names; one that leaves no depth at a point is a conflict, raised.
 """
 
@@ -15,11 +15,11 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.special import log_ndtr, ndtri_exp
 
-from server.core.field import UnitFields, unit_fields
-from server.core.geometry import points_in_polygon
-from server.core.history import HistoryBand, history_band
-from server.core.levels import ground_level_at
-from server.core.model import GroundModel
+from probewise.core.field import UnitFields, unit_fields
+from probewise.core.geometry import points_in_polygon
+from probewise.core.history import HistoryBand, history_band
+from probewise.core.levels import ground_level_at
+from probewise.core.model import GroundModel
 
 UNIT_RANGES = -1  # source code of the bounds from the sums of unit minima and maxima
 

@@ -8,12 +8,12 @@ from collections.abc import Sequence
 
 import numpy as np
 
-from server.core.analysis import ProjectAnalysis
-from server.core.geometry import points_in_polygon
-from server.core.grid import EvaluationGrid, evaluation_grid_capped
-from server.core.model import PlannedProbe, Project
-from server.core.optimise_types import MAX_CANDIDATE_LOCATIONS, Candidates, OptimiseError
-from server.core.planning import plan_probes
+from probewise.core.analysis import ProjectAnalysis
+from probewise.core.geometry import points_in_polygon
+from probewise.core.grid import EvaluationGrid, evaluation_grid_capped
+from probewise.core.model import PlannedProbe, Project
+from probewise.core.optimise_types import MAX_CANDIDATE_LOCATIONS, Candidates, OptimiseError
+from probewise.core.planning import plan_probes
 
 
 def nice_spacing_m(raw_m: float) -> float:

@@ -24,7 +24,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from server.core.matern import matern32, matern52
+from probewise.core.matern import matern32, matern52
 
 
 @dataclass(frozen=True)
@@ -92,7 +92,7 @@ def correlate(model: str, h_m: np.ndarray, range_m: float) -> np.ndarray:
 def correlate_unit(corr, h_m: np.ndarray) -> np.ndarray:
     """A unit's correlation at distances ``h_m`` (any shape), its nugget included.
 
-    ``corr`` is a ``server.core.model.Correlation``; with nugget 0 this is exactly
+    ``corr`` is a ``probewise.core.model.Correlation``; with nugget 0 this is exactly
     :func:`correlate`.
     """
     rho = correlate(corr.model, h_m, corr.range_m)

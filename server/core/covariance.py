@@ -10,7 +10,7 @@ correlation evaluation per unit and pair of points, whatever the number of bound
 
 Correlated thicknesses (``GroundModel.thickness_correlation``) take the general form of a
 linear model of coregionalisation, Cov(D_j(x), D_k(y)) = sum_l A_jl(x) A_kl(y) rho_l(|x-y|)
-with the loadings of ``server.core.field.boundary_loadings``; independent units keep the
+with the loadings of ``probewise.core.field.boundary_loadings``; independent units keep the
 sum above unchanged. Each rho_i includes the unit's nugget (``correlate_unit``).
 """
 
@@ -18,9 +18,9 @@ from __future__ import annotations
 
 import numpy as np
 
-from server.core.correlation import correlate_unit, pairwise_distance_m
-from server.core.field import UnitFields, boundary_loadings
-from server.core.model import GroundModel
+from probewise.core.correlation import correlate_unit, pairwise_distance_m
+from probewise.core.field import UnitFields, boundary_loadings
+from probewise.core.model import GroundModel
 
 
 def boundary_covariance(

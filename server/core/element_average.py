@@ -12,7 +12,7 @@ average is Gaussian; as one linear functional of the field:
   zero-padded FFT (exact, O(N log N) instead of O(N^2) for N sub-points);
 - its covariance with a reading is the mean over the sub-points;
 - its posterior follows by the same Cholesky conditioning as every other target
-  (``server.core.posterior``): w = L^-1 c, var = prior var - w'w, mean moved by the known
+  (``probewise.core.posterior``): w = L^-1 c, var = prior var - w'w, mean moved by the known
   readings only.
 """
 
@@ -23,11 +23,11 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.linalg import solve_triangular
 
-from server.core.correlation import correlate, correlate_unit, pairwise_distance_m
-from server.core.field import UnitFields, prior_boundary_moments, unit_fields
-from server.core.grid import EvaluationGrid
-from server.core.model import GroundModel
-from server.core.posterior import Observations, PosteriorState
+from probewise.core.correlation import correlate, correlate_unit, pairwise_distance_m
+from probewise.core.field import UnitFields, prior_boundary_moments, unit_fields
+from probewise.core.grid import EvaluationGrid
+from probewise.core.model import GroundModel
+from probewise.core.posterior import Observations, PosteriorState
 
 SUBPOINTS_PER_SIDE = 4  # k: an element's average is over k x k sub-points per cell
 SUBPOINT_CHUNK = 8192  # sub-points per cross-covariance pass
@@ -58,7 +58,7 @@ def lattice_pair_mean(
     weight : (N,) float
     step_m : float
     model, range_m
-        Correlation model and practical range (``server.core.correlation``).
+        Correlation model and practical range (``probewise.core.correlation``).
 
     Returns
     -------

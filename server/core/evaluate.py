@@ -1,6 +1,6 @@
 """The numbers reported for each layout (docs/model.md "Numbers reported for a layout").
 
-Over the evaluation grid (``server.core.grid``), with the existing probes as the baseline and a
+Over the evaluation grid (``probewise.core.grid``), with the existing probes as the baseline and a
 layout's probes added:
 
 - per boundary: weighted mean posterior std (m); weighted mean P5-P95 width (m); uncertain
@@ -14,7 +14,7 @@ layout's probes added:
   Pareto efficiency among the layouts.
 
 Every cell figure is that of the cell average of the boundary depth, not of the depth at the
-cell centre (block kriging, ``server.core.blocks``; docs/model.md "Numbers reported for a
+cell centre (block kriging, ``probewise.core.blocks``; docs/model.md "Numbers reported for a
 layout"). The cells' block moments and the baseline are solved once on the grid and reused by
 every layout (block Cholesky update).
 """
@@ -26,12 +26,12 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from server.core.analysis import ProjectAnalysis
-from server.core.blocks import CellBlocks, cell_blocks, predict_cells
-from server.core.grid import MAX_GRID_CELLS, EvaluationGrid, evaluation_grid_capped
-from server.core.model import GroundModel, Layout, Method, Project
-from server.core.planning import ProbePlan
-from server.core.posterior import Prediction
+from probewise.core.analysis import ProjectAnalysis
+from probewise.core.blocks import CellBlocks, cell_blocks, predict_cells
+from probewise.core.grid import MAX_GRID_CELLS, EvaluationGrid, evaluation_grid_capped
+from probewise.core.model import GroundModel, Layout, Method, Project
+from probewise.core.planning import ProbePlan
+from probewise.core.posterior import Prediction
 
 VAR_FLOOR_M2 = 1e-12  # keeps the log-ratio of an exactly known depth finite
 
@@ -118,7 +118,7 @@ def weighted_mean(values: np.ndarray, weight: np.ndarray) -> np.ndarray:
 
 def grid_posterior(analysis: ProjectAnalysis, pred: Prediction) -> GridPosterior:
     """Mean, std and truncated P5/P95 of a prediction on the grid (a cell prediction of
-    :func:`server.core.blocks.predict_cells`: bounds at ``pred.xy``, the cell centres)."""
+    :func:`probewise.core.blocks.predict_cells`: bounds at ``pred.xy``, the cell centres)."""
     _, _, p05, p95 = analysis.quantiles(pred)
     return GridPosterior(pred.mean_m, pred.std_m, p05, p95)
 

@@ -3,7 +3,7 @@
 A point takes the first zone (in order) that contains it; a unit that zone overrides takes
 the zone's range there, every other unit its default range (docs/model.md "Probability
 model"). A unit with a presence p < 1 takes the moments of the mixture "absent with 1 - p,
-else the range" (server.core.priors.presence_moments) and a minimum of 0.
+else the range" (probewise.core.priors.presence_moments) and a minimum of 0.
 A unit's ``spread_multiplier`` scales its std and its ``mean_shift_m`` moves its mean,
 minimum (clamped at 0) and maximum, in every zone (an adopted fit); presence applies after.
 
@@ -19,9 +19,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from server.core.geometry import distance_to_edge_m, points_in_polygon
-from server.core.model import GroundModel, ThicknessRange, Unit
-from server.core.priors import presence_moments, thickness_moments
+from probewise.core.geometry import distance_to_edge_m, points_in_polygon
+from probewise.core.model import GroundModel, ThicknessRange, Unit
+from probewise.core.priors import presence_moments, thickness_moments
 
 
 @dataclass(frozen=True, eq=False)

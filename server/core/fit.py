@@ -29,11 +29,11 @@ import numpy as np
 from scipy.linalg import LinAlgError, cholesky, lapack, lstsq, solve_triangular
 from scipy.optimize import minimize
 
-from server.core.correlation import correlate_unit, pairwise_distance_m
-from server.core.field import unit_fields
-from server.core.model import Correlation, GroundModel
-from server.core.posterior import Observations
-from server.core.readings import observation_moments
+from probewise.core.correlation import correlate_unit, pairwise_distance_m
+from probewise.core.field import unit_fields
+from probewise.core.model import Correlation, GroundModel
+from probewise.core.posterior import Observations
+from probewise.core.readings import observation_moments
 
 MIN_PROBES_UNIT = 8  # probes reading a unit's base before its parameters are fitted
 MIN_PROBES_PAIR = 10  # probes reading both units before their correlation is fitted

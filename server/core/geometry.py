@@ -1,6 +1,6 @@
 """Plane geometry the core needs: point-in-polygon (even-odd) and polygon area.
 
-Polygons (``server.core.model.Polygon``) hold their rings in project coordinates; the core
+Polygons (``probewise.core.model.Polygon``) hold their rings in project coordinates; the core
 works in coordinates relative to the project origin, so every function here takes that
 ``origin`` and shifts the rings, never the points, before testing.
 """
@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from server.core.model import Polygon
+from probewise.core.model import Polygon
 
 # A point this close to an edge (m) counts as on it, hence inside.
 _EDGE_TOL_M = 1e-9

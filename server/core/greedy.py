@@ -11,23 +11,23 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.linalg import solve_triangular
 
-from server.core.analysis import ProjectAnalysis
-from server.core.blocks import CellBlocks, block_unit_terms, cell_blocks, predict_cells
-from server.core.correlation import correlate_unit
-from server.core.covariance import boundary_covariance
-from server.core.evaluate import layout_cost
-from server.core.field import UnitFields, unit_fields
-from server.core.greedy_kernel import BOUND_SLACK, FOLD, Q_MIN, kernel_for, plan_runs
-from server.core.grid import EvaluationGrid
-from server.core.model import Layout
-from server.core.optimise_types import (
+from probewise.core.analysis import ProjectAnalysis
+from probewise.core.blocks import CellBlocks, block_unit_terms, cell_blocks, predict_cells
+from probewise.core.correlation import correlate_unit
+from probewise.core.covariance import boundary_covariance
+from probewise.core.evaluate import layout_cost
+from probewise.core.field import UnitFields, unit_fields
+from probewise.core.greedy_kernel import BOUND_SLACK, FOLD, Q_MIN, kernel_for, plan_runs
+from probewise.core.grid import EvaluationGrid
+from probewise.core.model import Layout
+from probewise.core.optimise_types import (
     KERNEL_LOCK,
     MIN_GAIN_BITS,
     Candidates,
     OptimiseError,
     Pick,
 )
-from server.core.planning import plan_probes, planned_observations
+from probewise.core.planning import plan_probes, planned_observations
 
 
 @dataclass(frozen=True, eq=False)
@@ -35,7 +35,7 @@ class Targets:
     """Targets of the objective, laid out in padded slots of equal weight.
 
     ``cells (C, 2)`` local cell centres, ``fields`` their priors, ``blocks`` the cells as
-    areas (a target is the cell average of a boundary, ``server.core.blocks``), ``boundaries``
+    areas (a target is the cell average of a boundary, ``probewise.core.blocks``), ``boundaries``
     of interest ``(K,)`` and ``slot_cell``/``slot_bnd`` ``(S,)`` (-1 on pad slots), runs for
     the kernel.
     """

@@ -17,8 +17,8 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from server.core.geometry import local_rings, points_in_polygon, polygon_area_m2
-from server.core.model import Site
+from probewise.core.geometry import local_rings, points_in_polygon, polygon_area_m2
+from probewise.core.model import Site
 
 MAX_GRID_CELLS = 60_000  # evaluation cells; a finer grid is coarsened with a notice
 # Bounding-box raster built per try (inside and outside cells): keeps memory bounded for a

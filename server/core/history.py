@@ -24,9 +24,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from server.core.field import UnitFields
-from server.core.geometry import points_in_polygon
-from server.core.model import HistoryRule, Settlement
+from probewise.core.field import UnitFields
+from probewise.core.geometry import points_in_polygon
+from probewise.core.model import HistoryRule, Settlement
 
 GAMMA_WATER_KN_M3 = 9.81
 SUBLAYER_M = 0.5  # thickness the compressible unit is split into, at most

@@ -13,7 +13,7 @@ import numpy as np
 from scipy.interpolate import LinearNDInterpolator
 from scipy.spatial import cKDTree
 
-from server.core.model import GroundLevel
+from probewise.core.model import GroundLevel
 
 
 class GroundSurface:

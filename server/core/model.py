@@ -45,7 +45,7 @@ CORRELATED_CELLS_PROBLEM = (
 class ThicknessRange:
     """Thickness prior of one unit: min, most likely and max (m) and a shape name.
 
-    The shape is a name in ``server.core.priors.THICKNESS_SHAPES``.
+    The shape is a name in ``probewise.core.priors.THICKNESS_SHAPES``.
     """
 
     min_m: float
@@ -58,7 +58,7 @@ class ThicknessRange:
 class Correlation:
     """Correlation model of a unit's thickness with its practical range (m).
 
-    The model is a name in ``server.core.correlation.CORRELATION_MODELS``.
+    The model is a name in ``probewise.core.correlation.CORRELATION_MODELS``.
     """
 
     model: str
@@ -92,7 +92,7 @@ class Zone:
     polygon: Polygon
     thickness: dict[int, ThicknessRange]  # unit index -> range override
     # width (m) of the band across the zone's edge over which the thickness mean and spread
-    # blend linearly with those outside (0: a sharp edge); ``server.core.field``
+    # blend linearly with those outside (0: a sharp edge); ``probewise.core.field``
     transition_m: float = 0.0
 
 
@@ -117,7 +117,7 @@ class DepthBound:
 class GroundLevel:
     """Ground level (m, project datum): a constant, or surveyed points ``(m, 3)`` of
     ``x, y, level`` in project coordinates (linear on their Delaunay triangulation, nearest
-    point outside its hull; ``server.core.levels``)."""
+    point outside its hull; ``probewise.core.levels``)."""
 
     datum: str
     level_m: float | None = None

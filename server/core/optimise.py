@@ -2,7 +2,7 @@
 
 docs/model.md "Optimiser". Candidates are a regular grid of locations inside the site and outside
 exclusions, times the allowed methods; each candidate's planned depth and observed set are
-planned exactly as for evaluation (``server.core.planning``), so the optimiser scores what
+planned exactly as for evaluation (``probewise.core.planning``), so the optimiser scores what
 ``evaluate`` will report. Greedy forward selection picks, at each step, the candidate with
 the largest information gain per unit cost (per location + per metre x planned depth), until
 nothing more fits the budget; references: greedy variance/entropy reduction for Gaussian
@@ -10,13 +10,13 @@ processes (Krause, Singh and Guestrin, JMLR 9, 2008).
 
 Exact incremental updates: the posterior covariance ``M`` between every candidate
 location-boundary and every target (the cell average of a boundary of interest over a cell
-of the optimisation grid: cells are areas, ``server.core.blocks``) is kept and updated by a
+of the optimisation grid: cells are areas, ``probewise.core.blocks``) is kept and updated by a
 rank-k step after each pick; a candidate is scored from its rows of ``M`` without re-solving
-anything. The compiled kernel (``server.core.greedy_kernel``) finds the best candidate in
+anything. The compiled kernel (``probewise.core.greedy_kernel``) finds the best candidate in
 about one pass over ``M``: an upper bound per location (an envelope probe reading every
 boundary with the best precision) and exact scores only for the few candidates whose bound
 per cost can still win, so the pick is the one full scoring would make.
-``server.core.optimise_reference`` is the brute-force check.
+``probewise.core.optimise_reference`` is the brute-force check.
 
 Several budgets can share one :func:`prepare_optimisation` (candidates, covariances), as the
 ranking of options does. Long runs report progress through a callback and poll a
@@ -41,16 +41,16 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from server.core.analysis import ProjectAnalysis
-from server.core.candidates import (  # noqa: F401 - public here as before
+from probewise.core.analysis import ProjectAnalysis
+from probewise.core.candidates import (  # noqa: F401 - public here as before
     build_candidates,
     candidate_locations,
     check_candidate_count,
     nice_spacing_m,
     optimisation_grid,
 )
-from server.core.evaluate import GridEvaluator
-from server.core.greedy import (  # noqa: F401 - public here as before
+from probewise.core.evaluate import GridEvaluator
+from probewise.core.greedy import (  # noqa: F401 - public here as before
     GreedyProblem,
     GreedyState,
     Targets,
@@ -58,9 +58,9 @@ from server.core.greedy import (  # noqa: F401 - public here as before
     forward_substitute,
     greedy_run,
 )
-from server.core.grid import EvaluationGrid
-from server.core.model import CORRELATED_CELLS_PROBLEM, Layout, PlannedProbe, Project
-from server.core.optimise_types import (  # noqa: F401 - public here as before
+from probewise.core.grid import EvaluationGrid
+from probewise.core.model import CORRELATED_CELLS_PROBLEM, Layout, PlannedProbe, Project
+from probewise.core.optimise_types import (  # noqa: F401 - public here as before
     FINALISTS,
     KERNEL_LOCK,
     MAX_CANDIDATE_LOCATIONS,
@@ -347,7 +347,7 @@ def optimise(
 
     Greedy runs (:func:`run_greedy_jobs`), the best prefixes evaluated on the full grid
     (:func:`choose_finalist`), then the exchange refinement of the chosen one
-    (``server.core.refine``), kept when it gains more on the full grid.
+    (``probewise.core.refine``), kept when it gains more on the full grid.
 
     Parameters
     ----------
@@ -373,7 +373,7 @@ def optimise(
         Bad options, no usable candidate, or nothing fits the budget; ``field`` says which.
     OptimiseCancelled
     """
-    from server.core.refine import refine_layout
+    from probewise.core.refine import refine_layout
 
     t_start = time.perf_counter()
     done = [0.0]

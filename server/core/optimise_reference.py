@@ -2,11 +2,11 @@
 
 For every candidate at every step it extends the posterior state by the candidate's readings
 (a block Cholesky update against all readings so far) and predicts every target again, with
-none of the cached cross-covariances of ``server.core.optimise``. Slow by design; used by the
+none of the cached cross-covariances of ``probewise.core.optimise``. Slow by design; used by the
 tests and by ``benchmarks/optimise.py`` only.
 
 A target is the average of a boundary over a cell (docs/model.md "Numbers reported for a
-layout"). Independently of ``server.core.blocks``, the reference conditions the depths at
+layout"). Independently of ``probewise.core.blocks``, the reference conditions the depths at
 the cell's ``k x k`` sub-points (centres of a regular subdivision) and averages: the
 covariance of two cell averages is the mean of the covariances of their sub-point pairs, so
 the posterior variance of a cell average is the mean of the prior covariances of its
@@ -18,11 +18,11 @@ from __future__ import annotations
 
 import numpy as np
 
-from server.core.covariance import boundary_covariance
-from server.core.evaluate import VAR_FLOOR_M2
-from server.core.field import unit_fields
-from server.core.optimise import MIN_GAIN_BITS, GreedyProblem, Pick
-from server.core.posterior import Observations, PosteriorState, Prediction
+from probewise.core.covariance import boundary_covariance
+from probewise.core.evaluate import VAR_FLOOR_M2
+from probewise.core.field import unit_fields
+from probewise.core.optimise import MIN_GAIN_BITS, GreedyProblem, Pick
+from probewise.core.posterior import Observations, PosteriorState, Prediction
 
 
 def cell_subpoints(cells: np.ndarray, spacing_m: float, per_side: int) -> np.ndarray:
@@ -73,7 +73,7 @@ def greedy_reference(
 ) -> tuple[Pick, ...]:
     """The first ``max_picks`` picks of the greedy search, re-solving for every candidate.
 
-    Same rules as :func:`server.core.optimise.greedy_run` (gain per cost, budget, spacing,
+    Same rules as :func:`probewise.core.optimise.greedy_run` (gain per cost, budget, spacing,
     lowest index on ties), started from the existing probes only.
     """
     cand, t = problem.cand, problem.targets

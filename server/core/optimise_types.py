@@ -1,5 +1,5 @@
 """What the optimiser takes and gives: options, candidates, picks, runs, results and errors
-(``server.core.optimise`` and its helpers share them)."""
+(``probewise.core.optimise`` and its helpers share them)."""
 
 from __future__ import annotations
 
@@ -9,8 +9,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from server.core.evaluate import LayoutResult
-from server.core.model import Layout
+from probewise.core.evaluate import LayoutResult
+from probewise.core.model import Layout
 
 # The search runs on all cores; numba's fallback thread pool ("workqueue", used where no
 # OpenMP or TBB library is found) aborts the process if two threads enter it at once, and the
@@ -63,7 +63,7 @@ class OptimiseOptions:
     warm_start : bool
         Also start runs from the hand-made layouts that fit the budget.
     refine_sweeps : int
-        Most exchange sweeps of the refinement (``server.core.refine``); 0 turns it off.
+        Most exchange sweeps of the refinement (``probewise.core.refine``); 0 turns it off.
     refine_cells : int
         The refinement scores on the evaluation grid coarsened to at most this many cells.
     refine_work : float
@@ -158,7 +158,7 @@ class GreedyRun:
 
 @dataclass(frozen=True)
 class Refinement:
-    """What the exchange refinement (``server.core.refine``) added to the greedy layout.
+    """What the exchange refinement (``probewise.core.refine``) added to the greedy layout.
 
     Gains (bits) are on the full evaluation grid, as ``evaluate`` reports them;
     ``refined_gain_bits`` is the returned layout's (the greedy's when refining found nothing

@@ -15,10 +15,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from server.core.evaluate import GridEvaluator, LayoutResult, pareto_flags
-from server.core.model import Layout, PlannedProbe, Project
-from server.core.optimise import candidate_locations
-from server.core.value import ValueEvaluator, layout_values
+from probewise.core.evaluate import GridEvaluator, LayoutResult, pareto_flags
+from probewise.core.model import Layout, PlannedProbe, Project
+from probewise.core.optimise import candidate_locations
+from probewise.core.value import ValueEvaluator, layout_values
 
 KINDS = ("hand", "guidance", "optimised")
 MAX_GUIDANCE_PROBES = 5000  # more is no guidance grid anyone would price
@@ -175,7 +175,7 @@ def rank_options(
     ------
     ValueError
         Duplicate option names, or a kind missing or not one of ``KINDS``;
-        ``server.core.value.EmptyElementError`` when an element holds no cell.
+        ``probewise.core.value.EmptyElementError`` when an element holds no cell.
     """
     names = [o.name for o in options]
     if len(set(names)) != len(names):

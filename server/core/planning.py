@@ -1,7 +1,7 @@
 """Planned depth and observed set of planned probes (docs/model.md "Probability model").
 
 "Current" below means conditioned on the existing probes only; P95 is the quantile of the
-truncated posterior (``server.core.bounds``).
+truncated posterior (``probewise.core.bounds``).
 
 - Refusal: a method cannot pass the top of the shallowest unit it cannot penetrate
   (``Method.refusal_unit`` = r). For planning, that cap is the current P95 depth of the top of
@@ -24,9 +24,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from server.core.bounds import depth_bounds, truncated_quantiles
-from server.core.model import GroundModel, Method, PlannedProbe
-from server.core.posterior import Observations, PosteriorState, Prediction
+from probewise.core.bounds import depth_bounds, truncated_quantiles
+from probewise.core.model import GroundModel, Method, PlannedProbe
+from probewise.core.posterior import Observations, PosteriorState, Prediction
 
 
 @dataclass(frozen=True)

@@ -29,9 +29,9 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.linalg import LinAlgError, cholesky, solve_triangular
 
-from server.core.covariance import boundary_covariance, cross_covariance_all
-from server.core.field import UnitFields, prior_boundary_moments, unit_fields
-from server.core.model import GroundModel
+from probewise.core.covariance import boundary_covariance, cross_covariance_all
+from probewise.core.field import UnitFields, prior_boundary_moments, unit_fields
+from probewise.core.model import GroundModel
 
 # Jitter on the diagonal, relative to the largest diagonal entry: tiny to start with, grown
 # by 100x only when the factorisation fails (coincident zero-noise observations).
@@ -276,7 +276,7 @@ class PosteriorState:
         base: Prediction | None = None,
     ) -> Prediction:
         """Prior and posterior of every boundary at targets given by their prior moments
-        and their covariance with readings (points, or cell averages: server.core.blocks).
+        and their covariance with readings (points, or cell averages: probewise.core.blocks).
 
         Parameters
         ----------

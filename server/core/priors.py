@@ -19,7 +19,7 @@ import math
 from collections.abc import Callable
 from dataclasses import dataclass
 
-from server.core.model import ThicknessRange
+from probewise.core.model import ThicknessRange
 
 PERT_LAMBDA = 4.0
 

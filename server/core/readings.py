@@ -27,10 +27,10 @@ import numpy as np
 from scipy.linalg import cho_factor, cho_solve, lapack, solve_triangular
 from scipy.stats import chi2
 
-from server.core.covariance import boundary_covariance
-from server.core.field import prior_boundary_moments, unit_fields
-from server.core.model import GroundModel
-from server.core.posterior import Observations, cholesky_jittered
+from probewise.core.covariance import boundary_covariance
+from probewise.core.field import prior_boundary_moments, unit_fields
+from probewise.core.model import GroundModel
+from probewise.core.posterior import Observations, cholesky_jittered
 
 FLAG_Z = 1.96  # two-sided 95%
 WITHIN_Z = 1.645  # two-sided 90%: the share within it should be about 0.9

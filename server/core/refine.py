@@ -39,12 +39,12 @@ import numpy as np
 from scipy.linalg import solve_triangular
 from scipy.linalg.blas import dgemm
 
-from server.core.correlation import correlate
-from server.core.evaluate import LayoutResult
-from server.core.geometry import points_in_polygon
-from server.core.grid import evaluation_grid_capped
-from server.core.model import Layout
-from server.core.optimise import (
+from probewise.core.correlation import correlate
+from probewise.core.evaluate import LayoutResult
+from probewise.core.geometry import points_in_polygon
+from probewise.core.grid import evaluation_grid_capped
+from probewise.core.model import Layout
+from probewise.core.optimise import (
     Candidates,
     GreedyProblem,
     GreedyRun,

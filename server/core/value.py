@@ -22,7 +22,7 @@ N(m, v) truncated to [lo, hi] at p (deeper adverse) or 1 - p (shallower adverse)
   robust - (robust - cheaper) x P.
 
 The element average is one linear functional of the field, conditioned like every other
-target (``server.core.element_average``).
+target (``probewise.core.element_average``).
 """
 
 from __future__ import annotations
@@ -34,23 +34,23 @@ import numpy as np
 from numpy.polynomial.hermite_e import hermegauss
 from scipy.special import ndtr, ndtri
 
-from server.core.bounds import depth_bounds, truncated_quantiles
-from server.core.element_average import (
+from probewise.core.bounds import depth_bounds, truncated_quantiles
+from probewise.core.element_average import (
     ElementAverage,
     average_cross_covariance,
     condition_average,
     element_average,
 )
-from server.core.geometry import points_in_polygon
-from server.core.grid import EvaluationGrid
-from server.core.model import (
+from probewise.core.geometry import points_in_polygon
+from probewise.core.grid import EvaluationGrid
+from probewise.core.model import (
     ChoiceConsequence,
     DesignElement,
     Layout,
     Project,
     QuantityConsequence,
 )
-from server.core.posterior import PosteriorState
+from probewise.core.posterior import PosteriorState
 
 GAUSS_HERMITE_NODES = 64  # nodes of the preposterior expectation (at least 40)
 CELL_CHUNK = 4096  # cells per quadrature pass (bounds memory: chunk x nodes floats)

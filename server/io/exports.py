@@ -27,8 +27,8 @@ from contextlib import contextmanager
 from pathlib import Path
 from typing import IO, Any
 
-from server.caution import CAUTION_LINE
-from server.errors import InputError
+from probewise.caution import CAUTION_LINE
+from probewise.errors import InputError
 
 NO_CRS_NOTE = "coordinates are metres on a local site grid (the project has no CRS)"
 

@@ -3,7 +3,7 @@
 Reading goes through geopandas/pyogrio, reprojection through pyproj (``GeoDataFrame.to_crs``),
 checks and repairs through shapely. Functions take and return plain model-file dicts and
 never write a store; bad input raises ``InputError`` naming the file, feature or column.
-Opening files (kinds, safe unzipping, layers) is ``server.io.gis_files``.
+Opening files (kinds, safe unzipping, layers) is ``probewise.io.gis_files``.
 
 CRS rules, kept few so they can be explained on one screen:
 - GeoJSON without a ``crs`` member is EPSG:4326 (RFC 7946); other files carry their own CRS,
@@ -21,8 +21,8 @@ import math
 from pathlib import Path
 from typing import Any
 
-from server.errors import InputError, OptionNeededError
-from server.io.gis_files import (  # noqa: F401 - the file caps and layer listing, public here
+from probewise.errors import InputError, OptionNeededError
+from probewise.io.gis_files import (  # noqa: F401 - the file caps and layer listing, public here
     KIND_LABELS,
     MAX_FILE_BYTES,
     MAX_ZIP_BYTES,
@@ -34,7 +34,7 @@ from server.io.gis_files import (  # noqa: F401 - the file caps and layer listin
     list_layers,
     open_dataset,
 )
-from server.numbers import read_number
+from probewise.numbers import read_number
 
 ROLE_KEYS = {
     "site": "site",
@@ -336,7 +336,7 @@ def apply_polygons(model: dict, role: str, features: list[dict], mode: str = "re
     import shapely
     from shapely.geometry import shape
 
-    from server.io.model_file import unique_name
+    from probewise.io.model_file import unique_name
 
     if role not in ROLE_KEYS:
         raise InputError("role", f"'{role}' is not one of site, zones, areas, exclusions")
@@ -391,6 +391,6 @@ def features_outside_site(model: dict, features: list[dict]) -> list[str]:
 
 def _validate(model: dict) -> None:
     """Check the result against the model-file schema (raises InputError when it fails)."""
-    from server.io.model_file import validate_model
+    from probewise.io.model_file import validate_model
 
     validate_model(model)

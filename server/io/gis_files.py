@@ -1,5 +1,5 @@
 """GIS files opened safely: the kind from the name, zipped Shapefiles unpacked with caps, the
-layers of a file and their columns. ``server.io.geo_io`` reads polygons from what this opens.
+layers of a file and their columns. ``probewise.io.geo_io`` reads polygons from what this opens.
 """
 
 from __future__ import annotations
@@ -13,7 +13,7 @@ from collections.abc import Iterator
 from contextlib import contextmanager
 from pathlib import Path, PurePosixPath
 
-from server.errors import InputError, OptionNeededError
+from probewise.errors import InputError, OptionNeededError
 
 # Safe extraction of zipped Shapefiles: caps on what an archive may unpack to.
 MAX_ZIP_BYTES = 50 * 1024 * 1024

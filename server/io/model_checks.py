@@ -12,8 +12,8 @@ from collections.abc import Iterator
 
 from pydantic import ValidationError
 
-from server.errors import InputError
-from server.io.model_common import (
+from probewise.errors import InputError
+from probewise.io.model_common import (
     LIST_CAPS,
     MAX_LAYOUT_PROBES,
     MAX_LAYOUTS,

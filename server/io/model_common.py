@@ -8,8 +8,8 @@ from __future__ import annotations
 
 import json
 
-from server.core.correlation import CORRELATION_MODEL_NAMES
-from server.core.priors import SHAPE_NAMES
+from probewise.core.correlation import CORRELATION_MODEL_NAMES
+from probewise.core.priors import SHAPE_NAMES
 
 SCHEMA = "probewise/1"
 # Allowed names come from the core's registries (one entry adds a shape or a model).

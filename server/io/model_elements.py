@@ -1,8 +1,8 @@
 """The model file's optional ``elements`` section: design elements whose cost follows a
 boundary (docs/model-file.md "Design elements"; docs/model.md "The value of an investigation").
 
-The schema (pydantic) is a field of ``server.io.model_schema.ModelFile``; the cross-reference
-checks are one entry of ``server.io.model_references.REFERENCE_CHECKS``.
+The schema (pydantic) is a field of ``probewise.io.model_schema.ModelFile``; the cross-reference
+checks are one entry of ``probewise.io.model_references.REFERENCE_CHECKS``.
 """
 
 from __future__ import annotations
@@ -15,10 +15,10 @@ import numpy as np
 import shapely
 from pydantic import AfterValidator, BaseModel, ConfigDict, Field, ValidationError, model_validator
 
-from server.errors import InputError
-from server.io.model_checks import plain_message
-from server.io.model_common import MAX_DEPTH_M, ProblemError, field_path
-from server.io.model_geometry import check_site_geometry, to_shapely
+from probewise.errors import InputError
+from probewise.io.model_checks import plain_message
+from probewise.io.model_common import MAX_DEPTH_M, ProblemError, field_path
+from probewise.io.model_geometry import check_site_geometry, to_shapely
 
 FRACTILE_MIN, FRACTILE_MAX = 0.5, 0.999
 MAX_CELL_TEST = 1_000_000  # grid centres tested for "the element holds a cell"
@@ -122,7 +122,7 @@ def element_problems(
 
 def _holds_a_cell(site: shapely.Geometry, footprint: shapely.Geometry, spacing_m: float) -> bool:
     """Whether a centre of the evaluation grid (cells aligned to the site's bounding box, as
-    ``server.core.grid`` lays them) lies inside both the site and the footprint."""
+    ``probewise.core.grid`` lays them) lies inside both the site and the footprint."""
     x0, y0, _, _ = site.bounds
     fx0, fy0, fx1, fy1 = footprint.bounds
     cols = np.arange(max(math.floor((fx0 - x0) / spacing_m - 0.5), 0),

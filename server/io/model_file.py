@@ -30,9 +30,9 @@ import numpy as np
 import shapely
 from pydantic import ValidationError
 
-from server.errors import InputError
-from server.io.model_checks import raw_problems, size_problems, structure_problems
-from server.io.model_common import (  # noqa: F401 - the model file's constants, public here
+from probewise.errors import InputError
+from probewise.io.model_checks import raw_problems, size_problems, structure_problems
+from probewise.io.model_common import (  # noqa: F401 - the model file's constants, public here
     CORRELATION_MODELS,
     LIST_CAPS,
     MAX_COORD_M,
@@ -53,11 +53,11 @@ from server.io.model_common import (  # noqa: F401 - the model file's constants,
     TOP_KEYS,
     show_value,
 )
-from server.io.model_geometry import to_shapely
-from server.io.model_history import history_problems
-from server.io.model_references import reference_problems
-from server.io.model_schema import OPTIONAL_KEYS, ModelFile
-from server.io.model_structure import ground_structure_problems
+from probewise.io.model_geometry import to_shapely
+from probewise.io.model_history import history_problems
+from probewise.io.model_references import reference_problems
+from probewise.io.model_schema import OPTIONAL_KEYS, ModelFile
+from probewise.io.model_structure import ground_structure_problems
 
 
 def _validate(data: object, first_only: bool) -> tuple[dict | None, list[InputError]]:

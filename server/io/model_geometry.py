@@ -1,7 +1,7 @@
 """Geometry and CRS checks of the model file: GeoJSON polygons and a projected CRS in metres.
 
 Each check raises ``ProblemError`` (a sub-path and a plain message) inside a pydantic
-validator; ``server.io.model_checks`` turns it into ``InputError(field, problem)``.
+validator; ``probewise.io.model_checks`` turns it into ``InputError(field, problem)``.
 """
 
 from __future__ import annotations
@@ -15,7 +15,7 @@ import shapely
 import shapely.geometry
 from pyproj import CRS
 
-from server.io.model_common import (
+from probewise.io.model_common import (
     MAX_COORD_M,
     MAX_POSITIONS,
     ProblemError,

@@ -14,12 +14,12 @@ from typing import Annotated
 import numpy as np
 from pydantic import Field, ValidationError, model_validator
 
-from server.errors import InputError
-from server.io.model_checks import structure_problems
-from server.io.model_common import MAX_COORD_M, ProblemError
-from server.io.model_common import number_text as _num
-from server.io.model_common import show_value as _show
-from server.io.model_schema import Name, PolygonGeometry, _Base
+from probewise.errors import InputError
+from probewise.io.model_checks import structure_problems
+from probewise.io.model_common import MAX_COORD_M, ProblemError
+from probewise.io.model_common import number_text as _num
+from probewise.io.model_common import show_value as _show
+from probewise.io.model_schema import Name, PolygonGeometry, _Base
 
 GAMMA_WATER_KN_M3 = 9.81
 MAX_LEVEL_M = 1e4  # |level|: nothing on Earth's surface

@@ -17,10 +17,10 @@ from dataclasses import dataclass
 import numpy as np
 import shapely
 
-from server.errors import InputError
-from server.io.model_common import MAX_GRID_CELLS, names_text, number_text, path_key, show_value
-from server.io.model_elements import element_problems
-from server.io.model_geometry import to_shapely
+from probewise.errors import InputError
+from probewise.io.model_common import MAX_GRID_CELLS, names_text, number_text, path_key, show_value
+from probewise.io.model_elements import element_problems
+from probewise.io.model_geometry import to_shapely
 
 
 @dataclass(frozen=True)

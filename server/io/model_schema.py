@@ -2,7 +2,7 @@
 
 Types, required fields, defaults and per-object rules (ordered ranges, geometries, CRS).
 ``ModelFile`` is the whole document; a new section of the model file adds a field to it (and
-its cross-reference check to ``server.io.model_references.REFERENCE_CHECKS``).
+its cross-reference check to ``probewise.io.model_references.REFERENCE_CHECKS``).
 """
 
 from __future__ import annotations
@@ -11,8 +11,8 @@ from typing import Annotated, Any, Literal
 
 from pydantic import AfterValidator, BaseModel, ConfigDict, Field, model_validator
 
-from server.core.priors import DEFAULT_SHAPE
-from server.io.model_common import (
+from probewise.core.priors import DEFAULT_SHAPE
+from probewise.io.model_common import (
     CORRELATION_MODELS,
     MAX_DEPTH_M,
     MAX_RANGE_M,
@@ -22,8 +22,8 @@ from server.io.model_common import (
     number_text,
     show_value,
 )
-from server.io.model_elements import Element
-from server.io.model_geometry import check_crs, check_polygon, check_site_geometry
+from probewise.io.model_elements import Element
+from probewise.io.model_geometry import check_crs, check_polygon, check_site_geometry
 
 
 def check_name(value: str) -> str:

@@ -15,7 +15,7 @@ from collections.abc import Iterator
 
 import numpy as np
 
-from server.errors import InputError
+from probewise.errors import InputError
 
 MAX_PAIRS = 200
 MAX_STAGE_CHARS = 80

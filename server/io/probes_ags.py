@@ -15,9 +15,9 @@ from collections import Counter
 from collections.abc import Callable
 from typing import Any
 
-from server.errors import InputError, OptionNeededError
-from server.io.probes_ags3 import group_records, looks_like_ags3, parse_ags3
-from server.io.probes_common import (
+from probewise.errors import InputError, OptionNeededError
+from probewise.io.probes_ags3 import group_records, looks_like_ags3, parse_ags3
+from probewise.io.probes_common import (
     Ags4Hole,
     Ags4Holes,
     Ags4Layer,
@@ -31,7 +31,7 @@ from server.io.probes_common import (
     probes_outside_site,
     resolve_mapping,
 )
-from server.io.probes_mapping import TextRule, decide_layers, undecided_error
+from probewise.io.probes_mapping import TextRule, decide_layers, undecided_error
 
 
 def read_ags(data: bytes, *, filename: str = "file.ags") -> Ags4Holes:

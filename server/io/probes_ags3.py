@@ -20,7 +20,7 @@ import csv
 import io
 from dataclasses import dataclass, field
 
-from server.errors import InputError
+from probewise.errors import InputError
 
 CONT = "<CONT>"
 UNITS = "<UNITS>"

@@ -12,7 +12,7 @@ import re
 from dataclasses import dataclass, field
 from typing import Any
 
-from server.errors import InputError, OptionNeededError
+from probewise.errors import InputError, OptionNeededError
 
 # Depths closer than this (m) count as equal: a layer ending at the final depth, order checks.
 DEPTH_TOL_M = 1e-6

@@ -9,9 +9,9 @@ from __future__ import annotations
 
 import copy
 
-from server.errors import InputError
-from server.io.probes_ags import ags4_legends, ags4_to_existing, read_ags, read_ags3, read_ags4
-from server.io.probes_common import (
+from probewise.errors import InputError
+from probewise.io.probes_ags import ags4_legends, ags4_to_existing, read_ags, read_ags3, read_ags4
+from probewise.io.probes_common import (
     DEPTH_TOL_M,
     Ags4Hole,
     Ags4Holes,
@@ -23,14 +23,14 @@ from server.io.probes_common import (
     probes_outside_site,
     resolve_mapping,
 )
-from server.io.probes_mapping import (
+from probewise.io.probes_mapping import (
     RuleHits,
     TextRule,
     decide_layers,
     make_text_rule,
     parse_text_rules,
 )
-from server.io.probes_table import parse_csv, preview_csv
+from probewise.io.probes_table import parse_csv, preview_csv
 
 __all__ = [
     "DEPTH_TOL_M",
@@ -86,7 +86,7 @@ def merge_existing(model: dict, probes: list[dict], mode: str = "append") -> dic
             "or rename the imported ones",
         )
     out["existing"] = current + copy.deepcopy(probes)
-    from server.io.model_file import validate_model
+    from probewise.io.model_file import validate_model
 
     validate_model(out)
     return out

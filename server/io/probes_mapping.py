@@ -13,8 +13,8 @@ from __future__ import annotations
 import re
 from dataclasses import dataclass, field
 
-from server.errors import InputError
-from server.io.probes_common import IGNORE_CODES, Ags4Holes, _unit_lookup
+from probewise.errors import InputError
+from probewise.io.probes_common import IGNORE_CODES, Ags4Holes, _unit_lookup
 
 MAX_EXAMPLES = 3
 MAX_PATTERN_CHARS = 200

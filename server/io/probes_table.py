@@ -14,8 +14,8 @@ import csv
 import io
 from pathlib import Path
 
-from server.errors import InputError
-from server.io.probes_common import (
+from probewise.errors import InputError
+from probewise.io.probes_common import (
     DEPTH_TOL_M,
     LONG_COLUMNS,
     MAX_TABLE_BYTES,

@@ -1,7 +1,7 @@
 """SQLite storage (sqlite-utils): projects as full revisions, undo, background jobs."""
 
-from server.store.db import default_db_path, open_db, read_snapshot, transaction
-from server.store.errors import (
+from probewise.store.db import default_db_path, open_db, read_snapshot, transaction
+from probewise.store.errors import (
     JobNotFound,
     NothingToUndo,
     ProjectDeleted,
@@ -10,7 +10,7 @@ from server.store.errors import (
     StaleRevision,
     StoreError,
 )
-from server.store.jobs import (
+from probewise.store.jobs import (
     Job,
     create_job,
     get_job,
@@ -20,8 +20,8 @@ from server.store.jobs import (
     request_cancel,
     update_job,
 )
-from server.store.migrations import SCHEMA_VERSION, schema_version
-from server.store.projects import (
+from probewise.store.migrations import SCHEMA_VERSION, schema_version
+from probewise.store.projects import (
     ProjectSummary,
     RevisionInfo,
     StoredProject,
@@ -39,7 +39,7 @@ from server.store.projects import (
     save_project,
     undo,
 )
-from server.store.seed import seed_demo_if_empty
+from probewise.store.seed import seed_demo_if_empty
 
 __all__ = [
     "SCHEMA_VERSION",

@@ -39,7 +39,7 @@ def default_db_path() -> Path:
 
 def open_db(path: str | Path) -> sqlite_utils.Database:
     """Open (creating if needed) the database at ``path`` and bring its schema up to date."""
-    from server.store.migrations import apply_migrations
+    from probewise.store.migrations import apply_migrations
 
     path = Path(path).expanduser()
     path.parent.mkdir(parents=True, exist_ok=True)

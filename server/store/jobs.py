@@ -14,9 +14,9 @@ from typing import Any
 
 import sqlite_utils
 
-from server.store.db import read_snapshot, transaction, utc_now
-from server.store.errors import JobNotFound, StoreError
-from server.store.projects import _project_row
+from probewise.store.db import read_snapshot, transaction, utc_now
+from probewise.store.errors import JobNotFound, StoreError
+from probewise.store.projects import _project_row
 
 STATUSES = ("queued", "running", "done", "failed", "cancelled")
 FINAL_STATUSES = frozenset({"done", "failed", "cancelled"})

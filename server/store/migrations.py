@@ -9,7 +9,7 @@ from __future__ import annotations
 import sqlite_utils
 from sqlite_utils import Migrations
 
-from server.store.errors import StoreError
+from probewise.store.errors import StoreError
 
 MIGRATION_SET = "probewise"
 migrations = Migrations(MIGRATION_SET)
@@ -99,7 +99,7 @@ def apply_migrations(db: sqlite_utils.Database) -> int:
     Refuses a database written by a newer probewise (migrations this code does not know).
     Returns the schema version.
     """
-    from server.store.db import transaction
+    from probewise.store.db import transaction
 
     known = set(MIGRATION_NAMES)
     with transaction(db):

@@ -24,11 +24,11 @@ from typing import TYPE_CHECKING, Any
 
 import sqlite_utils
 
-from server.store.db import read_snapshot, transaction, utc_now
+from probewise.store.db import read_snapshot, transaction, utc_now
 
 if TYPE_CHECKING:
-    from server.io.model_file import ValidModel
-from server.store.errors import (
+    from probewise.io.model_file import ValidModel
+from probewise.store.errors import (
     NothingToUndo,
     ProjectDeleted,
     ProjectNotFound,
@@ -69,11 +69,11 @@ class RevisionInfo:
 
 
 def _validate(model: dict | ValidModel) -> dict:
-    """The store never holds an invalid model: raises server.errors.InputError, else normalises.
+    """The store never holds an invalid model: raises probewise.errors.InputError, else normalises.
 
-    A ``ValidModel`` has been checked already (``server.io.model_file.check_model``).
+    A ``ValidModel`` has been checked already (``probewise.io.model_file.check_model``).
     """
-    from server.io.model_file import ValidModel, validate_model
+    from probewise.io.model_file import ValidModel, validate_model
 
     if isinstance(model, ValidModel):
         return model.document

@@ -7,8 +7,8 @@ from pathlib import Path
 
 import sqlite_utils
 
-from server.store.db import transaction
-from server.store.projects import create_project
+from probewise.store.db import transaction
+from probewise.store.projects import create_project
 
 
 def seed_demo_if_empty(db: sqlite_utils.Database, demo_path: Path) -> int | None:

@@ -1,4 +1,4 @@
-"""The web app (FastAPI + Jinja2 + htmx). Entry point: ``server.web.app.create_app``.
+"""The web app (FastAPI + Jinja2 + htmx). Entry point: ``probewise.web.app.create_app``.
 
 Adding a workflow page (for example the Site step):
 - ``server/web/routes_site.py``: an ``APIRouter(include_in_schema=False)``; take the database

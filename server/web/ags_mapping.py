@@ -11,9 +11,9 @@ from __future__ import annotations
 import re
 from typing import Any
 
-from server.errors import InputError
-from server.io import probes_in
-from server.web.edits import FormReader
+from probewise.errors import InputError
+from probewise.io import probes_in
+from probewise.web.edits import FormReader
 
 # Words too common in soil descriptions to tell units apart when guessing the mapping.
 STOPWORDS = frozenset(

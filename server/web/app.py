@@ -15,9 +15,9 @@ from pathlib import Path
 from fastapi import FastAPI
 from fastapi.staticfiles import StaticFiles
 
-from server.resources import DEMO_PROJECT_PATH, STATIC_DIR
-from server.store import mark_interrupted_jobs, seed_demo_if_empty
-from server.web import (
+from probewise.resources import DEMO_PROJECT_PATH, STATIC_DIR
+from probewise.store import mark_interrupted_jobs, seed_demo_if_empty
+from probewise.web import (
     routes_api,
     routes_compare,
     routes_existing,
@@ -32,9 +32,9 @@ from server.web import (
     routes_schedule,
     routes_site,
 )
-from server.web.deps import database_of
-from server.web.errors import install_error_handlers
-from server.web.security import MAX_BODY_BYTES, SecurityMiddleware, allowed_hosts_for
+from probewise.web.deps import database_of
+from probewise.web.errors import install_error_handlers
+from probewise.web.security import MAX_BODY_BYTES, SecurityMiddleware, allowed_hosts_for
 
 log = logging.getLogger(__name__)
 

@@ -3,7 +3,7 @@
 matplotlib is imported inside the drawing function so the app starts fast; figures are built
 with the object API (no pyplot state), under a lock because the routes run in threads. The
 density and the mean and standard deviation come from the one registry of thickness shapes,
-server.core.priors (the numbers the model uses).
+probewise.core.priors (the numbers the model uses).
 """
 
 from __future__ import annotations
@@ -17,8 +17,8 @@ from functools import lru_cache
 
 import numpy as np
 
-from server.core.model import ThicknessRange
-from server.core.priors import thickness_distribution, thickness_moments
+from probewise.core.model import ThicknessRange
+from probewise.core.priors import thickness_distribution, thickness_moments
 
 # Palette of static/css/probewise.css: ink, teal, clay and their soft tints.
 INK = "#22303a"

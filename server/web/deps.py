@@ -9,7 +9,7 @@ from typing import Annotated
 import sqlite_utils
 from fastapi import Depends, Request
 
-from server.store import open_db
+from probewise.store import open_db
 
 _open_lock = threading.Lock()
 

@@ -9,8 +9,8 @@ from urllib.parse import quote
 import sqlite_utils
 from starlette.responses import Response
 
-from server.io.model_file import dump_model
-from server.store import export_project
+from probewise.io.model_file import dump_model
+from probewise.store import export_project
 
 
 def slug_of(name: str, fallback: str = "project") -> str:

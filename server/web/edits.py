@@ -3,7 +3,7 @@
 Every model-editing page (Site, Ground model, Existing, Methods) posts its forms here through
 ``run_edit``; the pages differ only in the edit function they pass and in how they render.
 
-- ``FormReader`` (``server.web.forms``) reads form fields leniently: a number that does not
+- ``FormReader`` (``probewise.web.forms``) reads form fields leniently: a number that does not
   parse is kept as typed (so the page shows it back) and recorded as a problem of its path.
 - ``run_edit(db, project_id, expected_revision, edit, ...)`` refuses a stale page (409, store
   unchanged), applies ``edit(model) -> message`` to a copy, checks the result once with the
@@ -11,7 +11,7 @@ Every model-editing page (Site, Ground model, Existing, Methods) posts its forms
   checked document with ``save_project`` (which does not check it again) and returns an
   ``EditResult`` the page renders: the new state and a notice, or the user's input with each
   problem beside its field (422).
-- ``FieldErrors`` (``server.web.field_errors``) places problems in templates:
+- ``FieldErrors`` (``probewise.web.field_errors``) places problems in templates:
   ``errors.at("units[2].thickness_m")`` gives the problems at that model path or below it;
   problems on parts the page does not show (an existing probe broken by reordering units) go
   to the edit's ``fallback`` slot.
@@ -32,25 +32,25 @@ import sqlite_utils
 from fastapi import Request
 from starlette.datastructures import FormData
 
-from server.errors import InputError
-from server.io.model_file import ValidModel, check_model
-from server.store import (
+from probewise.errors import InputError
+from probewise.io.model_file import ValidModel, check_model
+from probewise.store import (
     StoredProject,
     get_project,
     list_revisions,
     save_project,
     undo,
 )
-from server.store.errors import NothingToUndo, ProjectDeleted, StaleRevision
-from server.web.deps import Db
-from server.web.field_errors import NO_ERRORS, FieldErrors, field_errors, path_is_under
-from server.web.forms import (  # noqa: F401 - the pages read their forms through edits
+from probewise.store.errors import NothingToUndo, ProjectDeleted, StaleRevision
+from probewise.web.deps import Db
+from probewise.web.field_errors import NO_ERRORS, FieldErrors, field_errors, path_is_under
+from probewise.web.forms import (  # noqa: F401 - the pages read their forms through edits
     FormReader,
     PostedForm,
     expected_revision_of,
     read_form,
 )
-from server.web.templating import (
+from probewise.web.templating import (
     is_htmx,
     render,
     render_action,
@@ -246,7 +246,7 @@ def page_context(
     fragment_id: str,
 ) -> dict[str, Any]:
     """What every model-editing page's templates need (see templates/_edit_head.html)."""
-    from server.web.workflow import project_context
+    from probewise.web.workflow import project_context
 
     context = project_context(project, step)
     context.update(

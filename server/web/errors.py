@@ -13,9 +13,9 @@ from fastapi.exceptions import RequestValidationError
 from starlette.exceptions import HTTPException as StarletteHTTPException
 from starlette.responses import JSONResponse, Response
 
-from server.core.model import ModelLimitError
-from server.errors import InputError
-from server.store.errors import (
+from probewise.core.model import ModelLimitError
+from probewise.errors import InputError
+from probewise.store.errors import (
     JobNotFound,
     NothingToUndo,
     ProjectDeleted,
@@ -24,7 +24,7 @@ from server.store.errors import (
     StaleRevision,
     StoreError,
 )
-from server.web.templating import is_htmx, render
+from probewise.web.templating import is_htmx, render
 
 log = logging.getLogger(__name__)
 

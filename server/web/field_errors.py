@@ -12,7 +12,7 @@ from collections.abc import Callable, Iterable
 from dataclasses import dataclass
 from typing import Any
 
-from server.errors import InputError
+from probewise.errors import InputError
 
 
 def path_is_under(path: str, prefix: str) -> bool:

@@ -12,8 +12,8 @@ from typing import Annotated, Any
 from fastapi import Depends, Request
 from starlette.datastructures import FormData, UploadFile
 
-from server.errors import InputError
-from server.numbers import read_number
+from probewise.errors import InputError
+from probewise.numbers import read_number
 
 FORM_MAX_FIELDS = 5000  # a precision table or a zone's overrides: far below this
 FORM_MAX_FILES = 4

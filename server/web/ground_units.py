@@ -5,9 +5,9 @@ from __future__ import annotations
 
 from typing import Any
 
-from server.core.model import ThicknessRange
-from server.core.priors import DEFAULT_SHAPE, presence_moments, thickness_moments
-from server.web.summary import depth_limits
+from probewise.core.model import ThicknessRange
+from probewise.core.priors import DEFAULT_SHAPE, presence_moments, thickness_moments
+from probewise.web.summary import depth_limits
 
 
 def moments_of(thickness: Any) -> tuple[float, float] | None:

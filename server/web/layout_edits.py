@@ -9,9 +9,9 @@ from typing import Any
 import numpy as np
 import shapely
 
-from server.app.project import layout_position, model_layout
-from server.io.model_file import to_shapely
-from server.web.edits import EditRefused
+from probewise.app.project import layout_position, model_layout
+from probewise.io.model_file import to_shapely
+from probewise.web.edits import EditRefused
 
 
 def layout_index(model: dict[str, Any], name: str) -> int:

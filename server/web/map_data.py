@@ -5,7 +5,7 @@ from __future__ import annotations
 import math
 from typing import Any
 
-from server.web.site_map import feature_bounds, label_point, polygon_rings
+from probewise.web.site_map import feature_bounds, label_point, polygon_rings
 
 
 def build_map_data(model: dict, *, include_layouts: bool = True) -> dict[str, Any]:

@@ -24,7 +24,7 @@ from matplotlib.patches import PathPatch
 from matplotlib.path import Path as MplPath
 from matplotlib.ticker import FuncFormatter
 
-from server.web.plot_style import (
+from probewise.web.plot_style import (
     AREA_EDGE,
     CHOSEN,
     CURVE,
@@ -41,8 +41,8 @@ from server.web.plot_style import (
     draw_lock,
     to_bytes,
 )
-from server.web.section_plot import SectionBand, SectionProbe, depth_section
-from server.web.site_map import polygon_rings
+from probewise.web.section_plot import SectionBand, SectionProbe, depth_section
+from probewise.web.site_map import polygon_rings
 
 __all__ = [
     "ChartCurve",

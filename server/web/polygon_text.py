@@ -5,8 +5,8 @@ from __future__ import annotations
 
 import re
 
-from server.errors import InputError
-from server.numbers import read_number
+from probewise.errors import InputError
+from probewise.numbers import read_number
 
 MAX_TEXT_POSITIONS = 20_000
 MULTI_SEPARATOR = "---"

@@ -7,10 +7,10 @@ import numpy as np
 from fastapi import Request
 from starlette.responses import Response
 
-from server.app.results import ProjectResults
-from server.core.evaluate import LayoutResult
-from server.errors import InputError
-from server.web import plots
+from probewise.app.results import ProjectResults
+from probewise.core.evaluate import LayoutResult
+from probewise.errors import InputError
+from probewise.web import plots
 
 IMAGE_CACHE = "private, max-age=3600"
 

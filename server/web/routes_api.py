@@ -17,11 +17,11 @@ from fastapi import Path as PathParam
 from pydantic import BaseModel, Field
 from starlette.responses import JSONResponse, Response
 
-from server.app.contract import evaluation_json
-from server.app.results import project_results
-from server.core.evaluate import Evaluation
-from server.errors import InputError
-from server.store import (
+from probewise.app.contract import evaluation_json
+from probewise.app.results import project_results
+from probewise.core.evaluate import Evaluation
+from probewise.errors import InputError
+from probewise.store import (
     create_project,
     delete_project,
     duplicate_project,
@@ -32,8 +32,8 @@ from server.store import (
     save_project,
     undo,
 )
-from server.web.deps import Db
-from server.web.downloads import model_file_response
+from probewise.web.deps import Db
+from probewise.web.downloads import model_file_response
 
 SQLITE_MAX_INTEGER = 2**63 - 1  # a larger id cannot even be looked up
 

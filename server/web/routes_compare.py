@@ -3,7 +3,7 @@ the uncertainty before and after the chosen option, and a section along a line.
 
 The page itself answers at once: it is a shell whose heavy part (``_compare_results.html``)
 loads with ``hx-get`` on load, computed from the shared per-revision results
-(``server.app.results``). Figures are images served by their own routes and cached per revision:
+(``probewise.app.results``). Figures are images served by their own routes and cached per revision:
 ``chart.svg``, ``map.png`` (one boundary, before and after) and ``section.png``.
 """
 
@@ -17,18 +17,18 @@ import sqlite_utils
 from fastapi import APIRouter, Request
 from starlette.responses import Response
 
-from server.app.layouts import KIND_LABELS
-from server.app.levels import history_limits
-from server.app.results import ProjectResults, project_results, results_of
-from server.app.sections import SectionLine, default_section, read_section
-from server.core.bounds import truncated_quantiles
-from server.core.evaluate import LayoutResult
-from server.errors import InputError
-from server.store import get_project
-from server.web import plots
-from server.web.deps import Db
-from server.web.map_data import map_data
-from server.web.result_figures import (
+from probewise.app.layouts import KIND_LABELS
+from probewise.app.levels import history_limits
+from probewise.app.results import ProjectResults, project_results, results_of
+from probewise.app.sections import SectionLine, default_section, read_section
+from probewise.core.bounds import truncated_quantiles
+from probewise.core.evaluate import LayoutResult
+from probewise.errors import InputError
+from probewise.store import get_project
+from probewise.web import plots
+from probewise.web.deps import Db
+from probewise.web.map_data import map_data
+from probewise.web.result_figures import (
     chosen_layout,
     current_revision_named,
     existing_points,
@@ -37,8 +37,8 @@ from server.web.result_figures import (
     raster_of,
     section_layout,
 )
-from server.web.templating import render, render_page_or_fragment
-from server.web.workflow import project_context
+from probewise.web.templating import render, render_page_or_fragment
+from probewise.web.workflow import project_context
 
 router = APIRouter(include_in_schema=False)
 

@@ -3,7 +3,7 @@
 Rows are edited one at a time (``?edit=N`` opens row N), added and deleted; probes come in
 from CSV/XLSX tables (preview, then import) or AGS4/AGS3 files (a mapping step assigns each
 geology code to a project unit, or text rules place layers by their description, and each
-location type gets a method, then preview, then import) through server.io.probes_in. Both
+location type gets a method, then preview, then import) through probewise.io.probes_in. Both
 previews show each unit's thickness in the holes (server/app/thickness_stats.py). Probes
 outside the site are listed and only left out when the user ticks that box; a bad file
 stores nothing.
@@ -17,13 +17,13 @@ import sqlite_utils
 from fastapi import APIRouter, Request
 from starlette.responses import Response
 
-from server.app.thickness_stats import thickness_view
-from server.errors import InputError
-from server.io import probes_in
-from server.store import StoredProject, get_project
-from server.web.ags_mapping import ags4_state
-from server.web.deps import Db
-from server.web.edits import (
+from probewise.app.thickness_stats import thickness_view
+from probewise.errors import InputError
+from probewise.io import probes_in
+from probewise.store import StoredProject, get_project
+from probewise.web.ags_mapping import ags4_state
+from probewise.web.deps import Db
+from probewise.web.edits import (
     EditPage,
     EditRefused,
     EditResult,
@@ -32,7 +32,7 @@ from server.web.edits import (
     PostedForm,
     item_at,
 )
-from server.web.map_data import build_map_data
+from probewise.web.map_data import build_map_data
 
 router = APIRouter(include_in_schema=False)
 

@@ -18,13 +18,13 @@ import sqlite_utils
 from fastapi import APIRouter, HTTPException, Request
 from starlette.responses import Response
 
-from server.core.correlation import CORRELATION_MODELS
-from server.core.priors import DEFAULT_SHAPE, THICKNESS_SHAPES
-from server.errors import InputError
-from server.store import StoredProject, get_project, get_revision
-from server.web.charts import thickness_chart_svg, thickness_charts
-from server.web.deps import Db
-from server.web.edits import (
+from probewise.core.correlation import CORRELATION_MODELS
+from probewise.core.priors import DEFAULT_SHAPE, THICKNESS_SHAPES
+from probewise.errors import InputError
+from probewise.store import StoredProject, get_project, get_revision
+from probewise.web.charts import thickness_chart_svg, thickness_charts
+from probewise.web.deps import Db
+from probewise.web.edits import (
     EditPage,
     EditRefused,
     EditResult,
@@ -32,14 +32,14 @@ from server.web.edits import (
     PostedForm,
     item_at,
 )
-from server.web.ground_units import (
+from probewise.web.ground_units import (
     moments_of,
     rename_unit,
     safe_depth_limits,
     site_moments,
     unit_references,
 )
-from server.web.polygon_text import parse_polygon_text, polygon_text
+from probewise.web.polygon_text import parse_polygon_text, polygon_text
 
 router = APIRouter(include_in_schema=False)
 

@@ -14,18 +14,18 @@ import sqlite_utils
 from fastapi import APIRouter, Request
 from starlette.responses import Response
 
-from server.app.levels import history_limits
-from server.app.project import core_project
-from server.app.results import project_results
-from server.core.grid import EmptyGridError, evaluation_grid_capped
-from server.errors import InputError
-from server.io.model_file import validate_model
-from server.io.model_history import SECTIONS, resolve_level
-from server.store import StoredProject
-from server.web import plots
-from server.web.deps import Db
-from server.web.edits import EditPage, EditResult, FormReader, PostedForm
-from server.web.result_figures import existing_points, image_response
+from probewise.app.levels import history_limits
+from probewise.app.project import core_project
+from probewise.app.results import project_results
+from probewise.core.grid import EmptyGridError, evaluation_grid_capped
+from probewise.errors import InputError
+from probewise.io.model_file import validate_model
+from probewise.io.model_history import SECTIONS, resolve_level
+from probewise.store import StoredProject
+from probewise.web import plots
+from probewise.web.deps import Db
+from probewise.web.edits import EditPage, EditResult, FormReader, PostedForm
+from probewise.web.result_figures import existing_points, image_response
 
 router = APIRouter(include_in_schema=False)
 MAX_TEXT = 2_000_000  # characters of the JSON text (20,000 survey points fit)

@@ -1,6 +1,6 @@
 """The optimiser as a background job: start, watch (a progress bar that polls), cancel.
 
-``POST /projects/{id}/optimise`` starts a job (``server.app.optimiser_jobs``); the page polls
+``POST /projects/{id}/optimise`` starts a job (``probewise.app.optimiser_jobs``); the page polls
 ``GET /projects/{id}/jobs/{job}`` every second (``_options_job.html``) until the job ends.
 A test checks that pages keep answering while the optimiser runs.
 """
@@ -14,24 +14,24 @@ import sqlite_utils
 from fastapi import APIRouter, Request
 from starlette.responses import RedirectResponse, Response
 
-from server.app.optimiser_jobs import (
+from probewise.app.optimiser_jobs import (
     KIND,
     latest_optimiser_job,
     running_job_of,
     start_optimiser,
 )
-from server.errors import InputError
-from server.numbers import to_number
-from server.store import (
+from probewise.errors import InputError
+from probewise.numbers import to_number
+from probewise.store import (
     Job,
     get_job,
     get_project,
     request_cancel,
 )
-from server.store.errors import JobNotFound
-from server.web.deps import Db
-from server.web.edits import FormReader, PostedForm
-from server.web.templating import is_htmx, render
+from probewise.store.errors import JobNotFound
+from probewise.web.deps import Db
+from probewise.web.edits import FormReader, PostedForm
+from probewise.web.templating import is_htmx, render
 
 router = APIRouter(include_in_schema=False)
 

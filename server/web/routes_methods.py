@@ -13,11 +13,11 @@ import sqlite_utils
 from fastapi import APIRouter, Request
 from starlette.responses import Response
 
-from server.io.model_file import METHOD_KINDS
-from server.store import StoredProject
-from server.web.deps import Db
-from server.web.edits import EditPage, EditRefused, EditResult, FormReader, PostedForm, item_at
-from server.web.templating import kind_label
+from probewise.io.model_file import METHOD_KINDS
+from probewise.store import StoredProject
+from probewise.web.deps import Db
+from probewise.web.edits import EditPage, EditRefused, EditResult, FormReader, PostedForm, item_at
+from probewise.web.templating import kind_label
 
 router = APIRouter(include_in_schema=False)
 

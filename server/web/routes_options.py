@@ -6,7 +6,7 @@ whole, so the layouts list, the probe table, the revision and the undo button al
 The Leaflet map inside it (static/js/sitemap.js) is drawn again after each swap, keeping its
 view, and static/js/options.js adds the layout's probes from the JSON the fragment carries.
 
-Probe edits go through ``server.web.edits.run_edit``: a stale page is refused (409) and an
+Probe edits go through ``probewise.web.edits.run_edit``: a stale page is refused (409) and an
 invalid result (a probe outside the site, a depth beyond the method's reach) is refused
 with the validator's message (422); the store is unchanged either way. A probe inside an
 exclusion is allowed by the model file, so it is saved with a visible warning.
@@ -22,16 +22,16 @@ import sqlite_utils
 from fastapi import APIRouter, Request
 from starlette.responses import Response
 
-from server.app.layouts import KIND_LABELS, layout_kind
-from server.app.optimiser_jobs import latest_optimiser_job
-from server.app.project import layout_position, model_layout
-from server.app.results import results_of
-from server.core.options import GUIDANCE_SPACINGS, guidance_grid_layout
-from server.errors import InputError
-from server.io.model_file import unique_layout_name
-from server.store import StoredProject, get_project
-from server.web.deps import Db
-from server.web.edits import (
+from probewise.app.layouts import KIND_LABELS, layout_kind
+from probewise.app.optimiser_jobs import latest_optimiser_job
+from probewise.app.project import layout_position, model_layout
+from probewise.app.results import results_of
+from probewise.core.options import GUIDANCE_SPACINGS, guidance_grid_layout
+from probewise.errors import InputError
+from probewise.io.model_file import unique_layout_name
+from probewise.store import StoredProject, get_project
+from probewise.web.deps import Db
+from probewise.web.edits import (
     EditResult,
     FormReader,
     PostedForm,
@@ -40,7 +40,7 @@ from server.web.edits import (
     run_edit,
     run_undo,
 )
-from server.web.layout_edits import (
+from probewise.web.layout_edits import (
     exclusion_hits,
     inside_site,
     layout_index,
@@ -49,9 +49,9 @@ from server.web.layout_edits import (
     next_probe_id,
     probe_index,
 )
-from server.web.map_data import map_data
-from server.web.summary import layout_rows
-from server.web.templating import kind_label, render_action, render_page_or_fragment
+from probewise.web.map_data import map_data
+from probewise.web.summary import layout_rows
+from probewise.web.templating import kind_label, render_action, render_page_or_fragment
 
 router = APIRouter(include_in_schema=False)
 

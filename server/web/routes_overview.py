@@ -12,11 +12,11 @@ import sqlite_utils
 from fastapi import APIRouter, Form, Request
 from starlette.responses import Response
 
-from server.store import get_project, list_revisions, restore_revision, undo
-from server.store.errors import NothingToUndo, StaleRevision
-from server.web.deps import Db
-from server.web.site_map import build_site_map
-from server.web.summary import (
+from probewise.store import get_project, list_revisions, restore_revision, undo
+from probewise.store.errors import NothingToUndo, StaleRevision
+from probewise.web.deps import Db
+from probewise.web.site_map import build_site_map
+from probewise.web.summary import (
     boundary_names,
     boundary_rows,
     existing_by_method,
@@ -25,8 +25,8 @@ from server.web.summary import (
     resolution_rows,
     zone_overrides,
 )
-from server.web.templating import render_action, render_page_or_fragment
-from server.web.workflow import project_context
+from probewise.web.templating import render_action, render_page_or_fragment
+from probewise.web.workflow import project_context
 
 router = APIRouter(include_in_schema=False)
 

@@ -12,10 +12,10 @@ import sqlite_utils
 from fastapi import APIRouter, File, Request, UploadFile
 from starlette.responses import RedirectResponse, Response
 
-from server.app.new_project import STARTING_POINTS, new_model
-from server.errors import InputError
-from server.io.model_file import parse_model_text
-from server.store import (
+from probewise.app.new_project import STARTING_POINTS, new_model
+from probewise.errors import InputError
+from probewise.io.model_file import parse_model_text
+from probewise.store import (
     create_project,
     delete_project,
     duplicate_project,
@@ -23,11 +23,11 @@ from server.store import (
     list_projects,
     restore_project,
 )
-from server.web.deps import Db
-from server.web.downloads import model_file_response
-from server.web.edits import PostedForm
-from server.web.polygon_text import parse_polygon_text
-from server.web.templating import is_htmx, render_action, render_page_or_fragment
+from probewise.web.deps import Db
+from probewise.web.downloads import model_file_response
+from probewise.web.edits import PostedForm
+from probewise.web.polygon_text import parse_polygon_text
+from probewise.web.templating import is_htmx, render_action, render_page_or_fragment
 
 router = APIRouter(include_in_schema=False)
 

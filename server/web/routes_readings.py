@@ -15,14 +15,14 @@ import sqlite_utils
 from fastapi import APIRouter, Request
 from starlette.responses import Response
 
-from server.app.fit import adopt_fit, fit_json, project_fit
-from server.app.readings import ReadingsReport, project_readings, reading_notes
-from server.app.results import project_results
-from server.store import get_project
-from server.web.deps import Db
-from server.web.edits import PostedForm, expected_revision_of, run_edit
-from server.web.templating import render, render_page_or_fragment
-from server.web.workflow import project_context
+from probewise.app.fit import adopt_fit, fit_json, project_fit
+from probewise.app.readings import ReadingsReport, project_readings, reading_notes
+from probewise.app.results import project_results
+from probewise.store import get_project
+from probewise.web.deps import Db
+from probewise.web.edits import PostedForm, expected_revision_of, run_edit
+from probewise.web.templating import render, render_page_or_fragment
+from probewise.web.workflow import project_context
 
 router = APIRouter(include_in_schema=False)
 

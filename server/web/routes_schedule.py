@@ -21,24 +21,24 @@ import sqlite_utils
 from fastapi import APIRouter, Request
 from starlette.responses import Response
 
-from server.app.project import model_layout
-from server.app.results import ProjectResults, project_results, results_of
-from server.app.schedule import Schedule, build_schedule, main_boundary_index, probe_rows
-from server.errors import InputError
-from server.io.exports import write_schedule_csv, write_schedule_geojson, write_schedule_gpkg
-from server.store import get_project
-from server.web import plots
-from server.web.deps import Db
-from server.web.downloads import attachment_headers, slug_of
-from server.web.result_figures import (
+from probewise.app.project import model_layout
+from probewise.app.results import ProjectResults, project_results, results_of
+from probewise.app.schedule import Schedule, build_schedule, main_boundary_index, probe_rows
+from probewise.errors import InputError
+from probewise.io.exports import write_schedule_csv, write_schedule_geojson, write_schedule_gpkg
+from probewise.store import get_project
+from probewise.web import plots
+from probewise.web.deps import Db
+from probewise.web.downloads import attachment_headers, slug_of
+from probewise.web.result_figures import (
     chosen_layout,
     current_revision_named,
     existing_points,
     image_response,
     planned_points,
 )
-from server.web.templating import kind_label, render_page_or_fragment
-from server.web.workflow import project_context
+from probewise.web.templating import kind_label, render_page_or_fragment
+from probewise.web.workflow import project_context
 
 router = APIRouter(include_in_schema=False)
 

@@ -6,7 +6,7 @@ two numbers); the ring is closed automatically. A blank line starts a hole in th
 above it; for the site outline, a line "---" starts a further polygon (a MultiPolygon).
 
 GET /projects/{id}/site.json serves what static/js/sitemap.js draws
-(``server.web.map_data``) for any page.
+(``probewise.web.map_data``) for any page.
 """
 
 from __future__ import annotations
@@ -23,14 +23,14 @@ import sqlite_utils
 from fastapi import APIRouter, Request
 from starlette.responses import JSONResponse, Response
 
-from server.core.grid import MAX_GRID_CELLS as CORE_MAX_GRID_CELLS
-from server.errors import InputError
-from server.io import geo_io
-from server.store import StoredProject, get_project
-from server.web.deps import Db
-from server.web.edits import EditPage, EditResult, FormReader, ImportArea, PostedForm, item_at
-from server.web.map_data import build_map_data
-from server.web.polygon_text import parse_polygon_text, polygon_text
+from probewise.core.grid import MAX_GRID_CELLS as CORE_MAX_GRID_CELLS
+from probewise.errors import InputError
+from probewise.io import geo_io
+from probewise.store import StoredProject, get_project
+from probewise.web.deps import Db
+from probewise.web.edits import EditPage, EditResult, FormReader, ImportArea, PostedForm, item_at
+from probewise.web.map_data import build_map_data
+from probewise.web.polygon_text import parse_polygon_text, polygon_text
 
 router = APIRouter(include_in_schema=False)
 
@@ -201,7 +201,7 @@ def save_settings(request: Request, project_id: int, form: PostedForm, db: Db) -
         old_crs = model.get("crs")
         if crs_text != old_crs:
             if crs_text and old_crs and reader.raw("crs_change") == "reproject":
-                from server.io.model_file import validate_all
+                from probewise.io.model_file import validate_all
 
                 problems = [p for p in validate_all({**model, "crs": crs_text}) if p.field == "crs"]
                 if problems:

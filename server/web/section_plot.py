@@ -8,7 +8,7 @@ from dataclasses import dataclass
 import numpy as np
 from matplotlib.figure import Figure
 
-from server.web.plot_style import (
+from probewise.web.plot_style import (
     BOUNDARY_COLOURS,
     INK,
     INK_SOFT,

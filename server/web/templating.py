@@ -19,9 +19,9 @@ from fastapi import Request
 from fastapi.templating import Jinja2Templates
 from starlette.responses import RedirectResponse, Response
 
-from server.caution import CAUTION
-from server.core.priors import DEFAULT_SHAPE, THICKNESS_SHAPES
-from server.resources import STATIC_DIR, TEMPLATES_DIR
+from probewise.caution import CAUTION
+from probewise.core.priors import DEFAULT_SHAPE, THICKNESS_SHAPES
+from probewise.resources import STATIC_DIR, TEMPLATES_DIR
 
 METHOD_KIND_LABELS = {
     "borehole": "Borehole",

@@ -91,7 +91,7 @@ def nav_items(project_id: int, current_key: str) -> list[NavItem]:
 def project_context(project: Any, step_key: str) -> dict[str, Any]:
     """What every project page's template needs: the project, its model and the nav bar.
 
-    ``project`` is a server.store.StoredProject. ``deleted`` projects are read-only: pages
+    ``project`` is a probewise.store.StoredProject. ``deleted`` projects are read-only: pages
     should hide their edit controls (the store refuses changes anyway). ``can_undo`` is False
     when undo has nothing to take back: the undo buttons are then disabled.
     """

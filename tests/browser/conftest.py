@@ -18,7 +18,7 @@ from pathlib import Path
 import httpx
 import pytest
 
-from server.local_server import ServerStartError, free_port, start_server, stop_server
+from probewise.local_server import ServerStartError, free_port, start_server, stop_server
 
 ROOT = Path(__file__).resolve().parents[2]
 CHROMIUM = Path("/usr/bin/chromium")

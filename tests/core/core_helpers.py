@@ -8,7 +8,7 @@ from pathlib import Path
 
 import numpy as np
 
-from server.core.model import Correlation, GroundModel, ThicknessRange, Unit
+from probewise.core.model import Correlation, GroundModel, ThicknessRange, Unit
 
 DATA = Path(__file__).resolve().parents[1] / "data"
 

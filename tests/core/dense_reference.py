@@ -2,7 +2,7 @@
 
 It reads the model-file dict directly (not the core dataclasses), builds dense covariance
 matrices entry by entry, solves with ``np.linalg.solve`` and takes truncated quantiles from
-``scipy.stats.truncnorm``. Slow and simple on purpose: the fast path in ``server.core`` is
+``scipy.stats.truncnorm``. Slow and simple on purpose: the fast path in ``probewise.core`` is
 checked against it. Source of every formula: docs/model.md "Probability model" and "Numbers
 reported for a layout"; cells as areas (block kriging) after Journel and Huijbregts, Mining
 Geostatistics (1978): the variance of a cell average is the mean of the covariances of all

@@ -6,9 +6,9 @@ import dataclasses
 
 import numpy as np
 
-from server.core.model import Correlation, GroundModel, ThicknessRange, Unit
-from server.core.posterior import Observations
-from server.core.readings import observation_moments
+from probewise.core.model import Correlation, GroundModel, ThicknessRange, Unit
+from probewise.core.posterior import Observations
+from probewise.core.readings import observation_moments
 
 TRUTH = {
     "spread_multiplier": (1.5, 0.8),

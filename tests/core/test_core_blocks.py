@@ -22,12 +22,12 @@ from core_helpers import one_unit_ground, tiny_dict
 from dense_reference import Dense
 from scipy.integrate import dblquad
 
-from server.app.to_core import to_core
-from server.core.blocks import SUBPOINTS_PER_SIDE, cell_blocks
-from server.core.correlation import correlate
-from server.core.evaluate import GridEvaluator
-from server.core.model import Layout, ModelLimitError, PlannedProbe
-from server.io.model_file import validate_model
+from probewise.app.to_core import to_core
+from probewise.core.blocks import SUBPOINTS_PER_SIDE, cell_blocks
+from probewise.core.correlation import correlate
+from probewise.core.evaluate import GridEvaluator
+from probewise.core.model import Layout, ModelLimitError, PlannedProbe
+from probewise.io.model_file import validate_model
 
 TOL = 1e-9
 
@@ -169,7 +169,7 @@ def test_gain_hardly_changes_when_probes_move_a_quarter_of_a_cell():
 
 def test_cell_blocks_do_not_depend_on_the_chunk_size(monkeypatch):
     """Averaging over the sub-points chunk by chunk gives the same covariances."""
-    import server.core.blocks as blocks_module
+    import probewise.core.blocks as blocks_module
 
     model = copy.deepcopy(tiny_dict())
     project = to_core(validate_model(model))
@@ -182,9 +182,9 @@ def test_cell_blocks_do_not_depend_on_the_chunk_size(monkeypatch):
 
 @pytest.mark.parametrize("model", ["exponential", "gaussian", "spherical"])
 def test_in_place_correlations_equal_the_correlation_models(model):
-    """The hot loop's in-place correlations equal server.core.correlation.correlate (itself
+    """The hot loop's in-place correlations equal probewise.core.correlation.correlate (itself
     checked against scikit-learn and gstools in test_core_reference_libraries.py)."""
-    from server.core.blocks import _correlate_into
+    from probewise.core.blocks import _correlate_into
 
     h = np.linspace(0.0, 100.0, 2001).reshape(1, -1)
     out = np.empty_like(h)
@@ -195,7 +195,7 @@ def test_in_place_correlations_equal_the_correlation_models(model):
 def test_posterior_grid_export_gives_cell_averages():
     """`probewise export --what posterior` writes the cell averages (dense reference), not
     the depths at the cell centres."""
-    from server.commands.export import posterior_grid
+    from probewise.commands.export import posterior_grid
 
     model = validate_model(tiny_with_split_zone())
     dense = Dense(model)

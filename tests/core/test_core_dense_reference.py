@@ -11,10 +11,10 @@ import pytest
 from core_helpers import shift_model, tiny_dict
 from dense_reference import Dense
 
-from server.app.contract import evaluation_json
-from server.app.to_core import core_layout, to_core
-from server.core.analysis import ProjectAnalysis
-from server.core.evaluate import evaluate_project
+from probewise.app.contract import evaluation_json
+from probewise.app.to_core import core_layout, to_core
+from probewise.core.analysis import ProjectAnalysis
+from probewise.core.evaluate import evaluate_project
 
 TOL = 1e-6
 

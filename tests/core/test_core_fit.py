@@ -13,9 +13,9 @@ from scipy.stats import multivariate_normal
 from test_core_readings import random_readings, three_units
 from threadpoolctl import threadpool_limits
 
-from server.core.fit import _Problem, fit_model, log_likelihood, lonely_maximum_warnings
-from server.core.posterior import Observations
-from server.core.readings import observation_moments
+from probewise.core.fit import _Problem, fit_model, log_likelihood, lonely_maximum_warnings
+from probewise.core.posterior import Observations
+from probewise.core.readings import observation_moments
 
 ORIGIN = (0.0, 0.0)
 

@@ -6,11 +6,11 @@ import numpy as np
 import pytest
 from core_helpers import tiny_dict
 
-from server.app.to_core import core_polygon, to_core
-from server.core.evaluate import evaluate_project, information_gain_bits, pareto_flags
-from server.core.geometry import points_in_polygon, polygon_area_m2
-from server.core.grid import EmptyGridError, evaluation_grid
-from server.core.model import Layout, PlannedProbe, Polygon, Site
+from probewise.app.to_core import core_polygon, to_core
+from probewise.core.evaluate import evaluate_project, information_gain_bits, pareto_flags
+from probewise.core.geometry import points_in_polygon, polygon_area_m2
+from probewise.core.grid import EmptyGridError, evaluation_grid
+from probewise.core.model import Layout, PlannedProbe, Polygon, Site
 
 SHAPE_WITH_HOLE = {
     "type": "MultiPolygon",
@@ -65,7 +65,7 @@ def test_grid_of_tiny_model():
 
 
 def test_grid_weight_is_the_heaviest_area_else_one():
-    from server.core.model import AreaOfInterest
+    from probewise.core.model import AreaOfInterest
 
     outline = Polygon((np.array([[0, 0], [10, 0], [10, 10], [0, 10], [0, 0]], float),))
     light = AreaOfInterest(

@@ -11,9 +11,9 @@ import pytest
 from core_helpers import tiny_dict
 from dense_reference import Dense
 
-from server.app.to_core import to_core
-from server.core.analysis import ProjectAnalysis
-from server.core.model import Layout, PlannedProbe
+from probewise.app.to_core import to_core
+from probewise.core.analysis import ProjectAnalysis
+from probewise.core.model import Layout, PlannedProbe
 
 SPOT = (100.0, 60.0)
 

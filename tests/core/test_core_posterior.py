@@ -15,12 +15,12 @@ from core_helpers import one_unit_ground, tiny_dict
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from server.app.to_core import to_core
-from server.core.analysis import ProjectAnalysis
-from server.core.bounds import depth_bounds
-from server.core.covariance import boundary_covariance, cross_covariance_all
-from server.core.field import unit_fields
-from server.core.model import (
+from probewise.app.to_core import to_core
+from probewise.core.analysis import ProjectAnalysis
+from probewise.core.bounds import depth_bounds
+from probewise.core.covariance import boundary_covariance, cross_covariance_all
+from probewise.core.field import unit_fields
+from probewise.core.model import (
     Correlation,
     DepthBound,
     GroundModel,
@@ -31,7 +31,7 @@ from server.core.model import (
     Unit,
     Zone,
 )
-from server.core.posterior import Observations, condition
+from probewise.core.posterior import Observations, condition
 
 
 def square(x0, y0, x1, y1) -> Polygon:

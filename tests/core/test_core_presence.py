@@ -13,10 +13,10 @@ import numpy as np
 import pytest
 from scipy import integrate, stats
 
-from server.core.bounds import depth_bounds
-from server.core.field import prior_boundary_moments, unit_fields
-from server.core.model import Correlation, GroundModel, Polygon, ThicknessRange, Unit, Zone
-from server.core.priors import presence_moments, thickness_moments
+from probewise.core.bounds import depth_bounds
+from probewise.core.field import prior_boundary_moments, unit_fields
+from probewise.core.model import Correlation, GroundModel, Polygon, ThicknessRange, Unit, Zone
+from probewise.core.priors import presence_moments, thickness_moments
 
 
 def _scipy_distribution(rng: ThicknessRange):

@@ -10,9 +10,9 @@ import pytest
 from core_helpers import one_unit_ground
 from scipy import stats
 
-from server.core.model import Correlation, GroundModel, ThicknessRange, Unit
-from server.core.posterior import Observations, condition
-from server.core.readings import (
+from probewise.core.model import Correlation, GroundModel, ThicknessRange, Unit
+from probewise.core.posterior import Observations, condition
+from probewise.core.readings import (
     check_readings,
     observation_moments,
     summarise_boundary,
@@ -166,7 +166,7 @@ def test_verdicts_tell_over_confidence_from_one_conflicting_reading():
 
 
 def test_a_flagged_reading_among_others_is_told_from_one_where_data_is_lacking():
-    from server.core.readings import reading_note
+    from probewise.core.readings import reading_note
 
     ground = one_unit_ground("exponential", 100.0, 5.0, 1.0)
     # a cluster of agreeing readings with one odd one inside it, and a lone far probe

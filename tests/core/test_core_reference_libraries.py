@@ -18,11 +18,11 @@ import pytest
 from core_helpers import one_unit_ground
 from scipy import stats
 
-from server.core.bounds import depth_bounds, truncated_quantiles
-from server.core.correlation import correlate
-from server.core.model import Correlation, GroundModel, Polygon, ThicknessRange, Unit, Zone
-from server.core.posterior import Observations, condition
-from server.core.priors import thickness_moments
+from probewise.core.bounds import depth_bounds, truncated_quantiles
+from probewise.core.correlation import correlate
+from probewise.core.model import Correlation, GroundModel, Polygon, ThicknessRange, Unit, Zone
+from probewise.core.posterior import Observations, condition
+from probewise.core.priors import thickness_moments
 
 MEAN, STD = 4.0, 1.3
 MODELS = ["exponential", "gaussian", "spherical"]

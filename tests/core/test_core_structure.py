@@ -12,16 +12,16 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from test_core_readings import three_units
 
-from server.core.correlation import correlate, correlate_unit
-from server.core.covariance import boundary_covariance, cross_covariance_all
-from server.core.field import (
+from probewise.core.correlation import correlate, correlate_unit
+from probewise.core.covariance import boundary_covariance, cross_covariance_all
+from probewise.core.field import (
     boundary_loadings,
     lag0_correlation,
     prior_boundary_moments,
     unit_fields,
 )
-from server.core.matern import MATERN32_SCALE, MATERN52_SCALE
-from server.core.model import Correlation, GroundModel
+from probewise.core.matern import MATERN32_SCALE, MATERN52_SCALE
+from probewise.core.model import Correlation, GroundModel
 
 H = np.array([0.0, 1e-3, 1.0, 7.5, 30.0, 80.0, 100.0, 160.0, 400.0])
 

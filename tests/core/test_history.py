@@ -12,16 +12,16 @@ from hypothesis import strategies as st
 from scipy.integrate import quad
 from scipy.interpolate import LinearNDInterpolator
 
-from server.core.bounds import BoundsConflictError, bounds_report, depth_bounds
-from server.core.history import (
+from probewise.core.bounds import BoundsConflictError, bounds_report, depth_bounds
+from probewise.core.history import (
     NO_BOUND,
     OUTSIDE,
     consolidation_settlement_m,
     former_surface,
     reference_level_m,
 )
-from server.core.levels import ground_level_at
-from server.core.model import (
+from probewise.core.levels import ground_level_at
+from probewise.core.model import (
     Correlation,
     DepthBound,
     FormerEnvironment,

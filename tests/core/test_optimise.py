@@ -26,11 +26,11 @@ from core_helpers import tiny_dict
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from server.app.to_core import to_core
-from server.core.analysis import ProjectAnalysis
-from server.core.evaluate import GridEvaluator, evaluate_project
-from server.core.geometry import points_in_polygon
-from server.core.optimise import (
+from probewise.app.to_core import to_core
+from probewise.core.analysis import ProjectAnalysis
+from probewise.core.evaluate import GridEvaluator, evaluate_project
+from probewise.core.geometry import points_in_polygon
+from probewise.core.optimise import (
     GreedyProblem,
     OptimiseCancelled,
     OptimiseError,
@@ -45,13 +45,13 @@ from server.core.optimise import (
     prepare_optimisation,
     upper_envelope,
 )
-from server.core.optimise_reference import (
+from probewise.core.optimise_reference import (
     cell_prior_variance,
     cell_subpoints,
     cell_variance,
     greedy_reference,
 )
-from server.io.model_file import validate_model
+from probewise.io.model_file import validate_model
 
 ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT / "benchmarks"))
@@ -134,7 +134,7 @@ def test_state_after_a_hand_made_layout_equals_a_fresh_solve():
     # Exact low-rank update: the target variances after conditioning on a hand-made layout
     # equal a fresh Gaussian conditioning of the targets on existing + planned readings
     # (targets are cell averages: conditioned at the sub-points and averaged by the
-    # brute-force reference, not by server.core.blocks).
+    # brute-force reference, not by probewise.core.blocks).
     project = tiny_project()
     problem = small_problem(tiny_dict(), 20.0, 1500)
     state = problem.base_state.copy()

@@ -1,7 +1,7 @@
 """Acceptance of the optimiser (docs/optimiser.md): at the cost of every
 hand-made layout, the optimised layout costs no more and gains at least as much information.
 
-Both are evaluated on the full evaluation grid by ``server.core.evaluate`` (the numbers the
+Both are evaluated on the full evaluation grid by ``probewise.core.evaluate`` (the numbers the
 user sees). Cases: the invented demo project (seed_data/), the tiny example
 (tests/data/tiny-model.json) and the synthetic bench cases S and M built by
 benchmarks/make_case.py (the invented benchmark cases). The guarantee holds by
@@ -17,10 +17,10 @@ from pathlib import Path
 
 import pytest
 
-from server.app.to_core import to_core
-from server.core.evaluate import GridEvaluator
-from server.core.optimise import OptimiseOptions, optimise, prepare_optimisation
-from server.io.model_file import validate_model
+from probewise.app.to_core import to_core
+from probewise.core.evaluate import GridEvaluator
+from probewise.core.optimise import OptimiseOptions, optimise, prepare_optimisation
+from probewise.io.model_file import validate_model
 
 ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT / "benchmarks"))

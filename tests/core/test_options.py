@@ -13,18 +13,18 @@ import numpy as np
 import pytest
 from core_helpers import tiny_dict
 
-from server.app.to_core import to_core
-from server.core.evaluate import GridEvaluator, evaluate_project
-from server.core.geometry import points_in_polygon
-from server.core.model import Layout, PlannedProbe
-from server.core.optimise import OptimiseOptions, optimise
-from server.core.options import (
+from probewise.app.to_core import to_core
+from probewise.core.evaluate import GridEvaluator, evaluate_project
+from probewise.core.geometry import points_in_polygon
+from probewise.core.model import Layout, PlannedProbe
+from probewise.core.optimise import OptimiseOptions, optimise
+from probewise.core.options import (
     GUIDANCE_SPACINGS,
     KINDS,
     guidance_grid_layout,
     rank_options,
 )
-from server.io.model_file import validate_model
+from probewise.io.model_file import validate_model
 
 
 @pytest.fixture(scope="module")

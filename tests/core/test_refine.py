@@ -27,20 +27,20 @@ from core_helpers import tiny_dict
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from server.app.to_core import to_core
-from server.core.anneal_reference import LayoutScorer, anneal_layout
-from server.core.evaluate import GridEvaluator, evaluate_project
-from server.core.geometry import points_in_polygon
-from server.core.model import Layout, PlannedProbe
-from server.core.optimise import (
+from probewise.app.to_core import to_core
+from probewise.core.anneal_reference import LayoutScorer, anneal_layout
+from probewise.core.evaluate import GridEvaluator, evaluate_project
+from probewise.core.geometry import points_in_polygon
+from probewise.core.model import Layout, PlannedProbe
+from probewise.core.optimise import (
     OptimiseError,
     OptimiseOptions,
     layout_from_picks,
     optimise,
     prepare_optimisation,
 )
-from server.core.refine import RefineState, refinement_problem
-from server.io.model_file import validate_model
+from probewise.core.refine import RefineState, refinement_problem
+from probewise.io.model_file import validate_model
 
 ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT / "benchmarks"))

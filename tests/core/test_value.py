@@ -28,24 +28,24 @@ from hypothesis import strategies as st
 from scipy import integrate
 from scipy.stats import norm, truncnorm
 
-from server.app.to_core import core_polygon, to_core
-from server.core.analysis import ProjectAnalysis
-from server.core.element_average import (
+from probewise.app.to_core import core_polygon, to_core
+from probewise.core.analysis import ProjectAnalysis
+from probewise.core.element_average import (
     average_cross_covariance,
     condition_average,
     element_average,
     lattice_pair_mean,
     subpoint_offsets_m,
 )
-from server.core.evaluate import GridEvaluator
-from server.core.model import (
+from probewise.core.evaluate import GridEvaluator
+from probewise.core.model import (
     ChoiceConsequence,
     DesignElement,
     Layout,
     PlannedProbe,
     QuantityConsequence,
 )
-from server.core.value import (
+from probewise.core.value import (
     ValueEvaluator,
     element_cells,
     expected_quantity_cost,
@@ -53,7 +53,7 @@ from server.core.value import (
     quantity_cost,
     unit_normal_linear_loss,
 )
-from server.io.model_file import validate_model
+from probewise.io.model_file import validate_model
 
 INF = math.inf
 
@@ -149,7 +149,7 @@ def test_lattice_pair_mean_against_all_pairs():
     xy = lattice * step
     h = np.hypot(*(xy[:, None, :] - xy[None, :, :]).transpose(2, 0, 1))
     for model, range_m in [("exponential", 20.0), ("gaussian", 15.0), ("spherical", 25.0)]:
-        from server.core.correlation import correlate
+        from probewise.core.correlation import correlate
 
         ref = (np.outer(weight, weight) * correlate(model, h, range_m)).mean()
         got = lattice_pair_mean(lattice, weight, step, model, range_m)
@@ -370,7 +370,7 @@ def test_choice_with_no_information_is_todays_decision(state, offset):
 def test_options_ranked_by_net_value_with_elements(tiny):
     """With elements, the ranking carries each option's expected saving and net value (those
     of the value evaluator) and puts the highest net value first; without, neither."""
-    from server.core.options import rank_options
+    from probewise.core.options import rank_options
 
     _, project, analysis, evaluator = tiny
     element = DesignElement("treat", square(0, 40, 200, 80), 1, "deeper", 0.95,
@@ -400,7 +400,7 @@ def test_options_ranked_by_net_value_with_elements(tiny):
 
 def test_element_without_a_cell_is_refused(tiny):
     """A footprint between cell centres holds no cell: EmptyElementError names it."""
-    from server.core.value import EmptyElementError
+    from probewise.core.value import EmptyElementError
 
     _, project, analysis, evaluator = tiny
     element = DesignElement("speck", square(1, 1, 2, 2), 1, "deeper", 0.95,

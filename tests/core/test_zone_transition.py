@@ -7,10 +7,10 @@ import numpy as np
 import pytest
 import shapely
 
-from server.core.field import unit_fields
-from server.core.geometry import distance_to_edge_m
-from server.core.model import Correlation, GroundModel, Polygon, ThicknessRange, Unit, Zone
-from server.core.priors import thickness_moments
+from probewise.core.field import unit_fields
+from probewise.core.geometry import distance_to_edge_m
+from probewise.core.model import Correlation, GroundModel, Polygon, ThicknessRange, Unit, Zone
+from probewise.core.priors import thickness_moments
 
 SQUARE = Polygon((np.array([[0, 0], [50, 0], [50, 100], [0, 100], [0, 0]], float),))
 OUTER = ThicknessRange(1.0, 2.0, 3.0, "uniform")  # mean 2, std 1/sqrt(3)

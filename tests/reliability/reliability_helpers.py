@@ -15,7 +15,7 @@ from pathlib import Path
 
 import httpx
 
-from server.local_server import free_port, start_server, stop_server  # noqa: F401 (re-exported)
+from probewise.local_server import free_port, start_server, stop_server  # noqa: F401 (re-exported)
 
 BASE_URL = "http://127.0.0.1"  # a Host the app accepts (the DNS-rebinding guard is on)
 

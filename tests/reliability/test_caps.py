@@ -16,25 +16,25 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from reliability_helpers import BASE_URL, store_snapshot
 
-from server.app.to_core import to_core
-from server.cli import main
-from server.core.evaluate import GridEvaluator, evaluate_project
-from server.core.geometry import points_in_polygon
-from server.core.grid import (
+from probewise.app.to_core import to_core
+from probewise.cli import main
+from probewise.core.evaluate import GridEvaluator, evaluate_project
+from probewise.core.geometry import points_in_polygon
+from probewise.core.grid import (
     MAX_GRID_CELLS,
     MAX_RASTER_CELLS,
     EmptyGridError,
     evaluation_grid,
     evaluation_grid_capped,
 )
-from server.core.model import Polygon, Site
-from server.core.optimise import (
+from probewise.core.model import Polygon, Site
+from probewise.core.optimise import (
     MAX_CANDIDATE_LOCATIONS,
     OptimiseError,
     OptimiseOptions,
     optimise,
 )
-from server.web.app import create_app
+from probewise.web.app import create_app
 
 
 def big_site_model(side_m: float, spacing_m: float) -> dict:

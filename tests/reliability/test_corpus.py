@@ -19,8 +19,8 @@ from corpus import CASES, SCRIPT, TINY, Case, cases_of
 from fastapi.testclient import TestClient
 from reliability_helpers import BASE_URL, api_problems, fill, page_text, store_snapshot
 
-from server.cli import main
-from server.web.app import create_app
+from probewise.cli import main
+from probewise.web.app import create_app
 
 MIN_CASES = 40
 WEB_CHANNELS = ("api", "upload", "form")

@@ -13,7 +13,7 @@ from corpus import DATA, TINY
 from fastapi.testclient import TestClient
 from reliability_helpers import BASE_URL
 
-from server.web.app import create_app
+from probewise.web.app import create_app
 
 ROOT = DATA.parents[1]
 
@@ -29,7 +29,14 @@ def test_the_evaluation_is_the_cli_document(client):
     answer = client.get(f"/api/projects/{pid}/evaluation")
     assert answer.status_code == 200
     cli = subprocess.run(
-        [sys.executable, "-m", "server.cli", "evaluate", str(DATA / "tiny-model.json"), "--json"],
+        [
+            sys.executable,
+            "-m",
+            "probewise.cli",
+            "evaluate",
+            str(DATA / "tiny-model.json"),
+            "--json",
+        ],
         capture_output=True,
         text=True,
         cwd=ROOT,

@@ -38,8 +38,8 @@ from reliability_helpers import (
     store_snapshot,
 )
 
-from server.store import get_revision, list_revisions, open_db
-from server.web.app import create_app
+from probewise.store import get_revision, list_revisions, open_db
+from probewise.web.app import create_app
 
 POLL_DEADLINE_S = 120.0  # a deadline to stop waiting, not a timing assertion
 
@@ -255,7 +255,7 @@ def test_an_optimiser_run_that_cannot_run_fails_and_changes_nothing(client):
 
 def test_an_optimiser_run_that_crashes_fails_and_changes_nothing(client, monkeypatch):
     """An unexpected error inside the optimiser: the job ends "failed", nothing is saved."""
-    import server.app.optimiser_jobs as optimiser_jobs
+    import probewise.app.optimiser_jobs as optimiser_jobs
 
     def broken(*args, **kwargs):
         raise FloatingPointError("invented fault for the test")

@@ -31,11 +31,11 @@ from reliability_helpers import BASE_URL, store_snapshot
 from schemathesis.checks import not_a_server_error
 from schemathesis.specs.openapi.checks import response_schema_conformance
 
-from server.errors import InputError
-from server.io.model_file import validate_model
-from server.resources import DEMO_PROJECT_PATH
-from server.store import open_db, seed_demo_if_empty
-from server.web.app import create_app
+from probewise.errors import InputError
+from probewise.io.model_file import validate_model
+from probewise.resources import DEMO_PROJECT_PATH
+from probewise.store import open_db, seed_demo_if_empty
+from probewise.web.app import create_app
 
 MIN_GENERATED_CASES = 500
 EXAMPLES_PER_OPERATION = 60

@@ -25,11 +25,11 @@ from corpus import TINY
 from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 
-from server.app.to_core import to_core
-from server.core.evaluate import GridEvaluator, pareto_flags
-from server.core.model import Layout, PlannedProbe
-from server.errors import InputError
-from server.io.model_file import MAX_DEPTH_M, parse_model_text, validate_all, validate_model
+from probewise.app.to_core import to_core
+from probewise.core.evaluate import GridEvaluator, pareto_flags
+from probewise.core.model import Layout, PlannedProbe
+from probewise.errors import InputError
+from probewise.io.model_file import MAX_DEPTH_M, parse_model_text, validate_all, validate_model
 
 SETTINGS = settings(max_examples=80, deadline=None, suppress_health_check=list(HealthCheck))
 TINY_TEXT = json.dumps(TINY)

@@ -28,9 +28,9 @@ from corpus import TINY, UNIT_FORM
 from fastapi.testclient import TestClient
 from reliability_helpers import BASE_URL, free_port, links_of, served, store_snapshot
 
-from server.errors import InputError
-from server.io.gis_files import extract_zip as _extract_zip
-from server.web.app import create_app
+from probewise.errors import InputError
+from probewise.io.gis_files import extract_zip as _extract_zip
+from probewise.web.app import create_app
 
 # ---------------------------------------------------------------- archives
 
@@ -140,7 +140,7 @@ def hostile_model() -> dict:
 
 
 def test_hostile_model_is_valid():
-    from server.io.model_file import validate_model
+    from probewise.io.model_file import validate_model
 
     model = hostile_model()
     normal = validate_model(model)
@@ -267,7 +267,7 @@ def outward_address() -> str | None:
 
 
 def test_serve_passes_loopback_to_the_server_by_default(tmp_path, monkeypatch, capsys):
-    from server.cli import main
+    from probewise.cli import main
 
     calls = []
     monkeypatch.setattr("uvicorn.run", lambda app, **kw: calls.append(kw))

@@ -1,13 +1,13 @@
 """Store fixtures: a fresh database per test, and the model-file validator the store calls
-(server.io.model_file.validate_model, the real one: a stored model is its normalised copy)."""
+(probewise.io.model_file.validate_model, the real one: a stored model is its normalised copy)."""
 
 import json
 from pathlib import Path
 
 import pytest
 
-from server.io.model_file import validate_model
-from server.store import open_db
+from probewise.io.model_file import validate_model
+from probewise.store import open_db
 
 DATA = Path(__file__).resolve().parents[1] / "data"
 TINY_MODEL_PATH = DATA / "tiny-model.json"

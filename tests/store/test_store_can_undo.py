@@ -8,7 +8,7 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from server.store import (
+from probewise.store import (
     NothingToUndo,
     ProjectNotFound,
     can_undo,

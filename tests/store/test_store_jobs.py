@@ -2,7 +2,7 @@
 
 import pytest
 
-from server.store import (
+from probewise.store import (
     JobNotFound,
     ProjectNotFound,
     StoreError,

@@ -13,7 +13,7 @@ from pathlib import Path
 
 import pytest
 
-from server.store import create_project, get_revision, list_revisions, open_db
+from probewise.store import create_project, get_revision, list_revisions, open_db
 
 HERE = Path(__file__).resolve().parent
 ROOT = HERE.parents[1]
@@ -21,7 +21,7 @@ ROOT = HERE.parents[1]
 CHILD = r"""
 import copy, json, sys
 sys.path[:0] = [sys.argv[1]]
-from server.store import get_project, open_db, save_project
+from probewise.store import get_project, open_db, save_project
 
 db = open_db(sys.argv[2])
 project_id = int(sys.argv[3])

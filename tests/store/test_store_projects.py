@@ -4,9 +4,9 @@ import copy
 
 import pytest
 
-from server.errors import InputError
-from server.io.model_file import ValidModel, check_model
-from server.store import (
+from probewise.errors import InputError
+from probewise.io.model_file import ValidModel, check_model
+from probewise.store import (
     NothingToUndo,
     ProjectDeleted,
     ProjectNotFound,

@@ -3,8 +3,8 @@
 import json
 from pathlib import Path
 
-from server.io.model_file import validate_model
-from server.store import (
+from probewise.io.model_file import validate_model
+from probewise.store import (
     delete_project,
     get_project,
     list_projects,

@@ -16,7 +16,7 @@ import hypothesis.strategies as st
 from hypothesis import HealthCheck, settings
 from hypothesis.stateful import RuleBasedStateMachine, invariant, precondition, rule
 
-from server.store import (
+from probewise.store import (
     NothingToUndo,
     ProjectDeleted,
     StaleRevision,
@@ -58,7 +58,7 @@ models = st.builds(
 class StoreMachine(RuleBasedStateMachine):
     def __init__(self):
         super().__init__()
-        from server.io.model_file import validate_model  # stand-in via conftest until it exists
+        from probewise.io.model_file import validate_model  # stand-in via conftest until it exists
 
         self.validate = validate_model
         self.folder = tempfile.mkdtemp(prefix="probewise-store-")

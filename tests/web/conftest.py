@@ -13,7 +13,7 @@ import pytest
 from fastapi.testclient import TestClient
 from web_helpers import BASE_URL
 
-from server.web.app import create_app
+from probewise.web.app import create_app
 
 DATA = Path(__file__).resolve().parents[1] / "data"
 

@@ -10,7 +10,7 @@ from caution_check import assert_caution
 from fastapi.testclient import TestClient
 from web_helpers import htmx, links_of
 
-from server.web.templating import field_id
+from probewise.web.templating import field_id
 
 
 def add_project(client: TestClient, model: dict) -> int:

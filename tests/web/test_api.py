@@ -7,8 +7,8 @@ import json
 import pytest
 from web_helpers import project_count
 
-from server.errors import InputError
-from server.io.model_file import validate_model
+from probewise.errors import InputError
+from probewise.io.model_file import validate_model
 
 
 def field_problems(answer) -> list[dict]:

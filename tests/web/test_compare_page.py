@@ -13,11 +13,11 @@ from caution_check import assert_caution
 from decision_helpers import attribute_values, import_model, stored
 from web_helpers import decoded_png, htmx
 
-from server.app.layouts import layout_kind
-from server.app.to_core import to_core
-from server.core.evaluate import evaluate_project
-from server.core.options import rank_options
-from server.web.templating import format_money_whole
+from probewise.app.layouts import layout_kind
+from probewise.app.to_core import to_core
+from probewise.core.evaluate import evaluate_project
+from probewise.core.options import rank_options
+from probewise.web.templating import format_money_whole
 
 
 def results(client, pid: int, **params) -> str:

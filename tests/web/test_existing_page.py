@@ -20,8 +20,8 @@ from edit_helpers import (
 )
 from io_builders import TINY_EXPECTED, TINY_LAYERS, TINY_LOCATIONS, TINY_MAPPING, ags4_text
 
-from server.web.ags_mapping import guess_method, guess_unit
-from server.web.templating import field_id
+from probewise.web.ags_mapping import guess_method, guess_unit
+from probewise.web.templating import field_id
 
 EXISTING = "/projects/{}/existing"
 

@@ -20,10 +20,10 @@ from edit_helpers import (
     revision_of,
 )
 
-from server.core.model import ThicknessRange
-from server.core.priors import thickness_moments
-from server.web.charts import thickness_density, thickness_distribution
-from server.web.templating import field_id
+from probewise.core.model import ThicknessRange
+from probewise.core.priors import thickness_moments
+from probewise.web.charts import thickness_density, thickness_distribution
+from probewise.web.templating import field_id
 
 GROUND = "/projects/{}/ground"
 
@@ -78,7 +78,7 @@ def test_chart_route_answers_svg_and_pins_revisions(client):
 @pytest.mark.parametrize("shape", ["pert", "triangular", "uniform"])
 def test_chart_density_matches_the_model_moments(shape):
     # Reference: scipy.stats (beta for PERT with alpha = 1 + 4(b-a)/(c-a), triang, uniform)
-    # against the closed forms of docs/model.md used by server.core.priors; the plotted density
+    # against the closed forms of docs/model.md used by probewise.core.priors; the plotted density
     # integrates to 1 (trapezoid rule on 2001 points).
     rng = ThicknessRange(0.5, 1.5, 4.0, shape)
     dist = thickness_distribution(rng)

@@ -8,9 +8,9 @@ from pathlib import Path
 import numpy as np
 from edit_helpers import add_project
 
-from server.app.levels import bounds_json, history_limits
-from server.app.project import core_project
-from server.io.model_file import validate_model
+from probewise.app.levels import bounds_json, history_limits
+from probewise.app.project import core_project
+from probewise.io.model_file import validate_model
 
 DEMO = Path(__file__).resolve().parents[2] / "seed_data" / "demo-reclaimed-strip.json"
 

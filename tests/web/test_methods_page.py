@@ -16,7 +16,7 @@ from edit_helpers import (
     revision_of,
 )
 
-from server.web.templating import field_id
+from probewise.web.templating import field_id
 
 METHODS = "/projects/{}/methods"
 

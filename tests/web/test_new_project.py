@@ -6,8 +6,8 @@ from __future__ import annotations
 import pytest
 from web_helpers import htmx, project_count
 
-from server.app.new_project import STARTING_POINTS, starting_spacing_m
-from server.io.model_file import validate_model
+from probewise.app.new_project import STARTING_POINTS, starting_spacing_m
+from probewise.io.model_file import validate_model
 
 BOX = "451000, 283000\n451400, 283000\n451400, 283200\n451000, 283200"
 

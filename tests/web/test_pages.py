@@ -10,9 +10,9 @@ import pytest
 from caution_check import assert_caution
 from web_helpers import htmx, links_of, project_count
 
-from server.errors import InputError
-from server.io.model_file import validate_model
-from server.web.templating import STATIC_DIR
+from probewise.errors import InputError
+from probewise.io.model_file import validate_model
+from probewise.web.templating import STATIC_DIR
 
 
 def upload(client, content: bytes, filename: str = "model.json", headers=None):

@@ -5,9 +5,9 @@ from __future__ import annotations
 
 import html
 
-from server.app.readings import project_readings
-from server.app.to_core import to_core
-from server.web.templating import CAUTION
+from probewise.app.readings import project_readings
+from probewise.app.to_core import to_core
+from probewise.web.templating import CAUTION
 
 CAUTION_HTML = html.escape(CAUTION, quote=False)
 

@@ -17,11 +17,11 @@ from io_builders import gpkg_description
 from pyproj import Transformer
 from web_helpers import decoded_png, htmx
 
-from server.app.justification import MainBoundary, OptionFigures, justification
-from server.app.layouts import layout_kind
-from server.app.to_core import to_core
-from server.core.evaluate import evaluate_project
-from server.core.options import rank_options
+from probewise.app.justification import MainBoundary, OptionFigures, justification
+from probewise.app.layouts import layout_kind
+from probewise.app.to_core import to_core
+from probewise.core.evaluate import evaluate_project
+from probewise.core.options import rank_options
 
 LEAN = "Lean: CPTu only"
 

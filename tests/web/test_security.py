@@ -6,8 +6,8 @@ import pytest
 from fastapi.testclient import TestClient
 from web_helpers import BASE_URL, project_count
 
-from server.web.app import create_app
-from server.web.security import allowed_hosts_for, split_host_port
+from probewise.web.app import create_app
+from probewise.web.security import allowed_hosts_for, split_host_port
 
 
 @pytest.mark.parametrize("host", ["evil.example", "evil.example:8000", "127.0.0.1.evil.example"])

@@ -11,9 +11,9 @@ import time
 import httpx
 import pytest
 
-from server.cli import main
-from server.commands import serve
-from server.local_server import STARTUP_DEADLINE_S, free_port, probewise_command
+from probewise.cli import main
+from probewise.commands import serve
+from probewise.local_server import STARTUP_DEADLINE_S, free_port, probewise_command
 
 
 @pytest.mark.slow

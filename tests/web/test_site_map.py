@@ -7,7 +7,7 @@ import re
 
 import pytest
 
-from server.web.site_map import (
+from probewise.web.site_map import (
     Projection,
     build_site_map,
     nice_length_at_most,
@@ -15,7 +15,7 @@ from server.web.site_map import (
     polygon_rings,
     tick_values,
 )
-from server.web.summary import boundary_rows, depth_limits, layout_rows, resolution_rows
+from probewise.web.summary import boundary_rows, depth_limits, layout_rows, resolution_rows
 
 
 def square(x0: float, y0: float, size: float) -> list[list[float]]:

@@ -23,9 +23,9 @@ from edit_helpers import (
 )
 from web_helpers import htmx
 
-from server.io import model_file
-from server.web.polygon_text import parse_polygon_text, polygon_text
-from server.web.templating import field_id
+from probewise.io import model_file
+from probewise.web.polygon_text import parse_polygon_text, polygon_text
+from probewise.web.templating import field_id
 
 SITE = "/projects/{}/site"
 
@@ -69,8 +69,8 @@ def test_site_json_serves_the_map_data(client, demo_model):
 
 
 def test_grid_cells_shown_match_the_core_grid(client, demo_model):
-    from server.app.to_core import to_core
-    from server.core.grid import evaluation_grid
+    from probewise.app.to_core import to_core
+    from probewise.core.grid import evaluation_grid
 
     project = to_core(demo_model)
     grid = evaluation_grid(project.site, (0.0, 0.0))

@@ -1,5 +1,5 @@
 """The undo buttons are disabled, saying "Nothing to undo", exactly when undo has nothing to
-take back (server.store.can_undo), on the overview and on every model-editing page; and the
+take back (probewise.store.can_undo), on the overview and on every model-editing page; and the
 htmx configuration settles no inline style."""
 
 from __future__ import annotations
