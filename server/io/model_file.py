@@ -56,7 +56,7 @@ from probewise.io.model_common import (  # noqa: F401 - the model file's constan
 from probewise.io.model_geometry import to_shapely
 from probewise.io.model_history import history_problems
 from probewise.io.model_references import reference_problems
-from probewise.io.model_schema import OPTIONAL_KEYS, ModelFile
+from probewise.io.model_schema import OPTIONAL_KEYS, OPTIONAL_TOP_KEYS, ModelFile
 from probewise.io.model_structure import ground_structure_problems
 
 
@@ -87,6 +87,9 @@ def _validate(data: object, first_only: bool) -> tuple[dict | None, list[InputEr
             for key in keys:
                 if item.get(key) is None:
                     item.pop(key, None)
+    for key in OPTIONAL_TOP_KEYS:
+        if normal.get(key) is None:
+            normal.pop(key, None)
     for problem in reference_problems(normal):
         problems.append(problem)
         if stop():

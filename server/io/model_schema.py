@@ -22,6 +22,7 @@ from probewise.io.model_common import (
     number_text,
     show_value,
 )
+from probewise.io.model_document import DocumentControl, SafetyNotes
 from probewise.io.model_elements import Element
 from probewise.io.model_geometry import check_crs, check_polygon, check_site_geometry
 
@@ -182,6 +183,7 @@ OPTIONAL_KEYS = {
     "units": ("presence",),
     "existing": ("ground_level_m",),
 }
+OPTIONAL_TOP_KEYS = ("document", "safety")  # sections left out, not null, when absent
 
 
 class Layout(_Base):
@@ -212,3 +214,5 @@ class ModelFile(_Base):
     existing: list[ExistingProbe] = Field(default_factory=list)
     layouts: list[Layout] = Field(default_factory=list)
     elements: list[Element] = Field(default_factory=list)
+    document: DocumentControl | None = None
+    safety: SafetyNotes | None = None

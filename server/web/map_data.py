@@ -6,6 +6,7 @@ import math
 from typing import Any
 
 from probewise.web.site_map import feature_bounds, label_point, polygon_rings
+from probewise.web.symbols import methods_drawn, symbols_json
 
 
 def build_map_data(model: dict, *, include_layouts: bool = True) -> dict[str, Any]:
@@ -60,6 +61,13 @@ def build_map_data(model: dict, *, include_layouts: bool = True) -> dict[str, An
         "existing": [probe(p, "final_depth_m") for p in model.get("existing") or []],
         "layouts": layouts,
         "methods": methods,
+        "symbols": symbols_json(),
+        "legend": {
+            "existing": methods_drawn(model, {p["method"] for p in model.get("existing") or []}),
+            "planned": methods_drawn(
+                model, {p["method"] for lay in model.get("layouts") or [] for p in lay["probes"]}
+            ),
+        },
     }
 
 

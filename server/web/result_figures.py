@@ -1,12 +1,16 @@
 """Figures and choices shared by the Compare and Schedule pages: the layout shown, the probes
-drawn on maps, the grid raster, and image answers cached per revision."""
+drawn on maps, the grid raster, the ranked options table, and image answers cached per
+revision."""
 
 from __future__ import annotations
+
+from typing import Any
 
 import numpy as np
 from fastapi import Request
 from starlette.responses import Response
 
+from probewise.app.layouts import KIND_LABELS
 from probewise.app.results import ProjectResults
 from probewise.core.evaluate import LayoutResult
 from probewise.errors import InputError
@@ -70,3 +74,30 @@ def section_layout(entry: ProjectResults, wanted: str | None) -> str:
 
 def current_revision_named(request: Request, entry: ProjectResults) -> bool:
     return request.query_params.get("rev") == str(entry.revision)
+
+
+def ranking_rows(entry: ProjectResults, chosen: str | None) -> list[dict[str, Any]]:
+    rows = []
+    for option in entry.ranking():
+        rows.append(
+            {
+                "name": option.name,
+                "kind": option.kind,
+                "kind_label": KIND_LABELS.get(option.kind, option.kind),
+                "n_probes": option.n_probes,
+                "cost": option.cost,
+                "duration_days": option.duration_days,
+                "metres": option.metres,
+                "gain_bits": option.information_gain_bits,
+                "gain_per_1000": None
+                if option.gain_per_cost is None
+                else 1000.0 * option.gain_per_cost,
+                "pareto": option.pareto,
+                "chosen": option.name == chosen,
+                "expected_saving": option.expected_saving,
+                "net_value": option.net_value,
+                "benefit_cost": option.benefit_cost_ratio,
+                "p_cheaper": option.p_cheaper_allowed,
+            }
+        )
+    return rows

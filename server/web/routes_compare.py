@@ -17,7 +17,6 @@ import sqlite_utils
 from fastapi import APIRouter, Request
 from starlette.responses import Response
 
-from probewise.app.layouts import KIND_LABELS
 from probewise.app.levels import history_limits
 from probewise.app.results import ProjectResults, project_results, results_of
 from probewise.app.sections import SectionLine, default_section, read_section
@@ -34,6 +33,7 @@ from probewise.web.result_figures import (
     existing_points,
     image_response,
     planned_points,
+    ranking_rows,
     raster_of,
     section_layout,
 )
@@ -191,33 +191,6 @@ def section_probes(
 
 
 # ---------------------------------------------------------------- page context
-
-
-def ranking_rows(entry: ProjectResults, chosen: str | None) -> list[dict[str, Any]]:
-    rows = []
-    for option in entry.ranking():
-        rows.append(
-            {
-                "name": option.name,
-                "kind": option.kind,
-                "kind_label": KIND_LABELS.get(option.kind, option.kind),
-                "n_probes": option.n_probes,
-                "cost": option.cost,
-                "duration_days": option.duration_days,
-                "metres": option.metres,
-                "gain_bits": option.information_gain_bits,
-                "gain_per_1000": None
-                if option.gain_per_cost is None
-                else 1000.0 * option.gain_per_cost,
-                "pareto": option.pareto,
-                "chosen": option.name == chosen,
-                "expected_saving": option.expected_saving,
-                "net_value": option.net_value,
-                "benefit_cost": option.benefit_cost_ratio,
-                "p_cheaper": option.p_cheaper_allowed,
-            }
-        )
-    return rows
 
 
 def boundary_rows(entry: ProjectResults, result: LayoutResult | None) -> list[dict[str, Any]]:

@@ -24,20 +24,32 @@ from starlette.responses import Response
 from probewise.app.project import model_layout
 from probewise.app.results import ProjectResults, project_results, results_of
 from probewise.app.schedule import Schedule, build_schedule, main_boundary_index, probe_rows
+from probewise.app.schedule_warnings import probe_warnings
 from probewise.errors import InputError
 from probewise.io.exports import write_schedule_csv, write_schedule_geojson, write_schedule_gpkg
-from probewise.store import get_project
+from probewise.store import StoredProject, get_project
 from probewise.web import plots
+from probewise.web import schedule_document as docs
 from probewise.web.deps import Db
 from probewise.web.downloads import attachment_headers, slug_of
+from probewise.web.edits import (
+    EditResult,
+    FormReader,
+    PostedForm,
+    expected_revision_of,
+    page_context,
+    run_edit,
+    run_undo,
+)
+from probewise.web.plan_plot import Placement, PlanProbe, plan_with_placement
 from probewise.web.result_figures import (
     chosen_layout,
     current_revision_named,
-    existing_points,
     image_response,
-    planned_points,
+    ranking_rows,
 )
-from probewise.web.templating import kind_label, render_page_or_fragment
+from probewise.web.symbols import SYMBOLS, methods_drawn
+from probewise.web.templating import kind_label, render_action, render_page_or_fragment
 from probewise.web.workflow import project_context
 
 router = APIRouter(include_in_schema=False)
@@ -59,13 +71,47 @@ def schedule_of(entry: ProjectResults, chosen: str) -> Schedule:
     )
 
 
+def document_context(
+    db: sqlite_utils.Database, project: StoredProject, result: EditResult | None
+) -> dict[str, Any]:
+    """The screen-only edit forms (document control, health and safety) and what prints."""
+    shown = result.project if result else project
+    context = page_context(
+        db,
+        shown,
+        "schedule",
+        result=result,
+        page_url=f"/projects/{shown.id}/schedule",
+        fragment_id="schedule",
+    )
+    model, stored = context["model"], context["stored"]
+    context.update(
+        document=docs.document_of(stored),
+        document_form=docs.document_of(model),
+        document_fields=docs.DOCUMENT_FIELDS,
+        status_suggestions=docs.STATUS_SUGGESTIONS,
+        hazards=docs.hazards_of(stored),
+        hazards_form=docs.hazards_of(model),
+        safety_notes=docs.safety_notes_of(stored),
+        safety_notes_form=docs.safety_notes_of(model),
+        has_safety_notes=docs.has_safety_notes(stored),
+        appendix=docs.appendix_sources(stored),
+    )
+    return context
+
+
 def schedule_context(
-    db: sqlite_utils.Database, project_id: int, wanted: str | None, paper: str
+    db: sqlite_utils.Database,
+    project_id: int,
+    wanted: str | None,
+    paper: str,
+    result: EditResult | None = None,
 ) -> dict[str, Any]:
     project = get_project(db, project_id)
     entry = results_of(db, project)
     context: dict[str, Any] = {
         **project_context(project, "schedule"),
+        **document_context(db, project, result),
         "paper": paper if paper in PAPERS else "a4",
         "papers": PAPERS,
         "today": date.today().isoformat(),
@@ -86,12 +132,16 @@ def schedule_context(
     query = {"layout": chosen, "rev": str(project.revision)}
     base = f"/projects/{project_id}"
     layout_doc = model_layout(entry.model, chosen) or {}
+    warnings = probe_warnings(entry.project, schedule.probes, schedule.refusals)
     context.update(
         chosen=chosen,
         layout_description=layout_doc.get("description") or "",
         schedule=schedule,
         result=schedule.totals,
-        rows=schedule.probes,
+        rows=[{**row, "warnings": w} for row, w in zip(schedule.probes, warnings, strict=True)],
+        ranking=ranking_rows(entry, chosen),
+        plan_key=plan_of(entry, chosen)[1].numbered,
+        chart_src=f"{base}/compare/chart.svg?{urlencode(query)}",
         refusals=schedule.refusals,
         methods=schedule.methods,
         justification=list(schedule.justification),
@@ -123,27 +173,117 @@ def schedule_page(
     return render_page_or_fragment(request, "schedule.html", "_schedule.html", context)
 
 
+def plan_of(entry: ProjectResults, chosen: str) -> tuple[bytes, Placement]:
+    """The plan of one layout (PNG) and where its labels went: drawn once per revision."""
+
+    def draw() -> tuple[bytes, Placement]:
+        result = entry.result_named(chosen)
+        methods = entry.project.methods
+        planned = [
+            PlanProbe(
+                plan.probe.id,
+                plan.probe.x,
+                plan.probe.y,
+                methods[plan.probe.method].kind,
+                plan.probe.method,
+            )
+            for plan in result.plans
+        ]
+        existing = [
+            PlanProbe(
+                p.id,
+                p.x,
+                p.y,
+                methods[p.method].kind if p.method in methods else "other",
+                p.method,
+                existing=True,
+            )
+            for p in entry.project.existing
+        ]
+        return plan_with_placement(
+            plots.SiteShapes.of_model(entry.model),
+            existing + planned,
+            title=f"Site plan: {chosen}",
+            crs=entry.project.crs,
+            legend_methods=methods_drawn(entry.model, {p.code for p in planned}),
+            legend_existing=methods_drawn(entry.model, {p.code for p in existing}),
+            kind_labels={k: kind_label(k) for k in SYMBOLS},
+        )
+
+    return entry.memo(("plan", chosen), draw)
+
+
 @router.get("/projects/{project_id}/schedule/plan.png")
 def schedule_plan(request: Request, project_id: int, db: Db, layout: str | None = None) -> Response:
     entry = project_results(db, project_id)
     chosen = chosen_layout(entry, layout)
     if chosen is None:
         raise InputError("layout", "the project has no layout to draw")
-
-    def draw() -> bytes:
-        result = entry.result_named(chosen)
-        return plots.site_plan(
-            plots.SiteShapes.of_model(entry.model),
-            existing_points(entry) + planned_points(entry, result),
-            title=f"Site plan: {chosen}",
-            crs=entry.project.crs,
-            kind_labels={
-                k: kind_label(k) for k in ("borehole", "cpt", "dmt", "trial_pit", "other")
-            },
-        )
-
-    png = entry.memo(("plan", chosen), draw)
+    png, _placement = plan_of(entry, chosen)
     return image_response(png, "image/png", current_revision_named(request, entry))
+
+
+# ---------------------------------------------------------------- document edits
+
+
+def answer_edit(request: Request, db: Db, project_id: int, form, result: EditResult) -> Response:
+    """The schedule after an edit of its document parts (the option and paper kept)."""
+    reader = FormReader(form)
+    layout, paper = reader.raw("layout") or None, reader.raw("paper") or "a4"
+    query = urlencode({k: v for k, v in (("layout", layout), ("paper", paper)) if v})
+    return render_action(
+        request,
+        "schedule.html",
+        "_schedule.html",
+        lambda: schedule_context(db, project_id, layout, paper, result),
+        redirect_to=f"/projects/{project_id}/schedule?{query}#document-edit",
+        status_code=result.status_code,
+    )
+
+
+def run_schedule_edit(
+    request: Request, db: Db, project_id: int, form, edit, *, keep_input: bool = True
+) -> Response:
+    reader = FormReader(form)
+    result = run_edit(
+        db,
+        project_id,
+        expected_revision_of(form),
+        lambda model: edit(reader, model),
+        reader=reader,
+        own=("document", "safety"),
+        keep_input=keep_input,
+        page_url=f"/projects/{project_id}/schedule",
+    )
+    return answer_edit(request, db, project_id, form, result)
+
+
+@router.post("/projects/{project_id}/schedule/document")
+def save_document(request: Request, project_id: int, form: PostedForm, db: Db) -> Response:
+    return run_schedule_edit(request, db, project_id, form, docs.edit_document)
+
+
+@router.post("/projects/{project_id}/schedule/safety")
+def save_safety(request: Request, project_id: int, form: PostedForm, db: Db) -> Response:
+    return run_schedule_edit(request, db, project_id, form, docs.edit_safety)
+
+
+@router.post("/projects/{project_id}/schedule/issues/add")
+def add_issue(request: Request, project_id: int, form: PostedForm, db: Db) -> Response:
+    return run_schedule_edit(request, db, project_id, form, docs.add_issue, keep_input=False)
+
+
+@router.post("/projects/{project_id}/schedule/issues/remove-last")
+def remove_last_issue(request: Request, project_id: int, form: PostedForm, db: Db) -> Response:
+    return run_schedule_edit(
+        request, db, project_id, form, lambda _reader, model: docs.remove_last_issue(model)
+    )
+
+
+@router.post("/projects/{project_id}/schedule/undo")
+def undo_schedule_edit(request: Request, project_id: int, form: PostedForm, db: Db) -> Response:
+    result = run_undo(db, project_id, expected_revision_of(form))
+    return answer_edit(request, db, project_id, form, result)
 
 
 # ---------------------------------------------------------------- downloads

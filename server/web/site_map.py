@@ -14,6 +14,8 @@ from typing import Any
 
 from shapely.geometry import shape
 
+from probewise.web.symbols import methods_drawn
+
 MAX_FRAME_W_PX = 860.0
 MAX_FRAME_H_PX = 520.0
 MARGIN_LEFT_PX = 76.0
@@ -82,6 +84,7 @@ class SiteMap:
     north_y: float
     north_label: str
     probe_kinds: list[str]
+    probe_methods: list[dict[str, str]]  # legend: the methods of the probes drawn
 
 
 def polygon_rings(geometry: dict[str, Any] | None) -> list[list[tuple[float, float]]]:
@@ -331,6 +334,7 @@ def build_site_map(model: dict[str, Any]) -> SiteMap:
         north_y=MARGIN_TOP_PX + 8,
         north_label=north_label,
         probe_kinds=sorted({p.kind for p in probes}),
+        probe_methods=methods_drawn(model, {p.method for p in probes}),
     )
 
 

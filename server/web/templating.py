@@ -22,6 +22,7 @@ from starlette.responses import RedirectResponse, Response
 from probewise.caution import CAUTION
 from probewise.core.priors import DEFAULT_SHAPE, THICKNESS_SHAPES
 from probewise.resources import STATIC_DIR, TEMPLATES_DIR
+from probewise.web.symbols import symbol_svg
 
 METHOD_KIND_LABELS = {
     "borehole": "Borehole",
@@ -147,6 +148,7 @@ def build_environment(templates_dir: Path = TEMPLATES_DIR) -> jinja2.Environment
         htmx_js=find_htmx_path(),
         default_shape=DEFAULT_SHAPE,
         field_id=field_id,
+        probe_symbol=symbol_svg,
     )
     return env
 

@@ -35,8 +35,8 @@
   }
 
   // The shared probe symbol with the probe's id beside it.
-  function labelledIcon(kind, id) {
-    var base = window.ProbewiseMap.probeIcon(kind, { planned: true });
+  function labelledIcon(kind, id, method) {
+    var base = window.ProbewiseMap.probeIcon(kind, { planned: true, code: method });
     var label = document.createElement("span");
     label.className = "pin-label";
     label.textContent = id;
@@ -100,7 +100,7 @@
     (data.probes || []).forEach(function (probe) {
       var text = probe.id + " (" + probe.method + ") at " + fixed(probe.x) + ", " + fixed(probe.y);
       var marker = L.marker(handle.toLatLng(probe.x, probe.y), {
-        icon: labelledIcon(probe.kind, probe.id),
+        icon: labelledIcon(probe.kind, probe.id, probe.method),
         draggable: !!data.editable,
         keyboard: true,
         title: text,

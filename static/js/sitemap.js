@@ -28,13 +28,10 @@
 (function () {
   "use strict";
 
-  var SHAPES = {
-    borehole: '<circle r="5"/><circle class="probe-core" r="1.6"/>',
-    cpt: '<path d="M-5.5 -4.5 L5.5 -4.5 L0 6 Z"/>',
-    dmt: '<path d="M0 -6 L6 0 L0 6 L-6 0 Z"/>',
-    trial_pit: '<rect x="-4.5" y="-4.5" width="9" height="9"/>',
-    other: '<circle class="probe-open" r="4.5"/>'
-  };
+  // The probe symbols come from the server (server/web/symbols.py, in the map data as
+  // "symbols"), so the maps, the SVG plan and the printed plan draw the same shapes.
+  var SYMBOLS = null;
+  var WHITE = "#ffffff";
   var KIND_LABELS = { borehole: "Borehole", cpt: "CPT", dmt: "DMT", trial_pit: "Trial pit", other: "Other" };
   var savedViews = {};
   var handles = [];
@@ -62,15 +59,27 @@
     return magnitude;
   }
 
+  // A shape per method kind with the method's code in it: solid when planned, hollow when
+  // existing (options.planned); options.code is the method's short code.
   function probeIcon(kind, options) {
     options = options || {};
-    var shape = SHAPES[kind] || SHAPES.other;
-    var classes = "probe probe-" + (SHAPES[kind] ? kind : "other") + (options.planned ? " is-planned" : "");
+    var symbols = SYMBOLS || {};
+    var known = Object.prototype.hasOwnProperty.call(symbols, kind);
+    var sym = symbols[known ? kind : "other"] || { path: "M-8 -8 L8 -8 L8 8 L-8 8 Z", colour: "#6a4a7a", text_y: 0 };
+    var code = String(options.code || "").slice(0, 4);
+    var fill = options.planned ? sym.colour : WHITE;
+    var edge = options.planned ? "#111a20" : sym.colour;
+    var ink = options.planned ? WHITE : sym.colour;
+    var size = code.length <= 2 ? 7.5 : code.length === 3 ? 6.5 : 5.6;
+    var classes = "probe probe-" + (known ? kind : "other") + (options.planned ? " is-planned" : "");
     if (options.className) classes += " " + options.className;
     var html =
-      '<svg class="pw-probe-svg" viewBox="-8 -8 16 16" width="16" height="16" aria-hidden="true" focusable="false">' +
-      '<g class="' + escapeHtml(classes) + '">' + shape + "</g></svg>";
-    return L.divIcon({ html: html, className: "pw-probe-icon", iconSize: [16, 16], iconAnchor: [8, 8] });
+      '<svg class="pw-probe-svg" viewBox="-12 -9.5 24 19" width="24" height="19" aria-hidden="true" focusable="false">' +
+      '<g class="' + escapeHtml(classes) + '"><path class="probe-shape" d="' + escapeHtml(sym.path) + '" fill="' + fill +
+      '" stroke="' + edge + '" stroke-width="' + (options.planned ? 1 : 1.6) + '"/>' +
+      '<text class="probe-code" x="0" y="' + sym.text_y + '" text-anchor="middle" dominant-baseline="central" fill="' + ink +
+      '" font-size="' + size + '">' + escapeHtml(code) + "</text></g></svg>";
+    return L.divIcon({ html: html, className: "pw-probe-icon", iconSize: [24, 19], iconAnchor: [12, 9.5] });
   }
 
   // Polygon rings in Leaflet's nesting: Polygon -> [outer, holes...]; MultiPolygon -> [[...], ...]
@@ -162,6 +171,7 @@
   });
 
   function create(element, data, options) {
+    if (data && data.symbols) SYMBOLS = data.symbols;
     options = options || {};
     var existing = get(element);
     if (existing) existing.remove();
@@ -276,13 +286,13 @@
             (p.final_depth_m ? "; final depth " + formatNumber(p.final_depth_m, 2) + " m" : "") +
             (p.depth_m ? "; depth " + formatNumber(p.depth_m, 2) + " m" : "");
         var marker = L.marker(handle.toLatLng(p.x, p.y), {
-          icon: probeIcon(p.kind, probeOptions),
+          icon: probeIcon(p.kind, Object.assign({ code: p.method }, probeOptions)),
           title: text,
           alt: text,
           keyboard: true,
           riseOnHover: true
         });
-        marker.bindTooltip(escapeHtml(text), { direction: "top", offset: [0, -8], className: "pw-map-tip" });
+        marker.bindTooltip(escapeHtml(text), { direction: "top", offset: [0, -10], className: "pw-map-tip" });
         group.addLayer(marker);
       });
       return group;
@@ -296,7 +306,7 @@
         group.addLayer(L.tooltip({
           permanent: true,
           direction: "right",
-          offset: [7, 0],
+          offset: [12, 0],
           className: "pw-map-probe-label",
           interactive: false
         }).setLatLng(handle.toLatLng(p.x, p.y)).setContent(escapeHtml(p.id)));
