@@ -30,6 +30,7 @@ from probewise.store import StoredProject, get_project
 from probewise.web.deps import Db
 from probewise.web.edits import EditPage, EditResult, FormReader, ImportArea, PostedForm, item_at
 from probewise.web.map_data import build_map_data
+from probewise.web.outline_change import CHOICES, Outside, apply_choices, find_outside, read_choices
 from probewise.web.polygon_text import parse_polygon_text, polygon_text
 
 router = APIRouter(include_in_schema=False)
@@ -224,18 +225,41 @@ def save_settings(request: Request, project_id: int, form: PostedForm, db: Db) -
 
 @router.post("/projects/{project_id}/site/outline")
 def save_outline(request: Request, project_id: int, form: PostedForm, db: Db) -> Response:
+    """A new outline; what it leaves outside is listed first, then dealt with as the user
+    chose, in the same save (server/web/outline_change.py)."""
     reader = FormReader(form)
+    stored = get_project(db, project_id).model
+    try:
+        geometry = parse_polygon_text(reader.raw("geometry_text"), "site", allow_multi=True)
+        problem = None
+    except InputError as exc:  # the text is shown back from the draft
+        geometry, problem = None, exc
+    outside = find_outside(stored, geometry) if geometry else Outside()
+    confirmed = reader.flag("outside_confirmed")
 
     def edit(model: dict) -> str:
-        try:
-            model["site"] = parse_polygon_text(
-                reader.raw("geometry_text"), "site", allow_multi=True
+        if geometry is None:
+            reader.problems.append(problem)
+            return "Changed the site outline"
+        if outside and not confirmed:
+            raise InputError(
+                "site",
+                "the new outline leaves some of the project outside it; choose below what "
+                "to do with each and save again",
             )
-        except InputError as exc:  # the text is shown back from the draft
-            reader.problems.append(exc)
-        return "Changed the site outline"
+        done = apply_choices(model, geometry, read_choices(reader.values()))
+        return "Changed the site outline" + (f" ({'; '.join(done)})" if done else "")
 
-    return PAGE.edit(request, db, project_id, form, edit, reader=reader, fallback="site")
+    return PAGE.edit(
+        request,
+        db,
+        project_id,
+        form,
+        edit,
+        reader=reader,
+        fallback="site",
+        more_when_refused={"outline_outside": outside.lines(), "outside_choices": CHOICES},
+    )
 
 
 # ---------------------------------------------------------------- zones, areas, exclusions

@@ -248,7 +248,7 @@ def test_outline_edit_closes_the_ring(client, tiny_id):
         ("0, 0\n200, 0\nabc, 5", "line 3: 'abc' is not a number"),
         ("0, 0\n200, 0", "at least 3 different points"),
         ("0, 0\n100, 100\n100, 0\n0, 100", "not a valid polygon"),
-        ("0, 0\n50, 0\n50, 50\n0, 50", "lies outside the site"),  # probes left outside
+        ("0, 0\n50, 0\n50, 50\n0, 50", "leaves some of the project outside"),  # probes outside
     ],
 )
 def test_bad_outline_is_refused_with_the_reason(client, tiny_id, text, words):
