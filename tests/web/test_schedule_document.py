@@ -187,7 +187,7 @@ def test_plan_labels_never_overlap_with_100_probes(demo_model):
     assert png[:8] == b"\x89PNG\r\n\x1a\n"
     labels = list(placement.labels.values())
     boxes = labels + list(placement.symbols.values())
-    for n, a in enumerate(labels):
+    for a in labels:
         for b in boxes:
             if b is a:
                 continue
