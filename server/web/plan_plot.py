@@ -29,6 +29,7 @@ from probewise.web.plot_style import (
     INK,
     ZONE_EDGE,
     draw_lock,
+    symbol_marker,
     to_bytes,
 )
 from probewise.web.plots import SiteShapes, _draw_site, _frame_map, _map_figure_size
@@ -64,10 +65,7 @@ class Placement:
     numbered: dict[int, str]
 
 
-def marker_path(kind: str) -> MplPath:
-    """The kind's outline as a matplotlib marker (y up; matplotlib scales it to the size)."""
-    outline = np.array(symbol_of(kind).outline, dtype=float) * np.array([1.0, -1.0])
-    return MplPath(np.vstack([outline, outline[:1]]), closed=True)
+marker_path = symbol_marker
 
 
 def marker_size(kind: str) -> float:

@@ -7,8 +7,12 @@ import io
 import threading
 
 import matplotlib
+import numpy as np
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
+from matplotlib.path import Path as MplPath
+
+from probewise.web.symbols import SYMBOLS, symbol_of
 
 matplotlib.rcParams.update(
     {
@@ -36,14 +40,16 @@ CURVE = "#2b7a80"
 CHOSEN = "#1f6fd1"
 MAP_CMAP = "YlOrBr"  # light = well known, dark = uncertain; prints in grey too
 
-KIND_STYLE = {
-    # kind: (marker, face colour)
-    "borehole": ("o", "#22303a"),
-    "cpt": ("v", "#2b7a80"),
-    "dmt": ("D", "#4f7a3a"),
-    "trial_pit": ("s", "#a9561f"),
-    "other": ("o", "#ffffff"),
-}
+
+def symbol_marker(kind: str) -> MplPath:
+    """A kind's probe symbol outline as a matplotlib marker (y up; scaled by ``s``)."""
+    outline = np.array(symbol_of(kind).outline, dtype=float) * np.array([1.0, -1.0])
+    return MplPath(np.vstack([outline, outline[:1]]), closed=True)
+
+
+# kind: (marker, face colour): the shapes and colours of the screen maps (symbols.py)
+KIND_STYLE = {kind: (symbol_marker(kind), sym.colour) for kind, sym in SYMBOLS.items()}
+EXISTING_FACE = "#ffffff"  # existing probes are hollow, as on the screen maps
 BOUNDARY_COLOURS = ("#a9561f", "#2b7a80", "#4f7a3a", "#7a4f9a", "#a33526", "#3a5f9a", "#8a7a2a")
 
 

@@ -4,8 +4,9 @@
   the optimiser's cost-gain curves (SVG);
 - ``uncertainty_maps``: one boundary's posterior std (or P5-P95 width) on the evaluation grid,
   before and after an option, on one colour scale (PNG);
-- ``site_plan``: the site with an option's probes, for the schedule (PNG);
 - ``depth_section``: P5/P50/P95 of every boundary along a line, before and after (PNG).
+
+The schedule's site plan is ``probewise.web.plan_plot``.
 
 Inputs are plain numbers and GeoJSON-like geometry, so the figures do not depend on how the
 core computes them. Drawing is serialised by a lock: matplotlib's font and text caches are
@@ -29,6 +30,7 @@ from probewise.web.plot_style import (
     CHOSEN,
     CURVE,
     EXCLUSION_EDGE,
+    EXISTING_FACE,
     INK,
     INK_SOFT,
     KIND_STYLE,
@@ -54,7 +56,6 @@ __all__ = [
     "SiteShapes",
     "cost_gain_chart",
     "depth_section",
-    "site_plan",
     "uncertainty_maps",
 ]
 
@@ -186,7 +187,7 @@ def _draw_probes(ax, probes: Sequence[MapProbePoint], *, labels: bool, size: flo
                 [p.y for p in mine],
                 s=size * (0.7 if existing else 1.0),
                 marker=marker,
-                facecolors="#9aa3a9" if existing else face,
+                facecolors=EXISTING_FACE if existing else face,
                 edgecolors=INK,
                 linewidths=0.7,
                 zorder=5,
@@ -402,77 +403,3 @@ def uncertainty_maps(
             bar.ax.tick_params(labelsize=7)
         fig.suptitle(title, fontsize=10, fontweight="bold")
         return to_bytes(fig, "png", dpi=130)
-
-
-def site_plan(
-    shapes: SiteShapes,
-    probes: Sequence[MapProbePoint],
-    *,
-    title: str,
-    crs: str | None,
-    kind_labels: dict[str, str],
-    width_in: float = 7.5,
-) -> bytes:
-    """The site with existing and planned probes, labelled: PNG bytes."""
-    bounds = shapes.bounds()
-    with draw_lock:
-        fig = Figure(figsize=_map_figure_size(bounds, 1, width_in), layout="constrained")
-        ax = fig.add_subplot()
-        _draw_site(ax, shapes, filled=True)
-        _draw_probes(ax, probes, labels=True, size=30)
-        _frame_map(ax, bounds, crs)
-        ax.set_title(title, fontsize=10, fontweight="bold")
-        handles = []
-        for kind in sorted({p.kind for p in probes if not p.existing}):
-            marker, face = KIND_STYLE.get(kind, KIND_STYLE["other"])
-            handles.append(
-                ax.scatter(
-                    [],
-                    [],
-                    marker=marker,
-                    facecolors=face,
-                    edgecolors=INK,
-                    s=30,
-                    label=f"Planned: {kind_labels.get(kind, kind)}",
-                )
-            )
-        if any(p.existing for p in probes):
-            handles.append(
-                ax.scatter(
-                    [],
-                    [],
-                    marker="o",
-                    facecolors="#9aa3a9",
-                    edgecolors=INK,
-                    s=20,
-                    label="Existing probe",
-                )
-            )
-        if shapes.exclusions:
-            handles.append(
-                PathPatch(
-                    MplPath([(0, 0), (1, 0), (1, 1)]),
-                    facecolor="none",
-                    edgecolor=EXCLUSION_EDGE,
-                    hatch="////",
-                    label="Exclusion (no probes)",
-                )
-            )
-        if shapes.areas:
-            handles.append(
-                PathPatch(
-                    MplPath([(0, 0), (1, 0), (1, 1)]),
-                    facecolor="none",
-                    edgecolor=AREA_EDGE,
-                    label="Area of interest",
-                )
-            )
-        if handles:
-            fig.legend(
-                handles=handles,
-                loc="outside lower center",
-                ncols=min(len(handles), 4),
-                fontsize=7,
-                frameon=False,
-            )
-        return to_bytes(fig, "png", dpi=150)

@@ -10,6 +10,7 @@ from matplotlib.figure import Figure
 
 from probewise.web.plot_style import (
     BOUNDARY_COLOURS,
+    EXISTING_FACE,
     INK,
     INK_SOFT,
     KIND_STYLE,
@@ -129,7 +130,7 @@ def _draw_probes(ax, probes: Sequence[SectionProbe], span: float) -> None:
             [probe.distance_m],
             [0],
             marker=marker,
-            facecolors="#9aa3a9" if probe.existing else face,
+            facecolors=EXISTING_FACE if probe.existing else face,
             edgecolors=INK,
             s=26,
             zorder=6,
