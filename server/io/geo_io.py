@@ -323,7 +323,9 @@ def _name_and_weight_columns(
 # Putting polygons into a model
 
 
-def apply_polygons(model: dict, role: str, features: list[dict], mode: str = "replace") -> dict:
+def apply_polygons(
+    model: dict, role: str, features: list[dict], mode: str = "replace", *, check: bool = True
+) -> dict:
     """A new model with the features as its site, zones, areas of interest or exclusions.
 
     ``role``: site | zones | areas (areas_of_interest) | exclusions. ``mode``: replace | append.
@@ -331,7 +333,8 @@ def apply_polygons(model: dict, role: str, features: list[dict], mode: str = "re
     site unions with the current outline. Zones, areas and exclusions are single Polygons in
     the model file, so a MultiPolygon feature becomes one entry per part ("name (part 2)").
     A zone starts with no unit overrides; an area without a weight gets weight 1.
-    Names are made unique by a " (2)" suffix.
+    Names are made unique by a " (2)" suffix. ``check=False`` leaves the model check to the
+    caller (a new outline whose outside parts the caller deals with first).
     """
     import shapely
     from shapely.geometry import shape
@@ -375,7 +378,8 @@ def apply_polygons(model: dict, role: str, features: list[dict], mode: str = "re
                     entry["weight"] = float(f.get("weight", 1.0))
                 entries.append(entry)
         out[key] = entries
-    _validate(out)
+    if check:
+        _validate(out)
     return out
 
 

@@ -358,6 +358,8 @@ def gis_preview(path: Path, filename: str, reader: FormReader, model: dict) -> d
         "columns": [],
         "features": [],
         "outside": [],
+        "outline_outside": [],
+        "outside_choices": CHOICES,
         "problem": None,
         "ready": False,
     }
@@ -372,6 +374,9 @@ def gis_preview(path: Path, filename: str, reader: FormReader, model: dict) -> d
     ]
     if reader.raw("role") != "site":
         preview["outside"] = geo_io.features_outside_site(model, features)
+    elif features:  # a new outline: what it would leave outside, and the choices for it
+        site = geo_io.apply_polygons(model, "site", features, "replace", check=False)["site"]
+        preview["outline_outside"] = find_outside(model, site).lines()
     preview["ready"] = True
     return preview
 
@@ -437,8 +442,12 @@ def import_gis(request: Request, project_id: int, form: PostedForm, db: Db) -> R
             features = geo_io.read_polygons(
                 path, **_read_options(reader, filename, layer, project.model)
             )
-        imported = geo_io.apply_polygons(project.model, role, features, mode)
-        if role != "site":
+        imported = geo_io.apply_polygons(project.model, role, features, mode, check=role != "site")
+        if role == "site":  # what the new outline leaves outside, as the user chose
+            done = apply_choices(imported, imported["site"], read_choices(reader.values()))
+            if done:
+                notes.append("outside the new outline: " + "; ".join(done))
+        else:
             outside = geo_io.features_outside_site(project.model, features)
             if outside:
                 notes.append(

@@ -249,3 +249,40 @@ def test_outline_leaving_probes_outside_lists_them_then_moves_or_drops(client, t
     assert moved["x"] <= 120 and moved["y"] == 60.0  # nearest point inside, same northing
     assert model.get("exclusions") == []
     assert "moved" in notice_of(second.text) and "dropped" in notice_of(second.text)
+
+
+def test_imported_outline_lists_what_it_leaves_outside_and_applies_the_choice(client):
+    import json
+
+    west = [
+        [[451150, 283340], [451450, 283340], [451450, 283600], [451150, 283600], [451150, 283340]]
+    ]  # the demo's western part (invented)
+    content = json.dumps(
+        {
+            "type": "FeatureCollection",
+            "crs": {"type": "name", "properties": {"name": "EPSG:27700"}},
+            "features": [
+                {
+                    "type": "Feature",
+                    "properties": {"name": "West"},
+                    "geometry": {"type": "Polygon", "coordinates": west},
+                }
+            ],
+        }
+    )
+    files = {"gis_file": ("west.geojson", content.encode(), "application/geo+json")}
+    form = {"expected_revision": "1", "role": "site", "mode": "replace"}
+    preview = post(client, "/projects/1/site/import/preview", form, files=files)
+    assert preview.status_code == 200, text_of(preview.text)[:600]
+    listed = text_of(section(preview.text, "import-outline-outside"))
+    assert "existing probe" in listed and "planned probe" in listed
+    assert revision_of(client, 1) == 1  # a preview stores nothing
+    answer = post(
+        client, "/projects/1/site/import", {**form, "outside_planned": "drop"}, files=files
+    )
+    assert answer.status_code == 200, notice_of(answer.text)
+    model = model_of(client, 1)
+    planned = [p for layout in model["layouts"] for p in layout["probes"]]
+    assert planned and all(p["x"] <= 451450 for p in planned)
+    assert all(p["x"] <= 451450 for p in model["existing"])
+    assert "dropped" in notice_of(answer.text)
