@@ -74,9 +74,12 @@ def _geometry_of(item: dict) -> Any:
 
 
 def find_outside(model: dict, site_geometry: dict) -> Outside:
-    """What of ``model`` lies outside ``site_geometry`` (a point on the edge is inside)."""
+    """What of ``model`` lies outside ``site_geometry`` (a point on the edge is inside);
+    nothing for an invalid outline."""
     site = shape(site_geometry)
     found = Outside()
+    if not site.is_valid:  # the model check refuses the outline itself, in its own words
+        return found
     found.existing = [
         str(p["id"])
         for p in model.get("existing") or []
@@ -119,6 +122,8 @@ def apply_choices(model: dict, site_geometry: dict, choices: dict[str, str]) -> 
     site = shape(site_geometry)
     model["site"] = site_geometry
     done: list[str] = []
+    if not site.is_valid:
+        return done
 
     def inside(p: dict) -> bool:
         return site.intersects(Point(p["x"], p["y"]))
