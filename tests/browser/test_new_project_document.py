@@ -14,6 +14,8 @@ import re
 
 from caution_check import assert_caution
 
+from probewise.web.symbols import SYMBOLS
+
 # ISO 216 A4 is 210 x 297 mm = 595.3 x 841.9 pt; ANSI/ASME Y14.1 Letter is 8.5 x 11 in =
 # 612 x 792 pt (1 pt = 1/72 in).
 A4_PT = (595.3, 841.9)
@@ -93,6 +95,12 @@ def test_blank_project_to_printed_schedule(page, server_url, artifacts):
     page.fill("#add-y", "45")
     page.get_by_role("button", name="Add probe").click()
     page.wait_for_selector("#probes-table tbody tr")
+    # the Leaflet map draws the probe in the server's symbol: the borehole outline, code inside
+    icon = page.locator(".options-map .pw-probe-icon .probe-borehole").first
+    icon.wait_for()
+    assert icon.locator("path.probe-shape").get_attribute("d") == SYMBOLS["borehole"].svg_path()
+    assert icon.locator("text.probe-code").text_content() == "BH"
+    assert "Planned Borehole: BH" in page.locator(".probe-legend").inner_text()
 
     page.goto(f"{base}/compare")
     page.wait_for_selector("#ranking-table")
