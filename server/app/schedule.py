@@ -17,6 +17,7 @@ from typing import Any
 from probewise.app.justification import MainBoundary, OptionFigures, justification
 from probewise.app.levels import history_paragraphs
 from probewise.app.project import find_layout
+from probewise.app.schedule_warnings import probe_warnings
 from probewise.caution import CAUTION_LINE
 from probewise.core.evaluate import GridEvaluator, LayoutResult, with_pareto
 from probewise.core.grid import EmptyGridError
@@ -127,8 +128,12 @@ def methods_document(project: Project) -> dict[str, Any]:
 
 
 def probe_rows(project: Project, plans: Sequence[ProbePlan]) -> list[dict[str, Any]]:
-    """The schedule rows of planned probes (what the CSV, GeoJSON and GeoPackage exports hold)."""
-    return schedule_rows(probe_dicts(project, plans), methods_document(project))
+    """The schedule rows of planned probes (what the CSV, GeoJSON and GeoPackage exports hold),
+    each with its ``warnings`` (``probewise.app.schedule_warnings``)."""
+    rows = schedule_rows(probe_dicts(project, plans), methods_document(project))
+    refusals = [plan.probe.id for plan in plans if plan.refuses]
+    warnings = probe_warnings(project, rows, refusals)
+    return [{**row, "warnings": w} for row, w in zip(rows, warnings, strict=True)]
 
 
 def method_rows(project: Project, result: LayoutResult) -> list[MethodRow]:

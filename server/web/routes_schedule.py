@@ -24,7 +24,6 @@ from starlette.responses import Response
 from probewise.app.project import model_layout
 from probewise.app.results import ProjectResults, project_results, results_of
 from probewise.app.schedule import Schedule, build_schedule, main_boundary_index, probe_rows
-from probewise.app.schedule_warnings import probe_warnings
 from probewise.errors import InputError
 from probewise.io.exports import write_schedule_csv, write_schedule_geojson, write_schedule_gpkg
 from probewise.store import StoredProject, get_project
@@ -132,13 +131,12 @@ def schedule_context(
     query = {"layout": chosen, "rev": str(project.revision)}
     base = f"/projects/{project_id}"
     layout_doc = model_layout(entry.model, chosen) or {}
-    warnings = probe_warnings(entry.project, schedule.probes, schedule.refusals)
     context.update(
         chosen=chosen,
         layout_description=layout_doc.get("description") or "",
         schedule=schedule,
         result=schedule.totals,
-        rows=[{**row, "warnings": w} for row, w in zip(schedule.probes, warnings, strict=True)],
+        rows=schedule.probes,  # each with its warnings (probewise.app.schedule_warnings)
         ranking=ranking_rows(entry, chosen),
         plan_key=plan_of(entry, chosen)[1].numbered,
         chart_src=f"{base}/compare/chart.svg?{urlencode(query)}",
