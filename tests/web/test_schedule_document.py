@@ -128,6 +128,14 @@ def test_warnings_column_names_exclusions_deep_pits_and_refusal(client, tiny_mod
     assert "inside the exclusion Live gas main easement" in rows["INX"]
     assert "deep trial pit" in rows["TP1"]
     assert "exclusion" not in rows["BH01"] and "trial pit" not in rows["BH01"]
+    # the download carries the same warnings as the page
+    csv_text = client.get(
+        f"/projects/{project_id}/schedule.csv", params={"layout": model["layouts"][0]["name"]}
+    ).text
+    header, *lines = [line for line in csv_text.splitlines() if not line.startswith("#")]
+    assert header.split(",")[-1] == "warnings"
+    inx = next(line for line in lines if line.startswith("INX,"))
+    assert "inside the exclusion Live gas main easement" in inx
 
 
 def test_schedule_lists_the_options_with_the_compare_chart(client):
