@@ -159,7 +159,7 @@ def test_every_sum_on_the_schedule_carries_the_currency(client):
 def test_printed_words_are_for_the_client(client):
     page = client.get("/projects/1/schedule").text
     printed = re.sub(r'<(\w+)[^>]*class="[^"]*screen-only[^"]*".*?</\1>', "", page, flags=re.S)
-    for word in ("from memory", "no source", "TODO", "internal"):
+    for word in ("from memory", "no source", "TODO", "internal", "Options page", "Methods page"):
         assert word.lower() not in text_of(printed).lower(), word
     assert "Appendix: basis and sources" in text_of(printed)
 
