@@ -37,6 +37,7 @@ from probewise.web.result_figures import (
     raster_of,
     section_layout,
 )
+from probewise.web.symbols import methods_drawn
 from probewise.web.templating import render, render_page_or_fragment
 from probewise.web.workflow import project_context
 
@@ -214,6 +215,17 @@ def boundary_rows(entry: ProjectResults, result: LayoutResult | None) -> list[di
     return rows
 
 
+def probe_legend(model: dict, layout: str | None) -> dict[str, list[dict[str, str]]]:
+    """The symbols of the probes the maps draw: the layout's (planned) and the existing ones."""
+    probes = next(
+        (lay["probes"] for lay in model.get("layouts") or [] if lay["name"] == layout), []
+    )
+    return {
+        "planned": methods_drawn(model, {p["method"] for p in probes}),
+        "existing": methods_drawn(model, {p["method"] for p in model.get("existing") or []}),
+    }
+
+
 def compare_urls(project_id: int, layout: str | None, quantity: str, revision: int) -> dict:
     base = f"/projects/{project_id}/compare"
     query = {"quantity": quantity, "rev": str(revision)}
@@ -257,6 +269,7 @@ def results_context(
         grid=evaluator.grid,
         grid_notice=getattr(evaluator, "grid_notice", None),
         urls=compare_urls(project_id, chosen, quantity, project.revision),
+        map_legend=probe_legend(project.model, chosen),
         result=result,
     )
     if chosen:
