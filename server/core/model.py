@@ -34,10 +34,10 @@ class ModelLimitError(ValueError):
         super().__init__(f"{field}: {problem}")
 
 
-CORRELATED_CELLS_PROBLEM = (
-    "layouts are scored on cell averages, which do not yet handle correlated unit "
-    "thicknesses; posterior, readings and fit do: remove the pairs to compare, value or "
-    "optimise layouts"
+CORRELATED_OPTIMISER_PROBLEM = (
+    "the optimiser's fast updates sum independent units and do not yet handle correlated unit "
+    "thicknesses; evaluate, value, rank, posterior, readings and fit do: remove the pairs to "
+    "optimise"
 )
 
 
