@@ -193,3 +193,17 @@ def value_figures(
         best=best_option(ranking),
         n_options=max(len(ranking), 1),
     )
+
+
+def choice_decisions_now(values: ValueEvaluator) -> dict[str, bool]:
+    """Each choice element's decision on the existing information: True when the cheaper
+    design is acceptable now."""
+    out = {}
+    for s in values.setups:
+        con = s.element.consequence
+        if isinstance(con, ChoiceConsequence):
+            out[s.element.name] = cheaper_allowed_now(
+                s.mean0_m, s.var0_m2, s.element.design_fractile, s.element.adverse,
+                con.threshold_depth_m,
+            )  # fmt: skip
+    return out
