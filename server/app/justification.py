@@ -255,10 +255,11 @@ def _element_now(e, cur: str) -> str:
 
 
 def _element_after(e, cur: str) -> str:
-    saving = e.expected_saving
     money = (
-        f"expected cost {money_text(e.cost_expected, cur)}, saving {signed_money_text(saving, cur)}"
+        f"expected cost {money_text(e.cost_expected, cur)}, saving "
+        f"{signed_money_text(e.expected_saving, cur)}"
     )
+    level = f"the cautious level expected at {metres_text(e.level_after_m)}"
     if e.p_cheaper is None:
         return (
             f"For {e.name} it is expected to move the cautious level to "
@@ -267,11 +268,12 @@ def _element_after(e, cur: str) -> str:
     if e.cheaper_now:
         return (
             f"For {e.name} it has a {percent_text(e.p_cheaper)} chance of confirming the cheaper "
-            f"design and a {percent_text(1.0 - e.p_cheaper)} chance of overturning it ({money})."
+            f"design and a {percent_text(1.0 - e.p_cheaper)} chance of overturning it ({level}; "
+            f"{money})."
         )
     return (
         f"For {e.name} it has a {percent_text(e.p_cheaper)} chance of showing that the cheaper "
-        f"design is acceptable after all ({money})."
+        f"design is acceptable after all ({level}; {money})."
     )
 
 

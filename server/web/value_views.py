@@ -148,3 +148,22 @@ def value_context(entry: ProjectResults, project_id: int, chosen: str | None) ->
         },
         "bits_meaning": BITS_MEANING,
     }
+
+
+def schedule_value_context(entry: ProjectResults, project_id: int, value) -> dict[str, Any]:
+    """What ``_schedule_value.html`` shows: the table the justification quotes (``value``:
+    the schedule's ``ValueFigures``, None without design elements) and the value chart."""
+    if value is None:
+        return {"schedule_value": None, "bits_meaning": BITS_MEANING}
+    query = {"layout": value.option, "rev": str(entry.revision)}
+    points = value_points(entry, value.option)
+    best = optimum_of(points)
+    return {
+        "schedule_value": {
+            "figures": value,
+            "table": value_table(value),
+            "chart_src": f"/projects/{project_id}/value/chart.png?{urlencode(query)}",
+            "optimum": best.name if best else None,
+        },
+        "bits_meaning": BITS_MEANING,
+    }
