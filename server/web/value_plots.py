@@ -136,7 +136,7 @@ def design_level_maps(
     aspect = (frame[3] - frame[2]) / max(frame[1] - frame[0], 1.0)
     panel_w = 4.5
     with draw_lock:
-        fig = Figure(figsize=(9.0, min(max(panel_w * aspect, 1.8), 6.5) + 1.5),
+        fig = Figure(figsize=(9.0, min(max(panel_w * aspect, 1.8), 4.5) + 1.5),
                      layout="constrained")  # fmt: skip
         axes = fig.subplots(1, len(panels), squeeze=False)[0]
         finite = [v[np.isfinite(v)] for _, v in panels]

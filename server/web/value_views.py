@@ -21,6 +21,7 @@ from probewise.app.design_value import (
 )
 from probewise.app.justification import BITS_MEANING, fractile_text, value_table
 from probewise.app.results import ProjectResults
+from probewise.core.model import ChoiceConsequence
 from probewise.core.value import ValueEvaluator
 from probewise.errors import InputError
 from probewise.web.result_figures import existing_points, planned_points, raster_of
@@ -89,7 +90,13 @@ def design_map_png(entry: ProjectResults, index: int, chosen: str) -> bytes:
             polygon_rings(doc.get("geometry")),
             polygon_rings(entry.model.get("site")),
             existing + planned_points(entry, result),
-            title=f"{element.name}: design level of the base of {boundary} ({basis})",
+            title=f"{element.name}: design level of the base of {boundary} ({basis})"
+            + (
+                f"; the cheaper design needs the average's level no {element.adverse} than "
+                f"{element.consequence.threshold_depth_m:g} m"
+                if isinstance(element.consequence, ChoiceConsequence)
+                else ""
+            ),
             quantity_label=f"Design depth, {basis} (m below ground level)",
             crs=entry.project.crs,
         )
