@@ -14,7 +14,8 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Any
 
-from probewise.app.justification import MainBoundary, OptionFigures, justification
+from probewise.app.design_value import ValueFigures, value_evaluator, value_figures
+from probewise.app.justification import MainBoundary, OptionFigures, justification, value_letter
 from probewise.app.levels import history_paragraphs
 from probewise.app.project import find_layout
 from probewise.caution import CAUTION_LINE
@@ -81,6 +82,7 @@ class Schedule:
     main_boundary: str | None
     justification: tuple[str, ...]
     caution: str = CAUTION_LINE
+    value: ValueFigures | None = None  # with design elements: what the option is worth
 
 
 # ---------------------------------------------------------------- parts
@@ -272,19 +274,23 @@ def build_schedule(
         evaluator = evaluator_of(project)
     if results is None:
         results = with_pareto([evaluator.evaluate_layout(lay) for lay in project.layouts])
+    if ranking is None and (layout_name is None or project.elements):
+        ranking = rank_options(
+            project,
+            project.layouts,
+            dict.fromkeys(names, "hand"),  # kinds do not enter the choice
+            evaluator=evaluator,
+            known={r.name: r for r in results},
+        )
     if layout_name is None:
-        if ranking is None:
-            ranking = rank_options(
-                project,
-                project.layouts,
-                dict.fromkeys(names, "hand"),  # kinds do not enter the choice
-                evaluator=evaluator,
-                known={r.name: r for r in results},
-            )
         layout_name = default_layout_name(project, ranking)
     result = next(r for r in results if r.name == layout_name)
     methods = method_rows(project, result)
     main = main_boundary_index(project)
+    value = None
+    if project.elements:  # money leads (docs/model.md "The value of an investigation")
+        values = value_evaluator(project, evaluator)
+        value = value_figures(project, evaluator, values, result, ranking or ())
     return Schedule(
         project_name=project.name,
         currency=project.currency,
@@ -295,8 +301,10 @@ def build_schedule(
         methods=tuple(methods),
         totals=totals_of(result, methods),
         main_boundary=project.ground.boundary_names[main] if main is not None else None,
-        justification=tuple(justification_of(project, evaluator, results, result.name))
+        justification=(tuple(value_letter(value)) if value else ())
+        + tuple(justification_of(project, evaluator, results, result.name))
         + tuple(history_paragraphs(project, result.plans)),  # levels and site history
+        value=value,
     )
 
 

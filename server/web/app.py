@@ -20,6 +20,7 @@ from probewise.store import mark_interrupted_jobs, seed_demo_if_empty
 from probewise.web import (
     routes_api,
     routes_compare,
+    routes_elements,
     routes_existing,
     routes_ground,
     routes_history,
@@ -31,6 +32,7 @@ from probewise.web import (
     routes_readings,
     routes_schedule,
     routes_site,
+    routes_value,
 )
 from probewise.web.deps import database_of
 from probewise.web.errors import install_error_handlers
@@ -52,6 +54,8 @@ ROUTERS = (
     routes_compare.router,
     routes_schedule.router,
     routes_jobs.router,
+    routes_elements.router,
+    routes_value.router,
 )
 
 

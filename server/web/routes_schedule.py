@@ -38,6 +38,7 @@ from probewise.web.result_figures import (
     planned_points,
 )
 from probewise.web.templating import kind_label, render_page_or_fragment
+from probewise.web.value_views import schedule_value_context
 from probewise.web.workflow import project_context
 
 router = APIRouter(include_in_schema=False)
@@ -111,6 +112,7 @@ def schedule_context(
             key: f"{base}/schedule?{urlencode({'layout': chosen, 'paper': key})}" for key in PAPERS
         },
         crs=entry.project.crs,
+        **schedule_value_context(entry, project_id, schedule.value),
     )
     return context
 

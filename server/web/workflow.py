@@ -60,6 +60,12 @@ WORKFLOW_STEPS: tuple[WorkflowStep, ...] = (
         "Investigation methods, rates and precision",
     ),
     WorkflowStep(
+        "elements",
+        "Design elements",
+        "/projects/{project_id}/elements",
+        "Parts of the works whose cost follows a boundary",
+    ),
+    WorkflowStep(
         "options",
         "Options",
         "/projects/{project_id}/options",
