@@ -131,18 +131,21 @@ class BehaviourReport:
     seed: int
 
 
-def boundary_index(model: dict, project: Project, base_of: str | None) -> int:
-    """The boundary a history rule bounds: ``base_of`` (checked), else the first rule's."""
+def boundary_index(
+    model: dict, project: Project, base_of: str | None, field: str = "--base-of"
+) -> int:
+    """The boundary a history rule bounds: ``base_of`` (checked; problems name ``field``),
+    else the first rule's."""
     rules = [r["base_of"] for r in model.get("history") or []]
     names = project.ground.boundary_names
     if base_of is None:
         if not rules:
-            raise InputError("--base-of", "the model has no site history bounding a boundary")
+            raise InputError(field, "the model has no site history bounding a boundary")
         base_of = rules[0]
     if base_of not in names:
-        raise InputError("--base-of", f"{base_of!r} is not a unit with a base in the model")
+        raise InputError(field, f"{base_of!r} is not a unit with a base in the model")
     if base_of not in rules:
-        raise InputError("--base-of", f"no site history rule bounds the base of {base_of!r}")
+        raise InputError(field, f"no site history rule bounds the base of {base_of!r}")
     return names.index(base_of)
 
 
@@ -210,10 +213,14 @@ def _derived(probe, depth, name, value, fill_base_m, settings: StressSettings):
 
 
 def behaviour_report(
-    model: dict, project: Project, base_of: str | None = None, seed: int = 0
+    model: dict,
+    project: Project,
+    base_of: str | None = None,
+    seed: int = 0,
+    field: str = "--base-of",
 ) -> BehaviourReport:
     """The behaviour check of the band of ``base_of`` (default: the first history rule's)."""
-    k = boundary_index(model, project, base_of)
+    k = boundary_index(model, project, base_of, field)
     boundary = project.ground.boundary_names[k]
     probes = model.get("existing") or []
     ids = tuple(p["id"] for p in probes)
