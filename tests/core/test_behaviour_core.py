@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from scipy.stats import ks_2samp, mannwhitneyu
+from scipy.stats import binom, ks_2samp, mannwhitneyu
 
 from probewise.core import behaviour as b
 
@@ -70,12 +70,22 @@ def test_bootstrap_is_reproducible_with_a_seed():
     assert one[0] <= np.median(x) <= one[1]
 
 
-def test_bootstrap_chunks_give_the_same_stream(monkeypatch):
-    x = np.random.default_rng(5).normal(size=30)
-    whole = b.bootstrap_median_ci(x, b.seed_for(1, "w"), n_boot=200)
-    monkeypatch.setattr(b, "BOOTSTRAP_CHUNK_VALUES", 30 * 7)  # 7 resamples a chunk
-    chunked = b.bootstrap_median_ci(x, b.seed_for(1, "w"), n_boot=200)
-    assert whole == chunked
+@pytest.mark.parametrize("k", [7, 8])
+def test_bootstrap_medians_match_resampling(k):
+    # The exact bootstrap distribution of the median (binomial form, Efron 1979, Annals of
+    # Statistics 7(1), from memory), checked against plain resampling: for k odd, P(median* <=
+    # x_(i)) = P(Binomial(k, i / k) >= (k + 1) / 2), the resample holding at least half its
+    # values among the i smallest. For k even, against brute-force resampling (scipy-free).
+    x = np.arange(1.0, k + 1.0)
+    draws = b.bootstrap_medians(x, np.random.default_rng(1), 200_000)
+    idx = np.random.default_rng(2).integers(0, k, size=(200_000, k))
+    brute = np.median(x[idx], axis=1)
+    for i in range(1, k + 1):
+        got = np.mean(draws <= x[i - 1])
+        assert got == pytest.approx(np.mean(brute <= x[i - 1]), abs=0.006)
+        if k % 2:
+            exact = binom.sf((k + 1) // 2 - 1, k, i / k)
+            assert got == pytest.approx(exact, abs=0.006)
 
 
 def test_bootstrap_of_a_constant_sample_is_that_value():
