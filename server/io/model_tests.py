@@ -59,6 +59,24 @@ def unit_problem(parameter: str, unit: object) -> str | None:
     return None
 
 
+_SOUND_PAIRS = frozenset((name, unit) for name in STORED for unit in PARAMETER_BY_NAME[name].units)
+_NUMBER_TYPES = (int, float)
+
+
+def _plainly_sound(test: object, final_depth_m: float) -> bool:
+    """The quick path for a result written the usual way (exact names, plain numbers; floats
+    are finite after stage 2); anything else goes through :func:`_test_problems`."""
+    if type(test) is not dict:
+        return False
+    depth, value = test.get("depth_m"), test.get("value")
+    return (
+        type(depth) in _NUMBER_TYPES
+        and type(value) in _NUMBER_TYPES
+        and 0 <= depth <= final_depth_m
+        and (test.get("parameter"), test.get("unit")) in _SOUND_PAIRS
+    )
+
+
 def _test_problems(at: str, test: object, final_depth_m: float) -> Iterator[InputError]:
     if not isinstance(test, dict):
         yield InputError(at, 'must be {"depth_m", "parameter", "value", "unit"}')
@@ -124,6 +142,9 @@ def tests_problems(model: dict) -> Iterator[InputError]:
         if total > MAX_TESTS:
             yield InputError(at, f"brings the test results to over {MAX_TESTS} in the file")
             return
+        final = probe["final_depth_m"]
         for j, test in enumerate(tests):
-            yield from _test_problems(f"{at}[{j}]", test, probe["final_depth_m"])
+            if _plainly_sound(test, final):
+                continue
+            yield from _test_problems(f"{at}[{j}]", test, final)
     yield from _settings_problems(model)

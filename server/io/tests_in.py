@@ -113,6 +113,18 @@ def _check_result(where: str, probe: str, depth: float, finals: dict[str, float]
         )
 
 
+def _csv_names(parameter: str, unit: str, where: str) -> tuple[str, str]:
+    """The canonical parameter and unit names of a row (case ignored), or InputError."""
+    spec = find_parameter(parameter)
+    problem = parameter_problem(spec.name if spec else parameter)
+    if problem:
+        raise InputError(f"{where}, parameter", problem)
+    problem = unit_problem(spec.name, unit)
+    if problem:
+        raise InputError(f"{where}, unit", problem)
+    return spec.name, next(u for u in spec.units if u.lower() == unit.lower())
+
+
 def read_tests_csv(data: bytes, model: dict, *, filename: str = "tests.csv") -> TestsRead:
     """Results from a CSV table (comma, semicolon or tab separated; heading row is line 1)."""
     text = _decode(data)
@@ -133,6 +145,7 @@ def read_tests_csv(data: bytes, model: dict, *, filename: str = "tests.csv") -> 
     finals = _probe_depths(model)
     out: dict[str, list[dict]] = {}
     counts: dict[str, int] = {}
+    names: dict[tuple[str, str], tuple[str, str]] = {}  # as written -> canonical
     for line, row in enumerate(rows[1:], start=2):
         if not any(cell.strip() for cell in row):
             continue
@@ -146,21 +159,17 @@ def read_tests_csv(data: bytes, model: dict, *, filename: str = "tests.csv") -> 
         if depth is None:
             raise InputError(f"{where}, depth_m", "empty")
         _check_result(where, probe, depth, finals)
-        spec = find_parameter(cells["parameter"])
-        problem = parameter_problem(spec.name if spec else cells["parameter"])
-        if problem:
-            raise InputError(f"{where}, parameter", problem)
-        problem = unit_problem(spec.name, cells["unit"])
-        if problem:
-            raise InputError(f"{where}, unit", problem)
+        key = (cells["parameter"], cells["unit"])
+        if key not in names:
+            names[key] = _csv_names(*key, where)
+        name, unit = names[key]
         value = _number(cells["value"], f"{where}, value", decimal_comma=comma)
         if value is None:
             raise InputError(f"{where}, value", "empty")
-        unit = next(u for u in spec.units if u.lower() == cells["unit"].lower())
         out.setdefault(probe, []).append(
-            {"depth_m": depth, "parameter": spec.name, "value": value, "unit": unit}
+            {"depth_m": depth, "parameter": name, "value": value, "unit": unit}
         )
-        counts[spec.name] = counts.get(spec.name, 0) + 1
+        counts[name] = counts.get(name, 0) + 1
     if not out:
         raise InputError(filename, "has no result rows")
     return TestsRead(out, counts)
