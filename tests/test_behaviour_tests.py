@@ -238,3 +238,16 @@ def test_replace_mode_replaces_only_the_named_probes():
         == next(p for p in model["existing"] if p["id"] == "CPT-2011-02")["tests"]
     )
     assert behaviour_json(behaviour_report(validate_model(merged), core_project(model)))
+
+
+def test_seed_moves_the_intervals_not_the_tests():
+    model = validate_model(json.loads(DEMO.read_text()))
+    project = core_project(model)
+    one = behaviour_json(behaviour_report(model, project, FILL, seed=0))
+    two = behaviour_json(behaviour_report(model, project, FILL, seed=1))
+    assert [p["mannwhitney_p"] for p in one["parameters"]] == [
+        p["mannwhitney_p"] for p in two["parameters"]
+    ]
+    assert [p["median_ci95"] for p in one["parameters"]] != [
+        p["median_ci95"] for p in two["parameters"]
+    ]

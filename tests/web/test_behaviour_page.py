@@ -116,3 +116,21 @@ def test_schedule_carries_the_appendix(empty_client):
     assert page.status_code == 200, page.text
     assert f"Appendix: behaviour of the potential band of the base of {FILL}" in page.text
     assert_caution(page.text)
+
+
+def test_ags4_group_without_its_headings_is_refused_on_the_page(empty_client):
+    from io_builders import ags4_group
+
+    pid = add_project(empty_client, demo())
+    before = revision_of(empty_client, pid)
+    text = ags4_group(
+        "SCPT",
+        ["LOCA_ID", "SCPT_DPTH", "SCPT_FRES"],
+        ["", "m", "MPa"],
+        ["ID", "2DP", "3DP"],
+        [["CPT-2011-01", "1.00", "0.030"]],
+    )
+    answer = _post_tests(empty_client, pid, "gi.ags", text.encode(), before)
+    assert answer.status_code == 422
+    assert "gi.ags SCPT: missing heading(s) SCPT_RES" in answer.text
+    assert revision_of(empty_client, pid) == before
