@@ -19,6 +19,7 @@ from probewise.resources import DEMO_PROJECT_PATH, STATIC_DIR
 from probewise.store import mark_interrupted_jobs, seed_demo_if_empty
 from probewise.web import (
     routes_api,
+    routes_behaviour,
     routes_compare,
     routes_elements,
     routes_existing,
@@ -49,6 +50,7 @@ ROUTERS = (
     routes_history.router,
     routes_existing.router,
     routes_readings.router,
+    routes_behaviour.router,
     routes_methods.router,
     routes_options.router,
     routes_compare.router,

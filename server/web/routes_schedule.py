@@ -28,6 +28,7 @@ from probewise.errors import InputError
 from probewise.io.exports import write_schedule_csv, write_schedule_geojson, write_schedule_gpkg
 from probewise.store import get_project
 from probewise.web import plots
+from probewise.web.behaviour_view import schedule_behaviour
 from probewise.web.deps import Db
 from probewise.web.downloads import attachment_headers, slug_of
 from probewise.web.result_figures import (
@@ -113,6 +114,7 @@ def schedule_context(
         },
         crs=entry.project.crs,
         **schedule_value_context(entry, project_id, schedule.value),
+        behaviour=schedule_behaviour(entry),  # appendix: templates/_schedule_behaviour.html
     )
     return context
 

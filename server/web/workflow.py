@@ -54,6 +54,12 @@ WORKFLOW_STEPS: tuple[WorkflowStep, ...] = (
         "Each reading against what the other probes predicted",
     ),
     WorkflowStep(
+        "behaviour",
+        "Behaviour check",
+        "/projects/{project_id}/behaviour",
+        "Does the potential band behave like the fill or the natural ground?",
+    ),
+    WorkflowStep(
         "methods",
         "Methods",
         "/projects/{project_id}/methods",
