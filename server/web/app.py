@@ -21,6 +21,7 @@ from probewise.web import (
     routes_api,
     routes_compare,
     routes_existing,
+    routes_fieldwork,
     routes_ground,
     routes_history,
     routes_jobs,
@@ -30,6 +31,7 @@ from probewise.web import (
     routes_projects,
     routes_readings,
     routes_schedule,
+    routes_sensitivity,
     routes_site,
 )
 from probewise.web.deps import database_of
@@ -46,11 +48,13 @@ ROUTERS = (
     routes_ground.router,
     routes_history.router,
     routes_existing.router,
+    routes_fieldwork.router,
     routes_readings.router,
     routes_methods.router,
     routes_options.router,
     routes_compare.router,
     routes_schedule.router,
+    routes_sensitivity.router,
     routes_jobs.router,
 )
 

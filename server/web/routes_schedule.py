@@ -37,6 +37,7 @@ from probewise.web.result_figures import (
     image_response,
     planned_points,
 )
+from probewise.web.stage_sections import stage_context
 from probewise.web.templating import kind_label, render_page_or_fragment
 from probewise.web.workflow import project_context
 
@@ -112,6 +113,7 @@ def schedule_context(
         },
         crs=entry.project.crs,
     )
+    context.update(stage_context(entry))  # the last stage against its prediction
     return context
 
 
