@@ -152,7 +152,7 @@ def record_fieldwork(
     """
     k, layout = layout_entry(model, layout_name)
     label = check_stage_name(model, stage)
-    if layout.get("recorded_stage"):
+    if layout.get("recorded_stage") in used_stages(model):  # its probes are still there
         raise InputError(
             "layout",
             f"the fieldwork of {layout_name!r} is already recorded as stage "
