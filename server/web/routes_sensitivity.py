@@ -62,6 +62,9 @@ def sensitivity_context(
     except InputError as exc:
         context["sensitivity_problem"] = f"{exc.field}: {exc.problem}"
         return context
+    except ValueError as exc:  # a fitted model the core refuses (ModelLimitError...)
+        context["sensitivity_problem"] = str(exc)
+        return context
     context.update(sensitivity=sens, sensitivity_sentence=sensitivity_sentence(sens))
     return context
 
