@@ -43,9 +43,7 @@ def main() -> int:
     project = to_core(model)
     kinds = {lay["name"]: "hand" for lay in model["layouts"]}
     one_s, ranking = best_of(args.repeat, lambda: rank_options(project, project.layouts, kinds))
-    all_s, sens = best_of(
-        args.repeat, lambda: ranking_sensitivity(project, kinds, ranking=ranking)
-    )
+    all_s, sens = best_of(args.repeat, lambda: ranking_sensitivity(project, kinds, ranking=ranking))
     result = {
         "case": "demo (3 layouts, design elements)",
         "one_ranking_s": one_s,
