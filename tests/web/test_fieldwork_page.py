@@ -251,3 +251,12 @@ def test_a_recorded_layout_is_not_recorded_twice(client, staged_id):
     assert again.status_code == 422
     assert "already recorded as stage" in html.unescape(again.text)
     assert revision_of(client, staged_id) == before + 1
+    copied = post(
+        client,
+        f"/projects/{staged_id}/options/layouts/duplicate",
+        {"expected_revision": str(before + 1), "layout": LAYOUT},
+    )
+    assert copied.status_code == 200, copied.text
+    layouts = model_of(client, staged_id)["layouts"]
+    copy = next(lay for lay in layouts if lay["name"].startswith(f"{LAYOUT} (copy"))
+    assert "recorded_stage" not in copy  # a copy is a plan not yet drilled
