@@ -242,7 +242,6 @@ def record(request: Request, project_id: int, form: PostedForm, db: Db) -> Respo
     if not result.refused:
         notice = dict(result.notice or {})
         context = fieldwork_context(db, result.project, name, notice=notice)
-        context["recorded"] = result.saved
         return _answer(request, context)
     if result.status_code == 409:  # a stale page or a deleted project: nothing read
         context = fieldwork_context(db, result.project, name, notice=result.notice)
