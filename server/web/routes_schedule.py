@@ -38,6 +38,7 @@ from probewise.web.result_figures import (
     image_response,
     planned_points,
 )
+from probewise.web.stage_sections import stage_context
 from probewise.web.templating import kind_label, render_page_or_fragment
 from probewise.web.value_views import schedule_value_context
 from probewise.web.workflow import project_context
@@ -116,6 +117,7 @@ def schedule_context(
         **schedule_value_context(entry, project_id, schedule.value),
         behaviour=schedule_behaviour(entry),  # appendix: templates/_schedule_behaviour.html
     )
+    context.update(stage_context(entry))  # the last stage against its prediction
     return context
 
 
