@@ -243,6 +243,9 @@ def core_existing(spec: dict, model: dict, methods: dict[str, Method]) -> Existi
         observed=observed,
         precision_m=precision,
         stage=spec.get("stage"),
+        ground_level_m=None
+        if spec.get("ground_level_m") is None
+        else float(spec["ground_level_m"]),
     )
 
 

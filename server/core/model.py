@@ -223,6 +223,7 @@ class ExistingProbe:
     observed: dict[int, float]
     precision_m: dict[int, float]  # boundary index -> std (m) of each recorded depth
     stage: str | None = None  # investigation stage label; None = earlier information
+    ground_level_m: float | None = None  # the probe's own surveyed ground level, project datum
 
 
 @dataclass(frozen=True)

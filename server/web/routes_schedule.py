@@ -59,6 +59,14 @@ def schedule_of(entry: ProjectResults, chosen: str) -> Schedule:
     )
 
 
+def level_datum(project: Any) -> str | None:
+    """The datum name the schedule's level column shows, or None without a ground level."""
+    ground_level = project.ground.ground_level
+    if ground_level is None:
+        return None
+    return ground_level.datum or "project datum"
+
+
 def schedule_context(
     db: sqlite_utils.Database, project_id: int, wanted: str | None, paper: str
 ) -> dict[str, Any]:
@@ -111,6 +119,7 @@ def schedule_context(
             key: f"{base}/schedule?{urlencode({'layout': chosen, 'paper': key})}" for key in PAPERS
         },
         crs=entry.project.crs,
+        level_datum=level_datum(entry.project),
     )
     return context
 
