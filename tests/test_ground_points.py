@@ -53,7 +53,11 @@ def test_csv_semicolon_and_decimal_comma():
         ("x,y,level\n0,0,1\n10,10,2\n20,20,3\n", "gl.csv", "one line"),
         ("x,y,level\n0,0,1\n10,0,high\n0,10,3\n", "gl.csv row 3, column level", "number"),
         ("x,y,level\n0,0,1\n10,0,2\n0,10,\n", "gl.csv row 4, column level", "empty"),
-        ("x,y,level\n0,0,1\n10,0,2\n0,0,3\n", "gl.csv row 4", "repeats the position of gl.csv row 2"),
+        (
+            "x,y,level\n0,0,1\n10,0,2\n0,0,3\n",
+            "gl.csv row 4",
+            "repeats the position of gl.csv row 2",
+        ),  # noqa: E501
         ("x,y,height\n0,0,1\n10,0,2\n0,10,3\n", "gl.csv header", "no level column"),
     ],
 )
@@ -143,6 +147,7 @@ def test_cli_bad_points_exit_2_and_write_nothing(tiny_model, tmp_path, capsys):
     data = tmp_path / "gl.csv"
     data.write_text("x,y,level\n0,0,1\n10,10,2\n20,20,3\n")
     out = tmp_path / "out.json"
-    code = main(["import-gis", str(model_path), str(data), "--role", "ground-level", "-o", str(out)])
+    args = ["import-gis", str(model_path), str(data), "--role", "ground-level", "-o", str(out)]
+    code = main(args)
     assert code == 2 and not out.exists()
     assert "gl.csv: all points lie on one line" in capsys.readouterr().err
