@@ -149,6 +149,7 @@ class Settlement:
     unit_weight_kn_m3: float
     fill_unit_weight_kn_m3: float
     surcharge_kpa: float = 0.0
+    sublayer_m: float = 0.5  # the unit is split into sublayers this thick at most
 
 
 @dataclass(frozen=True)
