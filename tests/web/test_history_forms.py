@@ -48,7 +48,8 @@ def test_forms_build_the_same_sections_as_the_model_file(empty_client):
         fields.update({f"name_{i}": r["name"], f"level_{i}": str(r["level_m"])})
     assert send(empty_client, pid, "/reference-levels", fields).status_code == 200
     rule = target["history"][0]
-    answer = send(empty_client, pid, "/rules/add", {"name": rule["name"], "base_of": rule["base_of"]})
+    new_rule = {"name": rule["name"], "base_of": rule["base_of"]}
+    answer = send(empty_client, pid, "/rules/add", new_rule)
     assert answer.status_code == 200, answer.text[:500]
     for env in rule["environments"]:
         answer = send(empty_client, pid, "/rules/0/environments/add", {
@@ -96,11 +97,19 @@ def test_bad_input_is_named_beside_its_field_and_nothing_is_stored(empty_client)
               "e0": "1.6", "unit_weight_kn_m3": "9", "fill_unit_weight_kn_m3": "18.5"}  # fmt: skip
     answer = send(empty_client, pid, "/rules/0", fields)
     refused(answer, "f-history-0-settlement-unit_weight_kn_m3", "not above water")
-    answer = send(empty_client, pid, "/rules/0", {**fields, "unit_weight_kn_m3": "16.5",
-                                                  "cc_min": "0.6", "cc_max": "0.25"})
+    answer = send(
+        empty_client,
+        pid,
+        "/rules/0",
+        {**fields, "unit_weight_kn_m3": "16.5", "cc_min": "0.6", "cc_max": "0.25"},
+    )
     refused(answer, "f-history-0-settlement-cc-min", "above max")
-    answer = send(empty_client, pid, "/rules/0", {**fields, "unit_weight_kn_m3": "16.5",
-                                                  "compressible_unit": "Glacial till"})
+    answer = send(
+        empty_client,
+        pid,
+        "/rules/0",
+        {**fields, "unit_weight_kn_m3": "16.5", "compressible_unit": "Glacial till"},
+    )
     refused(answer, "f-history-0-settlement-compressible_unit", "basal unit")
     answer = send(empty_client, pid, "/rules/0/environments/0", {
         "form_id": "env-0-0", "name": "Marsh", "polygon": "0, 0\n170, 0\n170, 120",
