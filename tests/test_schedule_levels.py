@@ -76,3 +76,18 @@ def test_no_ground_level_no_level_columns(tiny_model):
     del model["ground_level"]
     rows = schedule_probe_rows(validate_model(model), "Two")
     assert "ground_level_m" not in rows[0] and "target_level_m" not in rows[0]
+
+
+def test_cli_schedule_prints_the_target_level(tiny_model, tmp_path, capsys):
+    from probewise.cli import main
+
+    model = json.loads(json.dumps(tiny_model))
+    model["ground_level"] = {"datum": "mOD", "level_m": 5.0}
+    model["layouts"][0]["probes"][0]["depth_m"] = 7.25
+    path = tmp_path / "model.json"
+    path.write_text(json.dumps(model))
+    assert main(["schedule", str(path), "--layout", model["layouts"][0]["name"]]) == 0
+    text = capsys.readouterr().out
+    assert "Target level (m)" in text
+    first = next(line for line in text.splitlines() if line.startswith("BH01"))
+    assert "-2.25" in first.split()  # 5.00 - 7.25, by hand
