@@ -154,3 +154,30 @@ def test_schedule_shows_target_levels(empty_client, tiny_model):
     assert page.status_code == 200
     assert "Target level (m mOD)" in page.text
     assert ">-2.25<" in page.text  # 5.00 - 7.25, by hand
+
+
+def test_environments_imported_from_a_gis_file(empty_client, tmp_path):
+    import geopandas
+    from shapely.geometry import box
+
+    model = json.loads(DEMO.read_text())  # a site grid: a file without CRS is taken as it is
+    pid = add_project(empty_client, model)
+    frame = geopandas.GeoDataFrame(
+        {"name": ["Old creek", "Old dock"]}, geometry=[box(330, 0, 360, 120), box(360, 0, 400, 60)]
+    )
+    path = tmp_path / "old.gpkg"
+    frame.to_file(path, layer="old", driver="GPKG")
+    files = {"env_file": ("old.gpkg", path.read_bytes(), "application/geopackage+sqlite3")}
+    fields = {"form_id": "import_env_0", "level_min": "MLWS", "level_max": "-1.5"}
+    answer = send(empty_client, pid, "/rules/0/environments/import", fields, files=files)
+    assert answer.status_code == 200, answer.text[:500]
+    envs = model_of(empty_client, pid)["history"][0]["environments"]
+    assert [e["name"] for e in envs[-2:]] == ["Old creek", "Old dock"]
+    assert envs[-1]["geometry"]["coordinates"][0][0] in ([360, 0], [400, 0], [400, 60], [360, 60])
+    assert (envs[-1]["level_min"], envs[-1]["level_max"]) == ("MLWS", -1.5)
+    # a band the wrong way up is refused beside the import's field; nothing stored
+    rev = revision_of(empty_client, pid)
+    bad = {**fields, "level_min": "2", "level_max": "1"}
+    answer = send(empty_client, pid, "/rules/0/environments/import", bad, files=files)
+    refused(answer, "f-import_env_0-level_min", "above level_max")
+    assert revision_of(empty_client, pid) == rev
