@@ -152,7 +152,7 @@ def test_schedule_shows_target_levels(empty_client, tiny_model):
     name = model["layouts"][0]["name"]
     page = empty_client.get(f"/projects/{pid}/schedule", params={"layout": name})
     assert page.status_code == 200
-    assert "Target level (m mOD)" in page.text
+    assert "Target level, mOD (m)" in page.text
     assert ">-2.25<" in page.text  # 5.00 - 7.25, by hand
 
 
