@@ -14,13 +14,16 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Any
 
+import numpy as np
+
 from probewise.app.design_value import ValueFigures, value_evaluator, value_figures
 from probewise.app.justification import MainBoundary, OptionFigures, justification, value_letter
-from probewise.app.levels import history_paragraphs
+from probewise.app.levels import history_paragraphs, probe_ground_levels
 from probewise.app.project import find_layout
 from probewise.caution import CAUTION_LINE
 from probewise.core.evaluate import GridEvaluator, LayoutResult, with_pareto
 from probewise.core.grid import EmptyGridError
+from probewise.core.levels import level_of_depth
 from probewise.core.model import Project
 from probewise.core.options import RankedOption, rank_options
 from probewise.core.planning import ProbePlan
@@ -129,8 +132,20 @@ def methods_document(project: Project) -> dict[str, Any]:
 
 
 def probe_rows(project: Project, plans: Sequence[ProbePlan]) -> list[dict[str, Any]]:
-    """The schedule rows of planned probes (what the CSV, GeoJSON and GeoPackage exports hold)."""
-    return schedule_rows(probe_dicts(project, plans), methods_document(project))
+    """The schedule rows of planned probes (what the CSV, GeoJSON and GeoPackage exports hold).
+
+    With a ground level, each row also holds the ground level at the probe and the level of
+    its target depth (ground level minus depth), project datum (docs/model.md "Levels and
+    site history")."""
+    rows = schedule_rows(probe_dicts(project, plans), methods_document(project))
+    xy = np.array([(r["x"], r["y"]) for r in rows], dtype=float).reshape(-1, 2)
+    gl = probe_ground_levels(project, xy) if rows else None
+    if gl is not None:
+        depth = np.array([r["depth_m"] for r in rows], dtype=float)
+        for row, ground, target in zip(rows, gl, level_of_depth(gl, depth), strict=True):
+            row["ground_level_m"] = float(ground)
+            row["target_level_m"] = float(target)
+    return rows
 
 
 def method_rows(project: Project, result: LayoutResult) -> list[MethodRow]:

@@ -62,6 +62,14 @@ def schedule_of(entry: ProjectResults, chosen: str) -> Schedule:
     )
 
 
+def level_datum(project: Any) -> str | None:
+    """The datum name the schedule's level column shows, or None without a ground level."""
+    ground_level = project.ground.ground_level
+    if ground_level is None:
+        return None
+    return ground_level.datum or "project datum"
+
+
 def schedule_context(
     db: sqlite_utils.Database, project_id: int, wanted: str | None, paper: str
 ) -> dict[str, Any]:
@@ -116,6 +124,7 @@ def schedule_context(
         crs=entry.project.crs,
         **schedule_value_context(entry, project_id, schedule.value),
         behaviour=schedule_behaviour(entry),  # appendix: templates/_schedule_behaviour.html
+        level_datum=level_datum(entry.project),
     )
     context.update(stage_context(entry))  # the last stage against its prediction
     return context
