@@ -16,6 +16,9 @@ SHIPPED = ("templates", "static", "seed_data")
 
 class BuildWithFiles(build_py):
     def run(self):
+        # A build folder left by an earlier build (another package layout) must not leak into
+        # this wheel: start from an empty one.
+        shutil.rmtree(self.build_lib, ignore_errors=True)
         super().run()
         target = Path(self.build_lib) / "probewise" / "_files"
         for name in SHIPPED:

@@ -274,7 +274,7 @@ def main(argv: list[str] | None = None) -> int:
         raise SystemExit(str(exc)) from None
     base = f"http://127.0.0.1:{port}"
     try:
-        first = httpx.get(f"{base}/api/projects").json()[0]["id"]
+        first = min(p["id"] for p in httpx.get(f"{base}/api/projects").json())  # the first demo
         pids = [first]
         while len(pids) < args.projects:
             copy = httpx.post(f"{base}/api/projects/{first}/duplicate")

@@ -31,6 +31,8 @@ COMMANDS = {
     "export": ("export", "export a schedule or the posterior grid to CSV/GeoJSON/GeoPackage"),
     "readings": ("readings", "check every existing reading against its prediction"),
     "fit": ("fit", "fit the ground model to the existing readings"),
+    "behaviour": ("behaviour", "does the potential band behave like the fill or the natural soil"),
+    "import-tests": ("import_tests", "add test results by depth to existing probes (CSV, AGS4)"),
 }
 
 

@@ -161,3 +161,163 @@ def justification(
         unit = f"1,000 {currency}".strip()
         sentences.append(f"That is {per_k:.3f} bits per {unit} spent.")
     return sentences
+
+
+# ---------------------------------------------------------------- with design elements
+# docs/model.md "The value of an investigation": the justification leads with money, written
+# like a letter to a client, every figure quoted from the schedule's design value table
+# (``value_table``, the same rounding).
+
+BITS_MEANING = (
+    "Information gain is counted in bits: 1 bit = the uncertainty (standard deviation) of a "
+    "boundary of interest halved."
+)
+
+
+def signed_money_text(value: float, currency: str) -> str:
+    """Money with a word for a loss: "minus GBP 1,230"."""
+    text = money_text(abs(value), currency)
+    return f"minus {text}" if money_text(value, "").startswith("-") else text
+
+
+def fractile_text(fractile: float, adverse: str) -> str:
+    """The design fractile as the trade writes it: P95 (deeper adverse) or P5 (shallower)."""
+    q = fractile if adverse == "deeper" else 1.0 - fractile
+    return f"P{100 * q:.4g}"
+
+
+def chance_text(element) -> str:
+    """What the option may do to a choice element's design, as the table shows it."""
+    if element.p_cheaper is None:
+        return "\u2014"
+    if element.cheaper_now:
+        return (
+            f"confirms the cheaper design {percent_text(element.p_cheaper)}, "
+            f"overturns it {percent_text(1.0 - element.p_cheaper)}"
+        )
+    return f"makes the cheaper design acceptable {percent_text(element.p_cheaper)}"
+
+
+def value_table(figures) -> dict:
+    """The schedule's design value table as text (``figures``: ``ValueFigures``): the rows the
+    letter quotes, money without the currency (the header names it)."""
+    rows = [
+        {
+            "name": e.name,
+            "boundary": e.boundary,
+            "basis": f"{fractile_text(e.fractile, e.adverse)}, {e.adverse} adverse",
+            "kind": e.kind,
+            "cells": e.cells,
+            "width": metres_text(e.width_now_m),
+            "level_now": metres_text(e.level_now_m),
+            "level_after": metres_text(e.level_after_m),
+            "threshold": metres_text(e.threshold_m) if e.threshold_m is not None else "\u2014",
+            "cost_now": money_text(e.cost_now, ""),
+            "cost_expected": money_text(e.cost_expected, ""),
+            "saving": signed_money_text(e.expected_saving, ""),
+            "chance": chance_text(e),
+        }
+        for e in figures.elements
+    ]
+    return {
+        "rows": rows,
+        "cost_now": money_text(figures.design_cost_now, ""),
+        "cost_expected": money_text(figures.design_cost_expected, ""),
+        "saving": signed_money_text(figures.expected_saving, ""),
+        "gi_cost": money_text(figures.gi_cost, ""),
+        "net_value": signed_money_text(figures.net_value, ""),
+    }
+
+
+def _element_now(e, cur: str) -> str:
+    basis = fractile_text(e.fractile, e.adverse)
+    known = (
+        f"{e.name}: the base of {e.boundary} is known only to within a P5\u2013P95 band of "
+        f"{metres_text(e.width_now_m)} on average"
+    )
+    if e.p_cheaper is None:
+        return (
+            f"{known}, so it is designed at its cautious level ({basis}, "
+            f"{metres_text(e.level_now_m)} on average), which costs about "
+            f"{money_text(e.cost_now, cur)}."
+        )
+    limit = "deeper" if e.adverse == "deeper" else "shallower"
+    verdict = (
+        f"so the cheaper design stands at {money_text(e.cost_now, cur)}"
+        if e.cheaper_now
+        else f"so the robust design is needed, at {money_text(e.cost_now, cur)}"
+    )
+    return (
+        f"{known}; the cheaper design needs the cautious level ({basis}) of its average depth no "
+        f"{limit} than {metres_text(e.threshold_m)}, and on the existing information that level "
+        f"is {metres_text(e.level_now_m)}, {verdict}."
+    )
+
+
+def _element_after(e, cur: str) -> str:
+    money = (
+        f"expected cost {money_text(e.cost_expected, cur)}, saving "
+        f"{signed_money_text(e.expected_saving, cur)}"
+    )
+    level = f"the cautious level expected at {metres_text(e.level_after_m)}"
+    if e.p_cheaper is None:
+        return (
+            f"For {e.name} it is expected to move the cautious level to "
+            f"{metres_text(e.level_after_m)} ({money})."
+        )
+    if e.cheaper_now:
+        return (
+            f"For {e.name} it has a {percent_text(e.p_cheaper)} chance of confirming the cheaper "
+            f"design and a {percent_text(1.0 - e.p_cheaper)} chance of overturning it ({level}; "
+            f"{money})."
+        )
+    return (
+        f"For {e.name} it has a {percent_text(e.p_cheaper)} chance of showing that the cheaper "
+        f"design is acceptable after all ({level}; {money})."
+    )
+
+
+def value_letter(figures) -> list[str]:
+    """The justification's opening with design elements (``figures``: ``ValueFigures``): what is
+    uncertain, what it costs in the design now, what the option is expected to save, net of
+    its cost, and the chance it confirms or overturns each design choice."""
+    cur = figures.currency
+    n = len(figures.elements)
+    sentences = [
+        f"The design of {n} element{'s' if n != 1 else ''} of the works depends on ground that "
+        "is not yet known well enough, so each is designed to a cautious level."
+    ]
+    sentences += [_element_now(e, cur) for e in figures.elements]
+    net = figures.net_value
+    verdict = (
+        f"a net value of {signed_money_text(net, cur)} after paying for it"
+        if net >= 0
+        else f"a net value of {signed_money_text(net, cur)}: on these figures the design "
+        "savings alone do not pay for it"
+    )
+    sentences.append(
+        f"In all, the uncertainty is priced into the design at about "
+        f"{money_text(figures.design_cost_now, cur)} on the existing information. "
+        f"{figures.option} costs {money_text(figures.gi_cost, cur)} and is expected to bring "
+        f"that to {money_text(figures.design_cost_expected, cur)}: an expected saving of "
+        f"{signed_money_text(figures.expected_saving, cur)}, {verdict}."
+    )
+    sentences += [_element_after(e, cur) for e in figures.elements]
+    if figures.best is not None and figures.n_options > 1:
+        name, best_net = figures.best
+        if name != figures.option:
+            sentences.append(
+                f"Of the {figures.n_options} options compared, {name} has the highest net value "
+                f"({signed_money_text(best_net, cur)})."
+            )
+        else:
+            sentences.append(
+                f"None of the other {figures.n_options - 1} options compared has a higher net "
+                "value."
+            )
+    sentences.append(
+        "These are expectations over the readings the investigation may return, not promises; "
+        "the design value table gives each figure."
+    )
+    sentences.append(BITS_MEANING)
+    return sentences

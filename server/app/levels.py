@@ -20,6 +20,27 @@ def ground_levels(project: Project, xy: np.ndarray) -> np.ndarray | None:
     return ground_level_at(project.ground.ground_level, np.asarray(xy, float).reshape(-1, 2))
 
 
+def probe_ground_levels(project: Project, xy: np.ndarray) -> np.ndarray | None:
+    """Ground level (m, project datum) at planned probes (project coordinates), or None when
+    the model has no ground level: the surface's level, except where an existing probe that
+    carries its own surveyed level stands on the same spot (to the centimetre), whose level is
+    taken instead: ``(n, 2) -> (n,)``."""
+    xy = np.asarray(xy, float).reshape(-1, 2)
+    gl = ground_levels(project, xy)
+    if gl is None:
+        return None
+    own = {
+        (round(p.x, 2), round(p.y, 2)): p.ground_level_m
+        for p in project.existing
+        if p.ground_level_m is not None
+    }
+    for i, (x, y) in enumerate(xy):
+        level = own.get((round(float(x), 2), round(float(y), 2)))
+        if level is not None:
+            gl[i] = level
+    return gl
+
+
 def report_at(project: Project, xy: np.ndarray) -> BoundsReport:
     """The bounds and their sources at points in project coordinates; a history conflict
     there is an InputError naming the rule."""

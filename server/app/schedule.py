@@ -14,13 +14,17 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Any
 
-from probewise.app.justification import MainBoundary, OptionFigures, justification
-from probewise.app.levels import history_paragraphs
+import numpy as np
+
+from probewise.app.design_value import ValueFigures, value_evaluator, value_figures
+from probewise.app.justification import MainBoundary, OptionFigures, justification, value_letter
+from probewise.app.levels import history_paragraphs, probe_ground_levels
 from probewise.app.project import find_layout
 from probewise.app.schedule_warnings import probe_warnings
 from probewise.caution import CAUTION_LINE
 from probewise.core.evaluate import GridEvaluator, LayoutResult, with_pareto
 from probewise.core.grid import EmptyGridError
+from probewise.core.levels import level_of_depth
 from probewise.core.model import Project
 from probewise.core.options import RankedOption, rank_options
 from probewise.core.planning import ProbePlan
@@ -82,6 +86,7 @@ class Schedule:
     main_boundary: str | None
     justification: tuple[str, ...]
     caution: str = CAUTION_LINE
+    value: ValueFigures | None = None  # with design elements: what the option is worth
 
 
 # ---------------------------------------------------------------- parts
@@ -129,8 +134,19 @@ def methods_document(project: Project) -> dict[str, Any]:
 
 def probe_rows(project: Project, plans: Sequence[ProbePlan]) -> list[dict[str, Any]]:
     """The schedule rows of planned probes (what the CSV, GeoJSON and GeoPackage exports hold),
-    each with its ``warnings`` (``probewise.app.schedule_warnings``)."""
+    each with its ``warnings`` (``probewise.app.schedule_warnings``).
+
+    With a ground level, each row also holds the ground level at the probe and the level of
+    its target depth (ground level minus depth), project datum (docs/model.md "Levels and
+    site history")."""
     rows = schedule_rows(probe_dicts(project, plans), methods_document(project))
+    xy = np.array([(r["x"], r["y"]) for r in rows], dtype=float).reshape(-1, 2)
+    gl = probe_ground_levels(project, xy) if rows else None
+    if gl is not None:
+        depth = np.array([r["depth_m"] for r in rows], dtype=float)
+        for row, ground, target in zip(rows, gl, level_of_depth(gl, depth), strict=True):
+            row["ground_level_m"] = float(ground)
+            row["target_level_m"] = float(target)
     refusals = [plan.probe.id for plan in plans if plan.refuses]
     warnings = probe_warnings(project, rows, refusals)
     return [{**row, "warnings": w} for row, w in zip(rows, warnings, strict=True)]
@@ -277,19 +293,23 @@ def build_schedule(
         evaluator = evaluator_of(project)
     if results is None:
         results = with_pareto([evaluator.evaluate_layout(lay) for lay in project.layouts])
+    if ranking is None and (layout_name is None or project.elements):
+        ranking = rank_options(
+            project,
+            project.layouts,
+            dict.fromkeys(names, "hand"),  # kinds do not enter the choice
+            evaluator=evaluator,
+            known={r.name: r for r in results},
+        )
     if layout_name is None:
-        if ranking is None:
-            ranking = rank_options(
-                project,
-                project.layouts,
-                dict.fromkeys(names, "hand"),  # kinds do not enter the choice
-                evaluator=evaluator,
-                known={r.name: r for r in results},
-            )
         layout_name = default_layout_name(project, ranking)
     result = next(r for r in results if r.name == layout_name)
     methods = method_rows(project, result)
     main = main_boundary_index(project)
+    value = None
+    if project.elements:  # money leads (docs/model.md "The value of an investigation")
+        values = value_evaluator(project, evaluator)
+        value = value_figures(project, evaluator, values, result, ranking or ())
     return Schedule(
         project_name=project.name,
         currency=project.currency,
@@ -300,8 +320,10 @@ def build_schedule(
         methods=tuple(methods),
         totals=totals_of(result, methods),
         main_boundary=project.ground.boundary_names[main] if main is not None else None,
-        justification=tuple(justification_of(project, evaluator, results, result.name))
+        justification=(tuple(value_letter(value)) if value else ())
+        + tuple(justification_of(project, evaluator, results, result.name))
         + tuple(history_paragraphs(project, result.plans)),  # levels and site history
+        value=value,
     )
 
 

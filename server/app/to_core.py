@@ -173,6 +173,7 @@ def core_history_rule(spec: dict, model: dict) -> HistoryRule:
             unit_weight_kn_m3=float(settle["unit_weight_kn_m3"]),
             fill_unit_weight_kn_m3=float(settle["fill_unit_weight_kn_m3"]),
             surcharge_kpa=float(settle.get("surcharge_kpa") or 0.0),
+            **({"sublayer_m": float(settle["sublayer_m"])} if settle.get("sublayer_m") else {}),
         )
     outside = spec.get("outside")
     return HistoryRule(
@@ -243,6 +244,9 @@ def core_existing(spec: dict, model: dict, methods: dict[str, Method]) -> Existi
         observed=observed,
         precision_m=precision,
         stage=spec.get("stage"),
+        ground_level_m=None
+        if spec.get("ground_level_m") is None
+        else float(spec["ground_level_m"]),
     )
 
 

@@ -4,6 +4,9 @@ FILE is a GeoJSON, a GeoPackage (choose the layer with ``--layer``) or a zipped 
 ROLE is site (the outline: the union of the features, always replacing the current one),
 zones, areas (areas of interest, weight from ``--weight-column``, else 1) or exclusions
 (added to the current ones unless ``--replace``). Data are reprojected into the project CRS.
+ROLE ground-level reads surveyed ground-level points (a point layer with a level attribute,
+``--level-column``, or a CSV table of x, y, level) and replaces the model's ground level
+(docs/import-formats.md "Ground-level points"); ``--datum`` names its datum.
 A project without a CRS (local site grid) takes data in a projected CRS only with
 ``--as-local``, or after ``--set-crs`` gives it one. ``--list-layers`` lists the layers.
 """
@@ -27,10 +30,20 @@ OPTION_FLAGS = {
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("model", metavar="MODEL", help="model file (JSON, schema probewise/1)")
-    parser.add_argument("file", metavar="FILE", help=".geojson, .gpkg or zipped Shapefile .zip")
     parser.add_argument(
-        "--role", choices=("site", "zones", "areas", "exclusions"), help="what the polygons are"
+        "file",
+        metavar="FILE",
+        help=".geojson, .gpkg or zipped Shapefile .zip (.csv too for ground-level points)",
     )
+    parser.add_argument(
+        "--role",
+        choices=("site", "zones", "areas", "exclusions", "ground-level"),
+        help="what the polygons are, or ground-level for surveyed ground-level points",
+    )
+    parser.add_argument(
+        "--level-column", metavar="C", help="ground-level points: column with the levels"
+    )
+    parser.add_argument("--datum", metavar="D", help="ground-level points: the datum's name")
     parser.add_argument("--layer", metavar="L", help="layer of a GeoPackage (or .shp in a zip)")
     parser.add_argument("--list-layers", action="store_true", help="list the layers and stop")
     parser.add_argument("--name-column", metavar="C", help='column with names (default "name")')
@@ -76,6 +89,8 @@ def run(args: argparse.Namespace) -> int:
         raise InputError("--role", "say what the polygons are: site, zones, areas or exclusions")
     if not args.output:
         raise InputError("-o", "give the model file to write (-o OUT)")
+    if args.role == "ground-level":
+        return run_ground_level(args)
     if args.weight_column and args.role != "areas":
         raise InputError("--weight-column", "weights belong to areas of interest (--role areas)")
     model = read_model(args.model)
@@ -122,4 +137,33 @@ def run(args: argparse.Namespace) -> int:
     )
     for note in notes:
         print(f"note: {note}")
+    return 0
+
+
+def run_ground_level(args: argparse.Namespace) -> int:
+    """``--role ground-level``: the model's ground level becomes the file's surveyed points."""
+    from probewise.errors import OptionNeededError
+    from probewise.io.ground_points import apply_ground_points, read_points_file
+
+    model = read_model(args.model)
+    if not Path(args.file).exists():
+        raise InputError("FILE", f"file not found: {args.file}")
+    try:
+        points = read_points_file(
+            args.file,
+            layer=args.layer,
+            target_crs=model.get("crs"),
+            level_column=args.level_column,
+            source_crs_override=args.source_crs,
+            assume_local=args.as_local,
+        )
+    except OptionNeededError as exc:
+        raise InputError(exc.field, f"{exc.problem} ({OPTION_FLAGS[exc.option]})") from None
+    write_model(apply_ground_points(model, points, args.datum), args.output)  # validates
+    levels = [p["level_m"] for p in points]
+    print(
+        f"read {len(points)} ground-level point(s) from {Path(args.file).name} "
+        f"(levels {min(levels):.2f} to {max(levels):.2f} m); ground level replaced; "
+        f"wrote {args.output}"
+    )
     return 0

@@ -149,6 +149,13 @@ def run(args: argparse.Namespace) -> int:
 
     _, project = load_project(args.model)
     budgets = parse_budgets(args.budgets)
+    if budgets is None and project.ground.thickness_correlation:
+        # the optimiser refuses correlated thicknesses; the other options can still be ranked
+        budgets = []
+        sys.stderr.write(
+            "rank: no optimised options: the optimiser does not yet handle correlated unit "
+            "thicknesses (thickness_correlation); give --budgets to see the refusal\n"
+        )
     hand = list(project.layouts)
     taken = {lay.name for lay in hand}
     guidance = guidance_layouts(args.guidance, project, taken)

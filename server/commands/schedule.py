@@ -111,10 +111,16 @@ def _probe_lines(schedule) -> list[str]:
         f"Est. cost{_currency_suffix(schedule)}",
         "Expected to reveal the base of",
     ]
+    left = {0, 1, 6}
+    if any("target_level_m" in row for row in schedule.probes):  # the model has a ground level
+        for line, row in zip(probe_rows, schedule.probes, strict=True):
+            line.insert(5, _num(row["target_level_m"], 2))
+        probe_headers.insert(5, "Target level (m)")
+        left = {0, 1, 7}
     parts = ["PROBES", ""]
     if probe_rows:
         parts += [
-            wrapped_table(probe_headers, probe_rows, left={0, 1, 6}),
+            wrapped_table(probe_headers, probe_rows, left=left),
             "",
             _wrap(
                 "Target depth: the P95 depth of the deepest boundary of interest the method can "

@@ -15,6 +15,11 @@ sub-point sits at the centre) and, with ``D_b(cell)`` the mean of ``D_b`` over t
 
 Hard bounds of a cell (for the truncated P5/P95) are those at its centre.
 
+Independent units sum one term per unit (the covariance of boundaries j and k shares units
+i <= min(j, k)); correlated thicknesses (a linear model of coregionalisation,
+``probewise.core.field.boundary_loadings``) weight each independent field l by the boundary's
+loading A_kl at every sub-point instead, so a cell carries ``(q, B, B)`` loadings.
+
 ``CellBlocks`` is built once per grid and reused by every state: the baseline and every layout
 (``probewise.core.evaluate``) and the optimiser's targets (``probewise.core.optimise``). Covariances
 with the sub-points are averaged chunk by chunk so memory stays bounded on large grids.
@@ -28,8 +33,13 @@ import numpy as np
 
 from probewise.core.correlation import correlate, correlate_unit, pairwise_distance_m
 from probewise.core.covariance import distinct_spots
-from probewise.core.field import UnitFields, prior_boundary_moments, unit_fields
-from probewise.core.model import CORRELATED_CELLS_PROBLEM, GroundModel, ModelLimitError
+from probewise.core.field import (
+    UnitFields,
+    boundary_loadings,
+    prior_boundary_moments,
+    unit_fields,
+)
+from probewise.core.model import GroundModel
 from probewise.core.posterior import PosteriorState, Prediction
 
 SUBPOINTS_PER_SIDE = 4  # k: a cell is k x k sub-points
@@ -67,6 +77,9 @@ class CellBlocks:
     spacing_m : float
         Side of a cell (m).
     per_side : int
+    sub_load_m : (n, q, B, B) float or None
+        Correlated thicknesses only: loading ``A_kl`` of boundary k on independent field l at
+        every sub-point (None for independent units, whose loadings are the stds).
     """
 
     xy: np.ndarray
@@ -77,6 +90,7 @@ class CellBlocks:
     prior_var_m2: np.ndarray
     spacing_m: float
     per_side: int
+    sub_load_m: np.ndarray | None = None
 
     @property
     def n_cells(self) -> int:
@@ -113,8 +127,6 @@ def cell_blocks(
     -------
     CellBlocks
     """
-    if ground.thickness_correlation:  # the unit-by-unit sums below assume independent units
-        raise ModelLimitError("thickness_correlation", CORRELATED_CELLS_PROBLEM)
     xy = np.asarray(xy, dtype=float).reshape(-1, 2)
     n, B = len(xy), ground.n_boundaries
     offsets = subpoint_offsets_m(spacing_m, per_side)
@@ -124,21 +136,32 @@ def cell_blocks(
     sub_mean, _ = prior_boundary_moments(sub_fields)
     std = sub_fields.std_m.reshape(n, q, B)
     h = pairwise_distance_m(offsets, offsets)  # (q, q), the same in every cell
-    unit_var = np.empty((n, B))
-    for i in range(B):
-        corr = ground.units[i].correlation
-        rho = correlate_unit(corr, h)
-        # mean over pairs (a, b) of s_i(a) s_i(b) rho_i(|a - b|)
-        unit_var[:, i] = np.einsum("na,ab,nb->n", std[:, :, i], rho, std[:, :, i]) / (q * q)
+    load = None
+    if sub_fields.coreg is not None:
+        load = boundary_loadings(sub_fields).reshape(n, q, B, B)
+        prior_var = np.zeros((n, B))
+        for i in range(B):
+            rho = correlate_unit(ground.units[i].correlation, h)
+            # mean over pairs (a, b) of A_ki(a) A_ki(b) rho_i(|a - b|), every boundary k
+            spread = np.einsum("nak,ab->nbk", load[:, :, :, i], rho)
+            prior_var += np.einsum("nbk,nbk->nk", spread, load[:, :, :, i]) / (q * q)
+    else:
+        unit_var = np.empty((n, B))
+        for i in range(B):
+            rho = correlate_unit(ground.units[i].correlation, h)
+            # mean over pairs (a, b) of s_i(a) s_i(b) rho_i(|a - b|)
+            unit_var[:, i] = np.einsum("na,ab,nb->n", std[:, :, i], rho, std[:, :, i]) / (q * q)
+        prior_var = np.cumsum(unit_var, axis=1)
     return CellBlocks(
         xy=xy,
         fields=unit_fields(ground, xy, origin),
         sub_xy=sub_xy,
         sub_std_m=np.ascontiguousarray(std),
         prior_mean_m=sub_mean.reshape(n, q, B).mean(axis=1),
-        prior_var_m2=np.cumsum(unit_var, axis=1),
+        prior_var_m2=prior_var,
         spacing_m=float(spacing_m),
         per_side=int(per_side),
+        sub_load_m=load,
     )
 
 
@@ -266,10 +289,48 @@ def block_cross_covariance(
     # a probe reads several boundaries at one spot: average over the sub-points once per spot
     spots, spot_of, first = distinct_spots(xy_obs)
     deepest = int(bnd_obs.max()) + 1  # deeper units never enter these covariances
+    if blocks.sub_load_m is not None:
+        load_obs = boundary_loadings(fields_obs)[np.arange(m), bnd_obs, :deepest]  # (m, deepest)
+        return _block_cross_coregionalised(ground, spots, spot_of, load_obs, blocks)
     terms = block_unit_terms(ground, spots, fields_obs.std_m[first], blocks, deepest)
     cum = np.cumsum(terms, axis=0)  # (deepest, u, n)
     level = np.minimum(bnd_obs[:, None], np.arange(B)[None, :])  # (m, B)
     return cum[level, spot_of[:, None]]
+
+
+def _block_cross_coregionalised(
+    ground: GroundModel,
+    spots: np.ndarray,
+    spot_of: np.ndarray,
+    load_obs: np.ndarray,
+    blocks: CellBlocks,
+) -> np.ndarray:
+    """:func:`block_cross_covariance` for correlated thicknesses: ``(m, B, n)``.
+
+    ``out[j, k, c] = sum_l A_{b_j l}(x_j) * mean over sub-points a of c of A_kl(a) rho_l``,
+    with ``load_obs[j, l] = A_{b_j l}(x_j)`` for the fields ``l`` the readings load on.
+    """
+    m, fields = load_obs.shape
+    n, q, B = blocks.n_cells, blocks.q, blocks.sub_load_m.shape[2]
+    u = len(spots)
+    out = np.zeros((m, B, n))
+    step = max(1, CHUNK_ENTRIES // (u * q))
+    sub = blocks.sub_xy.reshape(n, q, 2)
+    for c0 in range(0, n, step):
+        c1 = min(n, c0 + step)
+        d2 = _squared_distances(spots, sub[c0:c1].reshape(-1, 2))  # (u, (c1 - c0) * q)
+        h = np.sqrt(d2)
+        rho = np.empty_like(d2)
+        for i in range(fields):
+            corr = ground.units[i].correlation
+            _correlate_into(rho, corr.model, h, d2, corr.range_m, corr.nugget)
+            # mean over the sub-points of A_ki(a) rho_i(|x - a|), every boundary k: (u, B, cc)
+            term = np.einsum(
+                "ucq,cqk->ukc", rho.reshape(u, c1 - c0, q), blocks.sub_load_m[c0:c1, :, :, i]
+            )
+            out[:, :, c0:c1] += load_obs[:, i, None, None] * term[spot_of]
+    out /= q
+    return out
 
 
 def predict_cells(

@@ -6,10 +6,12 @@ subdivision; the sub-points of every cell lie on one regular lattice of spacing 
 average is Gaussian; as one linear functional of the field:
 
 - its prior mean is the mean of the sub-points' prior means;
-- its prior variance is the mean prior covariance over all pairs of its sub-points. With
-  independent unit thicknesses this is, per unit, the mean over pairs of s(a) s(b) rho(|a - b|):
-  a sum over lattice offsets of rho times the autocorrelation of the std field, computed with a
-  zero-padded FFT (exact, O(N log N) instead of O(N^2) for N sub-points);
+- its prior variance is the mean prior covariance over all pairs of its sub-points: per
+  independent field l (a unit, or a latent field of correlated thicknesses), the mean over
+  pairs of A(a) A(b) rho_l(|a - b|) with A the boundary's loading on that field
+  (``probewise.core.field.boundary_loadings``; A = the unit's std s for independent units): a
+  sum over lattice offsets of rho times the autocorrelation of the loading field, computed
+  with a zero-padded FFT (exact, O(N log N) instead of O(N^2) for N sub-points);
 - its covariance with a reading is the mean over the sub-points;
 - its posterior follows by the same Cholesky conditioning as every other target
   (``probewise.core.posterior``): w = L^-1 c, var = prior var - w'w, mean moved by the known
@@ -24,7 +26,12 @@ import numpy as np
 from scipy.linalg import solve_triangular
 
 from probewise.core.correlation import correlate, correlate_unit, pairwise_distance_m
-from probewise.core.field import UnitFields, prior_boundary_moments, unit_fields
+from probewise.core.field import (
+    UnitFields,
+    boundary_loadings,
+    prior_boundary_moments,
+    unit_fields,
+)
 from probewise.core.grid import EvaluationGrid
 from probewise.core.model import GroundModel
 from probewise.core.posterior import Observations, PosteriorState
@@ -138,12 +145,11 @@ def element_average(
     fields = unit_fields(ground, sub_xy, grid.origin)
     prior_mean = float(prior_boundary_moments(fields)[0][:, boundary].mean())
     step = grid.spacing_m / per_side
+    load = boundary_loadings(fields)[:, boundary, :]  # (N, B); field l enters for l <= boundary
     var = 0.0
     for i in range(boundary + 1):
         corr = ground.units[i].correlation
-        var += lattice_pair_mean(
-            lattice, fields.std_m[:, i], step, corr.model, corr.range_m, corr.nugget
-        )
+        var += lattice_pair_mean(lattice, load[:, i], step, corr.model, corr.range_m, corr.nugget)
     return ElementAverage(boundary, sub_xy, fields, prior_mean, var)
 
 
@@ -152,30 +158,30 @@ def average_cross_covariance(
 ) -> np.ndarray:
     """Covariance ``(m,)`` of each reading with the element average (mean over sub-points).
 
-    A reading of boundary b at x and the average of boundary k share units i <= min(b, k):
-    the covariance is the sum over those units of s_i(x) times the mean over the sub-points
-    a of s_i(a) rho_i(|x - a|). Each distinct reading spot is correlated once.
+    A reading of boundary b at x and the average of boundary k share the fields l <= min(b, k):
+    the covariance is the sum over those fields of A_bl(x) times the mean over the sub-points
+    a of A_kl(a) rho_l(|x - a|) (A the loadings, ``boundary_loadings``; A_bl = s_l for
+    independent units). Each distinct reading spot is correlated once.
     """
     if obs.size == 0:
         return np.zeros(0)
     k = average.boundary
     spots, spot_of = np.unique(obs.xy, axis=0, return_inverse=True)
     spot_of = spot_of.reshape(-1)
-    first = np.zeros(len(spots), dtype=int)
-    first[spot_of] = np.arange(obs.size)
     deepest = min(int(obs.boundary.max()), k)
-    terms = np.zeros((deepest + 1, len(spots)))  # mean over a of s_i(a) rho_i, per unit
+    load_avg = boundary_loadings(average.fields)[:, k, :]  # (N, B)
+    terms = np.zeros((deepest + 1, len(spots)))  # mean over a of A_kl(a) rho_l, per field
     n = len(average.sub_xy)
     for a0 in range(0, n, SUBPOINT_CHUNK):
         a1 = min(n, a0 + SUBPOINT_CHUNK)
         h = pairwise_distance_m(spots, average.sub_xy[a0:a1])
         for i in range(deepest + 1):
             corr = ground.units[i].correlation
-            terms[i] += correlate_unit(corr, h) @ average.fields.std_m[a0:a1, i]
-    terms *= fields_obs.std_m[first, : deepest + 1].T / n
-    cum = np.cumsum(terms, axis=0)  # (units, spots)
-    level = np.minimum(obs.boundary, k)
-    return cum[level, spot_of]
+            terms[i] += correlate_unit(corr, h) @ load_avg[a0:a1, i]
+    terms /= n
+    # loading of each reading on each field: (m, deepest + 1), zero for fields below it
+    load_obs = boundary_loadings(fields_obs)[np.arange(obs.size), obs.boundary, : deepest + 1]
+    return np.einsum("ml,lm->m", load_obs, terms[:, spot_of])
 
 
 def condition_average(

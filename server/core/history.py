@@ -180,10 +180,10 @@ def settlement_range_m(
         return spec.fill_unit_weight_kn_m3 * (ground_level_m - former_m) + spec.surcharge_kpa
 
     s_min = consolidation_settlement_m(
-        spec.cc_min, spec.e0, g_eff, load(former_max_m), fields.min_m[:, c]
+        spec.cc_min, spec.e0, g_eff, load(former_max_m), fields.min_m[:, c], spec.sublayer_m
     )
     s_max = consolidation_settlement_m(
-        spec.cc_max, spec.e0, g_eff, load(former_min_m), fields.max_m[:, c]
+        spec.cc_max, spec.e0, g_eff, load(former_min_m), fields.max_m[:, c], spec.sublayer_m
     )
     return s_min, s_max
 

@@ -34,10 +34,10 @@ class ModelLimitError(ValueError):
         super().__init__(f"{field}: {problem}")
 
 
-CORRELATED_CELLS_PROBLEM = (
-    "layouts are scored on cell averages, which do not yet handle correlated unit "
-    "thicknesses; posterior, readings and fit do: remove the pairs to compare, value or "
-    "optimise layouts"
+CORRELATED_OPTIMISER_PROBLEM = (
+    "the optimiser's fast updates sum independent units and do not yet handle correlated unit "
+    "thicknesses; evaluate, value, rank, posterior, readings and fit do: remove the pairs to "
+    "optimise"
 )
 
 
@@ -149,6 +149,7 @@ class Settlement:
     unit_weight_kn_m3: float
     fill_unit_weight_kn_m3: float
     surcharge_kpa: float = 0.0
+    sublayer_m: float = 0.5  # the unit is split into sublayers this thick at most
 
 
 @dataclass(frozen=True)
@@ -223,6 +224,7 @@ class ExistingProbe:
     observed: dict[int, float]
     precision_m: dict[int, float]  # boundary index -> std (m) of each recorded depth
     stage: str | None = None  # investigation stage label; None = earlier information
+    ground_level_m: float | None = None  # the probe's own surveyed ground level, project datum
 
 
 @dataclass(frozen=True)

@@ -59,7 +59,7 @@ from probewise.core.greedy import (  # noqa: F401 - public here as before
     greedy_run,
 )
 from probewise.core.grid import EvaluationGrid
-from probewise.core.model import CORRELATED_CELLS_PROBLEM, Layout, PlannedProbe, Project
+from probewise.core.model import CORRELATED_OPTIMISER_PROBLEM, Layout, PlannedProbe, Project
 from probewise.core.optimise_types import (  # noqa: F401 - public here as before
     FINALISTS,
     KERNEL_LOCK,
@@ -167,7 +167,7 @@ def prepare_optimisation(
     """
     report = progress or (lambda f, m: None)
     if project.ground.thickness_correlation:  # the greedy updates sum independent units
-        raise OptimiseError(CORRELATED_CELLS_PROBLEM, "thickness_correlation")
+        raise OptimiseError(CORRELATED_OPTIMISER_PROBLEM, "thickness_correlation")
     analysis = ProjectAnalysis(project)
     methods = analysis.methods
     allowed_ids = tuple(dict.fromkeys(options.methods)) if options.methods else tuple(methods)

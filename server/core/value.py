@@ -213,6 +213,51 @@ def expected_quantity_cost(
     return float(consequence.rate_per_m3 * cell_area_m2 * total)
 
 
+def expected_design_depth_m(
+    mean0_m: np.ndarray,
+    var0_m2: np.ndarray,
+    var1_m2: np.ndarray,
+    lo_m: np.ndarray,
+    hi_m: np.ndarray,
+    fractile: float,
+    adverse: str,
+    nodes: int = GAUSS_HERMITE_NODES,
+) -> np.ndarray:
+    """Expected design depth of each cell once readings with variance ``var1`` come in.
+
+    E over m' ~ N(m0, v0 - v1) of the design depth of (m', v1), by Gauss-Hermite quadrature
+    (probabilists' weight). Without bounds it is m0 + z sqrt(v1) exactly, z = Phi^-1(q).
+
+    Parameters
+    ----------
+    mean0_m, var0_m2, var1_m2, lo_m, hi_m : (c,) float
+        Now: mean and variance; after: variance (``var1 <= var0``); hard bounds.
+    fractile : float
+    adverse : {"deeper", "shallower"}
+    nodes : int
+
+    Returns
+    -------
+    (c,) float
+        Expected design depth (m); the design depth now where v1 = v0.
+    """
+    x, w = hermegauss(nodes)
+    w = w / np.sqrt(2.0 * np.pi)
+    m0, v0, v1, lo, hi = (
+        np.asarray(a, dtype=float).reshape(-1) for a in (mean0_m, var0_m2, var1_m2, lo_m, hi_m)
+    )
+    spread = np.sqrt(np.maximum(v0 - v1, 0.0))
+    std1 = np.sqrt(np.maximum(np.minimum(v1, v0), 0.0))
+    q = design_quantile(fractile, adverse)
+    out = np.empty_like(m0)
+    for c0 in range(0, len(m0), CELL_CHUNK):
+        s = slice(c0, c0 + CELL_CHUNK)
+        m_after = m0[s, None] + spread[s, None] * x[None, :]  # (chunk, nodes)
+        depth = truncated_quantiles(m_after, std1[s, None], lo[s, None], hi[s, None], q)
+        out[s] = depth @ w
+    return out
+
+
 # ---------------------------------------------------------------- choice elements
 
 

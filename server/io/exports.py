@@ -44,6 +44,14 @@ SCHEDULE_COLUMNS = (
     "observes",
     "cost",
 )
+# With a ground level, the rows also hold the ground level and the target depth's level
+# (project datum), placed after the depth.
+LEVEL_COLUMNS = ("ground_level_m", "target_level_m")
+_COLUMN_ORDER = (
+    SCHEDULE_COLUMNS[: SCHEDULE_COLUMNS.index("depth_m") + 1]
+    + LEVEL_COLUMNS
+    + SCHEDULE_COLUMNS[SCHEDULE_COLUMNS.index("depth_m") + 1 :]
+)
 GRID_FIELDS = ("mean_m", "std_m", "p05_m", "p50_m", "p95_m")
 
 
@@ -109,8 +117,8 @@ def _columns(rows: Sequence[dict]) -> list[str]:
     for row in rows:
         for key in row:
             seen.setdefault(key, None)
-    known = [c for c in SCHEDULE_COLUMNS if c in seen]
-    return known + [k for k in seen if k not in SCHEDULE_COLUMNS]
+    known = [c for c in _COLUMN_ORDER if c in seen]
+    return known + [k for k in seen if k not in _COLUMN_ORDER]
 
 
 def write_schedule_csv(rows: Sequence[dict], path_or_buffer: str | Path | IO[str]) -> None:

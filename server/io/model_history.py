@@ -115,6 +115,8 @@ class SettlementSpec(_Base):
     unit_weight_kn_m3: Annotated[float, Field(le=100)]
     fill_unit_weight_kn_m3: Annotated[float, Field(gt=0, le=100)]
     surcharge_kpa: Annotated[float, Field(ge=0, le=1e5)] = 0.0
+    # largest sublayer of the compressible unit (m); absent: 0.5 (probewise.core.history)
+    sublayer_m: Annotated[float, Field(gt=0, le=10)] | None = None
 
     @model_validator(mode="after")
     def _heavier_than_water(self) -> SettlementSpec:
@@ -241,6 +243,9 @@ def history_problems(data: dict, normal: dict) -> Iterator[InputError]:
     out = sections.model_dump(mode="json")
     if out["ground_level"] is not None:  # the one of level_m / points given, no null
         out["ground_level"] = {k: v for k, v in out["ground_level"].items() if v is not None}
+    for rule in out["history"]:  # an absent sublayer thickness stays absent, not null
+        if rule["settlement"] is not None and rule["settlement"]["sublayer_m"] is None:
+            del rule["settlement"]["sublayer_m"]
     for key in SECTIONS:
         if key in given:
             normal[key] = out[key]

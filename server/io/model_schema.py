@@ -179,7 +179,7 @@ class CurvePoint(_Base):
 
 # Optional fields that stay absent, not null, in the normalised document, per section.
 OPTIONAL_KEYS = {
-    "layouts": ("origin", "description", "budget", "optimiser_curve"),
+    "layouts": ("origin", "description", "budget", "optimiser_curve", "recorded_stage"),
     "units": ("presence",),
     "existing": ("ground_level_m",),
 }
@@ -195,6 +195,7 @@ class Layout(_Base):
     description: str | None = None
     budget: Annotated[float, Field(gt=0)] | None = None
     optimiser_curve: list[CurvePoint] | None = None
+    recorded_stage: Name | None = None  # the stage its fieldwork was recorded as
 
 
 class ModelFile(_Base):

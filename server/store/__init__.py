@@ -39,7 +39,7 @@ from probewise.store.projects import (
     save_project,
     undo,
 )
-from probewise.store.seed import seed_demo_if_empty
+from probewise.store.seed import seed_demo_if_empty, seed_demos_if_empty
 
 __all__ = [
     "SCHEMA_VERSION",
@@ -77,6 +77,7 @@ __all__ = [
     "save_project",
     "schema_version",
     "seed_demo_if_empty",
+    "seed_demos_if_empty",
     "transaction",
     "undo",
     "update_job",

@@ -15,12 +15,15 @@ from pathlib import Path
 from fastapi import FastAPI
 from fastapi.staticfiles import StaticFiles
 
-from probewise.resources import DEMO_PROJECT_PATH, STATIC_DIR
-from probewise.store import mark_interrupted_jobs, seed_demo_if_empty
+from probewise.resources import DEMO_PROJECT_PATHS, STATIC_DIR
+from probewise.store import mark_interrupted_jobs, seed_demos_if_empty
 from probewise.web import (
     routes_api,
+    routes_behaviour,
     routes_compare,
+    routes_elements,
     routes_existing,
+    routes_fieldwork,
     routes_ground,
     routes_history,
     routes_jobs,
@@ -30,7 +33,9 @@ from probewise.web import (
     routes_projects,
     routes_readings,
     routes_schedule,
+    routes_sensitivity,
     routes_site,
+    routes_value,
 )
 from probewise.web.deps import database_of
 from probewise.web.errors import install_error_handlers
@@ -46,12 +51,17 @@ ROUTERS = (
     routes_ground.router,
     routes_history.router,
     routes_existing.router,
+    routes_fieldwork.router,
     routes_readings.router,
+    routes_behaviour.router,
     routes_methods.router,
     routes_options.router,
     routes_compare.router,
     routes_schedule.router,
+    routes_sensitivity.router,
     routes_jobs.router,
+    routes_elements.router,
+    routes_value.router,
 )
 
 
@@ -70,7 +80,7 @@ def create_app(
     machine's own names when bound to every interface; tests may add "testserver").
     On startup the database is opened (and migrated), jobs left running by a previous process
     are marked interrupted and, when ``seed`` is set and the database holds no project, the
-    invented demo project is loaded.
+    invented demo projects are loaded.
     """
 
     @asynccontextmanager
@@ -78,10 +88,11 @@ def create_app(
         db = database_of(app)
         mark_interrupted_jobs(db)
         if seed:
-            if DEMO_PROJECT_PATH.is_file():
-                seed_demo_if_empty(db, DEMO_PROJECT_PATH)
-            else:
-                log.warning("demo project %s is missing; not seeded", DEMO_PROJECT_PATH)
+            present = [p for p in DEMO_PROJECT_PATHS if p.is_file()]
+            for missing in sorted(set(DEMO_PROJECT_PATHS) - set(present)):
+                log.warning("demo project %s is missing; not seeded", missing)
+            if present:
+                seed_demos_if_empty(db, present)
         try:
             yield
         finally:

@@ -55,7 +55,7 @@ def rename_unit(model: dict, old: str, new: str) -> None:
 
     for zone in model.get("zones") or []:
         zone["units"] = renamed_keys(zone.get("units"))
-    for key in ("boundaries_of_interest", "bounds"):
+    for key in ("boundaries_of_interest", "bounds", "elements"):
         for item in model.get(key) or []:
             if item.get("base_of") == old:
                 item["base_of"] = new
@@ -81,6 +81,9 @@ def unit_references(model: dict, name: str) -> list[str]:
     count = sum(1 for b in model.get("bounds") or [] if b.get("base_of") == name)
     if count:
         refs.append(f"{count} hard bound{'s' if count > 1 else ''}")
+    count = sum(1 for e in model.get("elements") or [] if e.get("base_of") == name)
+    if count:
+        refs.append(f"{count} design element{'s' if count > 1 else ''}")
     for method in model.get("methods") or []:
         uses = []
         if name in (method.get("precision_m") or {}):

@@ -39,6 +39,7 @@ from probewise.web.result_figures import (
 )
 from probewise.web.symbols import methods_drawn
 from probewise.web.templating import render, render_page_or_fragment
+from probewise.web.value_views import value_context
 from probewise.web.workflow import project_context
 
 router = APIRouter(include_in_schema=False)
@@ -274,6 +275,7 @@ def results_context(
     )
     if chosen:
         context.update(section_context(entry, project_id, chosen, section))
+    context.update(value_context(entry, project_id, chosen))  # money, with design elements
     return context
 
 

@@ -382,6 +382,7 @@ def duplicate_layout(request: Request, project_id: int, db: Db, form: PostedForm
         copy_of["name"] = unique_layout_name(model, f"{name} (copy)")
         copy_of["origin"] = "hand"
         copy_of.pop("optimiser_curve", None)
+        copy_of.pop("recorded_stage", None)  # a copy is a plan not yet drilled
         model["layouts"].insert(i + 1, copy_of)
         created.append(copy_of["name"])
         return f"Copied layout {name} as {copy_of['name']}"

@@ -29,6 +29,7 @@ from probewise.io.exports import write_schedule_csv, write_schedule_geojson, wri
 from probewise.store import StoredProject, get_project
 from probewise.web import plots
 from probewise.web import schedule_document as docs
+from probewise.web.behaviour_view import schedule_behaviour
 from probewise.web.deps import Db
 from probewise.web.downloads import attachment_headers, slug_of
 from probewise.web.edits import (
@@ -47,8 +48,10 @@ from probewise.web.result_figures import (
     image_response,
     ranking_rows,
 )
+from probewise.web.stage_sections import stage_context
 from probewise.web.symbols import SYMBOLS, methods_drawn
 from probewise.web.templating import kind_label, render_action, render_page_or_fragment
+from probewise.web.value_views import schedule_value_context
 from probewise.web.workflow import project_context
 
 router = APIRouter(include_in_schema=False)
@@ -97,6 +100,14 @@ def document_context(
         appendix=docs.appendix_sources(stored),
     )
     return context
+
+
+def level_datum(project: Any) -> str | None:
+    """The datum name the schedule's level column shows, or None without a ground level."""
+    ground_level = project.ground.ground_level
+    if ground_level is None:
+        return None
+    return ground_level.datum or "project datum"
 
 
 def schedule_context(
@@ -159,7 +170,11 @@ def schedule_context(
             key: f"{base}/schedule?{urlencode({'layout': chosen, 'paper': key})}" for key in PAPERS
         },
         crs=entry.project.crs,
+        **schedule_value_context(entry, project_id, schedule.value),
+        behaviour=schedule_behaviour(entry),  # appendix: templates/_schedule_behaviour.html
+        level_datum=level_datum(entry.project),
     )
+    context.update(stage_context(entry))  # the last stage against its prediction
     return context
 
 

@@ -12,10 +12,6 @@ GET /projects/{id}/site.json serves what static/js/sitemap.js draws
 from __future__ import annotations
 
 import math
-import re
-import tempfile
-from collections.abc import Iterator
-from contextlib import contextmanager
 from pathlib import Path
 from typing import Any
 
@@ -29,6 +25,7 @@ from probewise.io import geo_io
 from probewise.store import StoredProject, get_project
 from probewise.web.deps import Db
 from probewise.web.edits import EditPage, EditResult, FormReader, ImportArea, PostedForm, item_at
+from probewise.web.gis_upload import area_m2, uploaded_gis_file
 from probewise.web.map_data import build_map_data
 from probewise.web.outline_change import CHOICES, Outside, apply_choices, find_outside, read_choices
 from probewise.web.polygon_text import parse_polygon_text, polygon_text
@@ -50,16 +47,6 @@ IMPORT_ROLES = (
 
 
 # ---------------------------------------------------------------- derived figures
-
-
-def area_m2(geometry: dict | None) -> float | None:
-    """Plan area of a polygon (m2), None when it cannot be computed."""
-    from shapely.geometry import shape
-
-    try:
-        return float(shape(geometry).area) if geometry else None
-    except Exception:  # noqa: BLE001 - an invalid geometry shown back to the user
-        return None
 
 
 def grid_cell_count(site: dict | None, spacing_m: Any) -> int | None:
@@ -393,26 +380,6 @@ def _read_options(reader: FormReader, filename: str, layer: str | None, model: d
         "repair": reader.flag("repair"),
         "assume_local": reader.flag("as_local"),
     }
-
-
-@contextmanager
-def uploaded_gis_file(reader: FormReader) -> Iterator[tuple[Path, str]]:
-    """The uploaded GIS file as a temporary file under its own (cleaned) name, so a GeoJSON's
-    layer is named after the file; yields (path, the name the user gave)."""
-    upload = reader.file("gis_file")
-    if upload is None:
-        raise InputError("gis_file", "choose a GeoJSON, GeoPackage or zipped Shapefile first")
-    filename = upload.filename or "upload"
-    data = upload.file.read(geo_io.MAX_FILE_BYTES + 1)
-    if len(data) > geo_io.MAX_FILE_BYTES:
-        raise InputError(filename, f"is over the {geo_io.MAX_FILE_BYTES // 2**20} MB limit")
-    if not data:
-        raise InputError(filename, "is empty")
-    safe = re.sub(r"[^A-Za-z0-9._-]+", "_", Path(filename).name).lstrip(".") or "upload"
-    with tempfile.TemporaryDirectory(prefix="probewise-upload-") as folder:
-        path = Path(folder) / safe
-        path.write_bytes(data)
-        yield path, filename
 
 
 @router.post("/projects/{project_id}/site/import/preview")

@@ -54,10 +54,22 @@ WORKFLOW_STEPS: tuple[WorkflowStep, ...] = (
         "Each reading against what the other probes predicted",
     ),
     WorkflowStep(
+        "behaviour",
+        "Behaviour check",
+        "/projects/{project_id}/behaviour",
+        "Does the potential band behave like the fill or the natural ground?",
+    ),
+    WorkflowStep(
         "methods",
         "Methods",
         "/projects/{project_id}/methods",
         "Investigation methods, rates and precision",
+    ),
+    WorkflowStep(
+        "elements",
+        "Design elements",
+        "/projects/{project_id}/elements",
+        "Parts of the works whose cost follows a boundary",
     ),
     WorkflowStep(
         "options",

@@ -1,4 +1,4 @@
-// Site page: a click on the map adds the point under the pointer to the coordinates field
+// Site and Design elements pages: a click on the map adds the point under the pointer to the coordinates field
 // last used (an outline, zone, area or exclusion being edited), rounded to 0.1 m.
 (function () {
   "use strict";
@@ -17,14 +17,15 @@
   }
 
   function attach(handle) {
-    if (!handle || handle.element.getAttribute("data-map-key") !== "site-map") return;
+    var key = handle && handle.element.getAttribute("data-map-key");
+    if (key !== "site-map" && key !== "elements-map") return;
     handle.onClick(function (point) {
       if (!usable(lastField)) return;
       var line = ProbewiseMap.formatNumber(point.x, 1) + ", " + ProbewiseMap.formatNumber(point.y, 1);
       var text = lastField.value.replace(/\s+$/, "");
       lastField.value = (text ? text + "\n" : "") + line;
       lastField.dispatchEvent(new Event("input", { bubbles: true }));
-      var status = document.getElementById("site-map-status");
+      var status = document.getElementById(key + "-status");
       if (status) {
         var label = document.querySelector("label[for='" + lastField.id + "']");
         status.textContent = "Added " + line + " to " + (label ? label.textContent.trim() : "the coordinates") + ".";
@@ -33,5 +34,8 @@
   }
 
   document.addEventListener("probewise:map-ready", function (event) { attach(event.detail); });
-  if (window.ProbewiseMap) attach(ProbewiseMap.get(document.querySelector("[data-map-key='site-map']")));
+  if (window.ProbewiseMap) {
+    attach(ProbewiseMap.get(document.querySelector("[data-map-key='site-map']")));
+    attach(ProbewiseMap.get(document.querySelector("[data-map-key='elements-map']")));
+  }
 })();

@@ -273,6 +273,13 @@
     handle.layers.exclusions = featureGroup(data.exclusions, "map-exclusion", "exclusion", function (e) {
       return e.tag + " exclusion: " + e.name;
     });
+    // Design elements (their page): footprints and the evaluation cells each covers.
+    handle.layers.cells = featureGroup(data.element_cells, "map-element-cells", "cells", function (c) {
+      return c.name;
+    });
+    handle.layers.elements = featureGroup(data.elements, "map-element", "element", function (e) {
+      return e.tag + " design element: " + e.name + (e.cells != null ? " (" + e.cells + " cells)" : "");
+    });
     handle.layers.labels = labels;
 
     handle.addProbes = function (probes, probeOptions) {
@@ -317,7 +324,8 @@
 
     var overlays = {};
     [["site", "Site outline"], ["zones", "Zones"], ["areas", "Areas of interest"],
-     ["exclusions", "Exclusions"], ["labels", "Labels"], ["existing", "Existing probes"],
+     ["exclusions", "Exclusions"], ["cells", "Cells of the elements"], ["elements", "Design elements"],
+     ["labels", "Labels"], ["existing", "Existing probes"],
      ["probeLabels", "Probe ids"]].forEach(function (pair) {
       var layer = handle.layers[pair[0]];
       var crowded = pair[0] === "probeLabels" && layer.getLayers().length > 60;

@@ -26,7 +26,7 @@ from probewise.app.to_core import to_core
 from probewise.core.blocks import SUBPOINTS_PER_SIDE, cell_blocks
 from probewise.core.correlation import correlate
 from probewise.core.evaluate import GridEvaluator
-from probewise.core.model import Layout, ModelLimitError, PlannedProbe
+from probewise.core.model import Layout, PlannedProbe
 from probewise.io.model_file import validate_model
 
 TOL = 1e-9
@@ -227,13 +227,3 @@ def test_a_nugget_enters_a_cell_only_through_its_sub_points_with_themselves(nugg
     var_0 = cell_blocks(plain, np.zeros((1, 2)), side, (0.0, 0.0)).prior_var_m2[0, 0]
     var_n = cell_blocks(with_nugget, np.zeros((1, 2)), side, (0.0, 0.0)).prior_var_m2[0, 0]
     assert var_n == pytest.approx((1 - nugget) * var_0 + nugget * std**2 / q, rel=1e-12)
-
-
-def test_correlated_thicknesses_are_refused_on_cells_with_the_field_named():
-    ground = replace(
-        tiny_ground := to_core(tiny_dict()).ground, thickness_correlation=((0, 1, -0.5),)
-    )
-    with pytest.raises(ModelLimitError) as caught:
-        cell_blocks(ground, np.zeros((1, 2)), 5.0, (0.0, 0.0))
-    assert caught.value.field == "thickness_correlation"
-    assert tiny_ground.thickness_correlation == ()

@@ -31,3 +31,17 @@ def test_seed_the_shipped_demo(db):
     assert list_revisions(db, project_id)[0].message == "Demo project (invented data)"
     demo = json.loads(demo_path.read_text())
     assert get_project(db, project_id).model == validate_model(demo)  # stored whole, validated
+
+
+def test_seed_both_shipped_demos_in_order(db):
+    from probewise.resources import DEMO_PROJECT_PATHS
+    from probewise.store import seed_demos_if_empty
+
+    ids = seed_demos_if_empty(db, DEMO_PROJECT_PATHS)
+    assert ids == [1, 2]
+    for project_id, path in zip(ids, DEMO_PROJECT_PATHS, strict=True):
+        model = json.loads(Path(path).read_text())
+        assert "invented" in model["name"].lower()  # demo data say they are invented
+        assert get_project(db, project_id).model == validate_model(model)
+    assert "ground_level" in get_project(db, 2).model  # the levels and history demo
+    assert seed_demos_if_empty(db, DEMO_PROJECT_PATHS) == []

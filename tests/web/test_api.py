@@ -23,7 +23,11 @@ def field_problems(answer) -> list[dict]:
 def test_list_projects(client, demo_model):
     answer = client.get("/api/projects")
     assert answer.status_code == 200
-    [demo] = answer.json()
+    # a fresh database gets both invented demos; the relief road is project 1
+    demos = {p["id"]: p for p in answer.json()}
+    assert sorted(demos) == [1, 2]
+    assert demos[2]["name"] == "Demo (invented): Ostrey reclaimed quay strip"
+    demo = demos[1]
     assert demo["name"] == demo_model["name"]
     assert demo["revision"] == 1
     assert demo["deleted"] is False
@@ -153,9 +157,9 @@ def test_duplicate_delete_restore(client, demo_model):
     answer = client.delete(f"/api/projects/{copy_id}")
     assert answer.status_code == 200
     assert answer.json() == {"id": copy_id, "deleted": True}
-    assert [p["id"] for p in client.get("/api/projects").json()] == [1]
+    assert sorted(p["id"] for p in client.get("/api/projects").json()) == [1, 2]  # the demos
     everything = client.get("/api/projects", params={"include_deleted": True}).json()
-    assert {p["id"]: p["deleted"] for p in everything} == {1: False, copy_id: True}
+    assert {p["id"]: p["deleted"] for p in everything} == {1: False, 2: False, copy_id: True}
     # A deleted project can be read but not changed.
     model = client.get(f"/api/projects/{copy_id}").json()["model"]
     refused = client.put(f"/api/projects/{copy_id}", json={"model": model, "expected_revision": 1})
@@ -164,7 +168,7 @@ def test_duplicate_delete_restore(client, demo_model):
     answer = client.post(f"/api/projects/{copy_id}/restore")
     assert answer.status_code == 200
     assert answer.json() == {"id": copy_id, "deleted": False}
-    assert len(client.get("/api/projects").json()) == 2
+    assert len(client.get("/api/projects").json()) == 3  # two demos and the copy
 
 
 def test_export_is_a_model_file_download(client, demo_model):

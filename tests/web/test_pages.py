@@ -149,24 +149,24 @@ def test_duplicate_delete_restore_from_the_list(client, demo_model):
     answer = client.post("/projects/1/duplicate", headers=htmx())
     assert answer.status_code == 200
     assert f"{name} (copy)" in answer.text
-    assert project_count(client) == 2
+    assert project_count(client) == 3  # the two demos and the copy
 
-    answer = client.post("/projects/2/delete", headers=htmx())
+    answer = client.post("/projects/3/delete", headers=htmx())
     assert answer.status_code == 200
     assert "Recently deleted" in answer.text
-    assert 'id="deleted-project-2"' in answer.text
-    assert 'id="project-2"' not in answer.text
-    assert project_count(client, include_deleted=False) == 1
-
-    answer = client.post("/projects/2/restore", headers=htmx())
-    assert answer.status_code == 200
-    assert 'id="project-2"' in answer.text
-    assert 'id="deleted-heading"' not in answer.text
+    assert 'id="deleted-project-3"' in answer.text
+    assert 'id="project-3"' not in answer.text
     assert project_count(client, include_deleted=False) == 2
+
+    answer = client.post("/projects/3/restore", headers=htmx())
+    assert answer.status_code == 200
+    assert 'id="project-3"' in answer.text
+    assert 'id="deleted-heading"' not in answer.text
+    assert project_count(client, include_deleted=False) == 3
 
 
 def test_plain_form_posts_redirect_back(client):
-    for path in ("/projects/1/duplicate", "/projects/2/delete", "/projects/2/restore"):
+    for path in ("/projects/1/duplicate", "/projects/3/delete", "/projects/3/restore"):
         answer = client.post(path, follow_redirects=False)
         assert answer.status_code == 303, path
         assert answer.headers["location"] == "/"
