@@ -4,6 +4,7 @@
 from __future__ import annotations
 
 import copy
+import json
 
 import pytest
 
@@ -67,3 +68,16 @@ def test_broken_sections_name_the_field(tiny_model, sections, field, words):
         validate_model(with_sections(tiny_model, **sections))
     assert caught.value.field == field
     assert words in caught.value.problem
+
+
+def test_cli_schedule_lists_the_warnings_of_the_printed_schedule(tiny_model, tmp_path):
+    from cli_helpers import run_cli
+
+    model = copy.deepcopy(tiny_model)
+    model["layouts"][0]["probes"].append({"id": "INX", "method": "BH", "x": 170.0, "y": 100.0})
+    path = tmp_path / "model.json"
+    path.write_text(json.dumps(model))
+    run = run_cli("schedule", str(path), "--layout", model["layouts"][0]["name"])
+    assert run.returncode == 0, run.stderr
+    warnings = run.stdout.split("Warnings:")[1]
+    assert "INX: inside the exclusion Live gas main easement" in " ".join(warnings.split())

@@ -131,6 +131,10 @@ def _probe_lines(schedule) -> list[str]:
                 "method below."
             ),
         ]
+        warned = [row for row in schedule.probes if row.get("warnings")]
+        if warned:  # probewise.app.schedule_warnings, as on the printed schedule
+            parts += ["", "Warnings:"]
+            parts += [_wrap(f"  {row['id']}: {'; '.join(row['warnings'])}") for row in warned]
     else:
         parts.append("This layout has no probes.")
     return parts
