@@ -1,5 +1,5 @@
 """The model file's optional ``document`` and ``safety`` sections (docs/model-file.md,
-"Document control and health and safety notes")."""
+"Document control and health and safety notes"); the schedule's warnings on the command line."""
 
 from __future__ import annotations
 
