@@ -96,7 +96,6 @@ def document_context(
         hazards_form=docs.hazards_of(model),
         safety_notes=docs.safety_notes_of(stored),
         safety_notes_form=docs.safety_notes_of(model),
-        has_safety_notes=docs.has_safety_notes(stored),
         appendix=docs.appendix_sources(stored),
     )
     return context

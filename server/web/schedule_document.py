@@ -46,10 +46,6 @@ def safety_notes_of(model: dict) -> str:
     return (model.get("safety") or {}).get("notes") or ""
 
 
-def has_safety_notes(model: dict) -> bool:
-    return bool(safety_notes_of(model).strip()) or any(h["text"] for h in hazards_of(model))
-
-
 def edit_document(reader: FormReader, model: dict) -> str:
     """The document control form into ``model["document"]`` (issues are kept)."""
     doc = dict(model.get("document") or {})
