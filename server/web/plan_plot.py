@@ -22,6 +22,7 @@ from matplotlib.legend_handler import HandlerBase
 from matplotlib.lines import Line2D
 from matplotlib.patches import PathPatch, Polygon
 from matplotlib.path import Path as MplPath
+from matplotlib.text import Text
 
 from probewise.web.plot_style import (
     AREA_EDGE,
@@ -84,11 +85,13 @@ class _SymbolHandler(HandlerBase):
         super().__init__()
         self.kind, self.code, self.existing = kind, code, existing
 
-    def create_artists(self, legend, orig_handle, x0, y0, width, height, fontsize, trans):
+    def create_artists(
+        self, legend, orig_handle, xdescent, ydescent, width, height, fontsize, trans
+    ):
         fill, edge, ink = symbol_colours(self.kind, self.existing)
         outline = np.array(symbol_of(self.kind).outline, dtype=float) * np.array([1.0, -1.0])
-        scale = height * 0.42
-        cx, cy = x0 + width / 2, y0 + height / 2
+        scale = height * 0.5
+        cx, cy = -xdescent + width / 2, -ydescent + height / 2  # as matplotlib's own handlers
         patch = Polygon(
             outline * scale + [cx, cy],
             closed=True,
@@ -98,14 +101,14 @@ class _SymbolHandler(HandlerBase):
             transform=trans,
         )
         text_y = cy - symbol_of(self.kind).text_y * scale
-        label = legend.figure.text(
+        label = Text(
             cx,
             text_y,
             short_code(self.code),
             transform=trans,
             ha="center",
             va="center",
-            fontsize=code_font_px(self.code) * 0.5,
+            fontsize=code_font_px(self.code) * 0.6,
             color=ink,
             fontweight="bold",
         )
