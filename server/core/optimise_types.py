@@ -99,7 +99,8 @@ class Candidates:
     depth_m : (L, J) float
         Planned depth of each candidate.
     cost : (L, J) float
-        Per-location + per-metre cost (no mobilisation).
+        Cost of each candidate probe, contingency included, no fixed cost
+        (``probewise.core.programme.probe_cost``).
     noise_var : (L, J, B) float
         Reading variance for each boundary the candidate observes; ``nan`` elsewhere.
     valid : (L, J) bool
