@@ -14,8 +14,11 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Any
 
+from probewise.app.instructions import HoleInstruction, hole_instructions
 from probewise.app.justification import MainBoundary, OptionFigures, justification
 from probewise.app.levels import history_paragraphs
+from probewise.app.probe_warnings import probe_warnings
+from probewise.app.programme import ProgrammeView, programme_json, programme_view
 from probewise.app.project import find_layout
 from probewise.caution import CAUTION_LINE
 from probewise.core.evaluate import GridEvaluator, LayoutResult, with_pareto
@@ -23,6 +26,7 @@ from probewise.core.grid import EmptyGridError
 from probewise.core.model import Project
 from probewise.core.options import RankedOption, rank_options
 from probewise.core.planning import ProbePlan
+from probewise.core.programme import probe_cost
 from probewise.errors import InputError
 from probewise.io.exports import schedule_rows
 
@@ -81,6 +85,8 @@ class Schedule:
     main_boundary: str | None
     justification: tuple[str, ...]
     caution: str = CAUTION_LINE
+    programme: ProgrammeView | None = None  # cost by item and the rigs' programme
+    instructions: tuple[HoleInstruction, ...] = ()  # per hole, in layout order
 
 
 # ---------------------------------------------------------------- parts
@@ -127,15 +133,22 @@ def methods_document(project: Project) -> dict[str, Any]:
 
 
 def probe_rows(project: Project, plans: Sequence[ProbePlan]) -> list[dict[str, Any]]:
-    """The schedule rows of planned probes (what the CSV, GeoJSON and GeoPackage exports hold)."""
-    return schedule_rows(probe_dicts(project, plans), methods_document(project))
+    """The schedule rows of planned probes (what the CSV, GeoJSON and GeoPackage exports hold);
+    ``cost`` is the probe's own cost as the layout is priced (``probewise.core.programme``)."""
+    rows = schedule_rows(probe_dicts(project, plans), methods_document(project))
+    for row, plan in zip(rows, plans, strict=True):
+        method = project.methods[plan.probe.method]
+        row["cost"] = probe_cost(method, plan.depth_m, plan.predrill_m, project.costs)
+    return rows
 
 
 def method_rows(project: Project, result: LayoutResult) -> list[MethodRow]:
     """Cost and duration by method, in the order the methods first appear in the layout."""
     rows = []
+    lines = {line.method: line for line in result.programme.lines} if result.programme else {}
     for method_id, totals in result.by_method.items():
         m = project.methods[method_id]
+        items = lines[method_id].items if method_id in lines else {}
         rows.append(
             MethodRow(
                 id=method_id,
@@ -143,9 +156,9 @@ def method_rows(project: Project, result: LayoutResult) -> list[MethodRow]:
                 kind=m.kind,
                 count=totals.count,
                 metres=totals.metres,
-                mobilisation=m.mobilisation,
-                locations_cost=m.per_location * totals.count,
-                metres_cost=m.per_metre * totals.metres,
+                mobilisation=items.get("mobilisation", m.mobilisation),
+                locations_cost=items.get("locations", m.per_location * totals.count),
+                metres_cost=items.get("metres", m.per_metre * totals.metres),
                 cost=totals.cost,
                 duration_days=totals.duration_days,
                 metres_per_day=m.metres_per_day,
@@ -285,18 +298,22 @@ def build_schedule(
     result = next(r for r in results if r.name == layout_name)
     methods = method_rows(project, result)
     main = main_boundary_index(project)
+    warnings = probe_warnings(project, result.plans, evaluator.analysis)
+    rows = [dict(row, warnings=warnings[row["id"]]) for row in probe_rows(project, result.plans)]
     return Schedule(
         project_name=project.name,
         currency=project.currency,
         crs=project.crs,
         layout_name=result.name,
-        probes=tuple(probe_rows(project, result.plans)),
+        probes=tuple(rows),
         refusals=frozenset(plan.probe.id for plan in result.plans if plan.refuses),
         methods=tuple(methods),
         totals=totals_of(result, methods),
         main_boundary=project.ground.boundary_names[main] if main is not None else None,
         justification=tuple(justification_of(project, evaluator, results, result.name))
         + tuple(history_paragraphs(project, result.plans)),  # levels and site history
+        programme=programme_view(project, result),
+        instructions=tuple(hole_instructions(project, result.plans, evaluator.analysis)),
     )
 
 
@@ -348,6 +365,7 @@ def schedule_json(schedule: Schedule) -> dict[str, Any]:
             "pareto": t.pareto,
         },
         "main_boundary": schedule.main_boundary,
+        "programme": programme_json(schedule.programme) if schedule.programme else None,
         "justification": list(schedule.justification),
         "caution": schedule.caution,
     }

@@ -16,13 +16,17 @@ truncated posterior (``probewise.core.bounds``).
 - Observed set: boundaries the method resolves, not below the refusal surface, whose current
   P95 is no deeper than the planned depth.
 - Refusal rules (``Method.refusals``): a chance of refusal in a unit of at least
-  ``LIKELY_REFUSAL`` is planned as a refusal (the likelier outcome) unless the rule pre-drills;
-  then the probe is pre-drilled from the unit's current P5 top to its P95 base, and the
-  method does not read the base of that unit (it resumes below it). A smaller chance is
-  planned as passing and reported as a risk.
-- A refusal proves the top of the unit refused on only when the method proves refusal
-  (``Method.proves_refusal``: coring reaches rock; a cone stopped by a boulder looks the same
-  as one stopped by rock). Otherwise that boundary is neither a target nor observed.
+  ``LIKELY_REFUSAL`` is planned as a refusal (the likelier outcome), capped like
+  ``cannot_penetrate``, unless the rule pre-drills and the probe must pass the unit (its
+  depth planned with the pre-drilling is below the unit's current P95 base): then the probe
+  is pre-drilled from the unit's current P5 top to its P95 base, and the method does not read
+  the base of that unit (it resumes below it). A smaller chance is planned as passing and
+  reported as a risk. A probe that may refuse in a unit has entered it, so its record reads
+  the unit's top.
+- A stop on a unit it cannot penetrate at all (``cannot_penetrate``) proves that unit's top
+  only when the method proves refusal (``Method.proves_refusal``: coring reaches rock; a
+  cone stopped by a boulder looks the same as one stopped by rock). Otherwise that boundary
+  is neither a target nor observed.
 """
 
 from __future__ import annotations
@@ -80,12 +84,23 @@ class ProbePlan:
 
 @dataclass(frozen=True)
 class RefusalOutcomes:
-    """What planning assumes of a method's refusals: the unit it stops on (None: none), the
-    rules it pre-drills through (above the stop) and those it may refuse in (above it)."""
+    """What planning assumes of a method's refusals: the unit it stops on (None: none),
+    whether that stop reads the unit's top, the rules it pre-drills through (above the stop)
+    and those it may refuse in (above it)."""
 
     stop_unit: int | None
+    stop_reads_top: bool
     predrill: tuple[RefusalRule, ...]
     possible: tuple[RefusalRule, ...]
+
+    def stopped_at(self, unit: int) -> RefusalOutcomes:
+        """The same with a stop in ``unit`` (a refusal rule's unit, above the stop)."""
+        return RefusalOutcomes(
+            unit,
+            True,
+            tuple(r for r in self.predrill if r.unit < unit),
+            tuple(r for r in self.possible if r.unit < unit),
+        )
 
 
 def refusal_outcomes(method: Method) -> RefusalOutcomes:
@@ -96,6 +111,7 @@ def refusal_outcomes(method: Method) -> RefusalOutcomes:
     above = [r for r in method.refusals if stop is None or r.unit < stop]
     return RefusalOutcomes(
         stop,
+        method.proves_refusal or stop != method.refusal_unit,
         tuple(r for r in above if r.chance >= LIKELY_REFUSAL and r.predrills),
         tuple(r for r in above if r.chance < LIKELY_REFUSAL),
     )
@@ -167,7 +183,7 @@ def _plan_one(
     above_refusal = B if r is None else min(r, B)  # boundaries 0..above_refusal-1
     cap = np.inf if r is None else (0.0 if r == 0 else float(p95[r - 1]))
     unread = {u for u in (p.unit for p in outcome.predrill) if u < B}  # bases not read
-    if r is not None and r > 0 and not method.proves_refusal:
+    if r is not None and r > 0 and not outcome.stop_reads_top:
         unread.add(r - 1)  # a stop there does not prove the top of unit r
     resolved = [k for k in range(above_refusal) if method.resolves(k) and k not in unread]
     reachable = [k for k in resolved if p95[k] <= method.max_depth_m]
@@ -187,12 +203,15 @@ def _plan_one(
         return 0.0 if unit == 0 else float(p05[unit - 1])
 
     predrill_m, predrilled = 0.0, []
-    for rule in outcome.predrill:
+    for rule in sorted(outcome.predrill, key=lambda r: r.unit):
+        if rule.unit < B and depth <= p95[rule.unit]:  # need not pass it: a refusal there
+            return _plan_one(
+                ground, method, outcome.stopped_at(rule.unit), probe, p95, p05, of_interest
+            )
         top = top_m(rule.unit)
         base = float(p95[rule.unit]) if rule.unit < B else depth
-        if depth > top:
-            predrill_m += max(min(base, depth) - top, 0.0)
-            predrilled.append(rule.unit)
+        predrill_m += max(min(base, depth) - top, 0.0)
+        predrilled.append(rule.unit)
     risks = tuple((rule.unit, rule.chance) for rule in outcome.possible if depth > top_m(rule.unit))
     refuses = bool(depth >= cap)
     return ProbePlan(
