@@ -36,6 +36,7 @@ JSON_KEYS = {
     "by_method",
     "totals",
     "main_boundary",
+    "programme",
     "justification",
     "caution",
 }

@@ -8,7 +8,8 @@ Pareto-efficient option that buys the most information per unit cost.
 
 - text (default): a printable schedule;
 - json: ``{"project", "layout", "currency", "crs", "date", "probes", "by_method", "totals",
-  "main_boundary", "justification", "caution"}`` (``probewise.app.schedule.schedule_json``);
+  "main_boundary", "programme", "justification", "caution"}`` (each probe with its
+  ``warnings``) (``probewise.app.schedule.schedule_json``);
 - csv, geojson, gpkg: the probe list as ``probewise export --what schedule`` writes it
   (a GeoPackage needs ``-o``).
 
