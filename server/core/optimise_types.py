@@ -142,8 +142,9 @@ class GreedyRun:
     picks: tuple[Pick, ...]
 
     def prefixes(self, cand: Candidates, mobilisation: dict[str, float]):
-        """``(n_picks, cost, gain)`` of every prefix; cost pays mobilisation of methods used."""
-        used: set[str] = set()
+        """``(n_picks, cost, gain)`` of every prefix; cost pays mobilisation of methods used
+        (a start layout's cost paid its own methods', which are the run's mix)."""
+        used: set[str] = set(self.mix) if self.start is not None else set()
         cost, gain = self.start_cost, self.start_gain_bits
         out = [(0, cost, gain)]
         for n, p in enumerate(self.picks, start=1):
