@@ -37,6 +37,7 @@ JSON_KEYS = {
     "totals",
     "main_boundary",
     "programme",
+    "instructions",
     "justification",
     "caution",
 }

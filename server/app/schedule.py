@@ -10,6 +10,7 @@ passes its per-revision cache; the CLI lets it compute them).
 
 from __future__ import annotations
 
+import dataclasses
 from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Any
@@ -366,6 +367,7 @@ def schedule_json(schedule: Schedule) -> dict[str, Any]:
         },
         "main_boundary": schedule.main_boundary,
         "programme": programme_json(schedule.programme) if schedule.programme else None,
+        "instructions": [dataclasses.asdict(i) for i in schedule.instructions],
         "justification": list(schedule.justification),
         "caution": schedule.caution,
     }
