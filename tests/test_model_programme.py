@@ -83,3 +83,17 @@ def test_cli_exits_2_naming_the_field(tmp_path):
     assert done.returncode == 2
     lines = done.stderr.strip().splitlines()
     assert len(lines) == 1 and lines[0].startswith("cost_items.contingency_percent:"), lines
+
+
+@pytest.mark.parametrize("proves", [True, False])
+def test_a_stop_that_proves_nothing_is_warned_on_the_schedule(proves):
+    from probewise.app.schedule import build_schedule
+    from probewise.app.to_core import to_core
+
+    model = copy.deepcopy(TINY)
+    model["methods"][1]["proves_refusal"] = proves
+    probe = {"id": "C1", "method": "CPT", "x": 100.0, "y": 60.0, "depth_m": 20.0}
+    model["layouts"].append({"name": "deep cone", "probes": [probe]})
+    (row,) = build_schedule(to_core(validate_model(model)), "deep cone").probes
+    assert any("stop on River gravel" in w for w in row["warnings"])
+    assert any("does not prove the top of River gravel" in w for w in row["warnings"]) != proves

@@ -13,7 +13,7 @@ import numpy as np
 
 from probewise.core.analysis import ProjectAnalysis
 from probewise.core.model import Project
-from probewise.core.planning import ProbePlan
+from probewise.core.planning import ProbePlan, refusal_outcomes
 
 # A standard wheeled or tracked excavator digs to about 4.5 m (common practice, no source).
 TRIAL_PIT_REACH_M = 4.5
@@ -42,7 +42,8 @@ def plan_warnings(
 
     if plan.refuses and plan.refusal_unit is not None:
         u = plan.refusal_unit
-        proven = u == 0 or (u - 1) in plan.observes
+        outcome = refusal_outcomes(method)
+        proven = u == 0 or u != outcome.stop_unit or outcome.stop_reads_top
         text = f"Expected to stop on {units[u]}, whose top is {top(u)}."
         if not proven:
             text += (
