@@ -97,3 +97,23 @@ def test_a_stop_that_proves_nothing_is_warned_on_the_schedule(proves):
     (row,) = build_schedule(to_core(validate_model(model)), "deep cone").probes
     assert any("stop on River gravel" in w for w in row["warnings"])
     assert any("does not prove the top of River gravel" in w for w in row["warnings"]) != proves
+
+
+def test_instructions_say_why_and_what_ends_each_hole():
+    from probewise.app.schedule import build_schedule
+    from probewise.app.to_core import to_core
+
+    model = copy.deepcopy(TINY)
+    probes = [
+        {"id": "B1", "method": "BH", "x": 100.0, "y": 60.0},
+        {"id": "C1", "method": "CPT", "x": 100.0, "y": 60.0},
+    ]
+    model["layouts"].append({"name": "pair", "probes": probes})
+    bh, cpt = build_schedule(to_core(validate_model(model)), "pair").instructions
+    assert "base of River gravel" in bh.why and "embedment of 1.5 m" in bh.why
+    assert bh.ends.startswith("Target depth")
+    assert "expected to stop on River gravel" in cpt.why
+    assert cpt.ends.startswith("Refusal on River gravel")
+    # the bands printed are the current P5-P95 of each boundary the hole may meet
+    assert [b.boundary for b in bh.bands] == ["Made ground", "Alluvial clay", "River gravel"]
+    assert all(b.p05_m < b.p95_m for b in bh.bands)

@@ -57,10 +57,13 @@ def hole_instruction(
     if plan.probe.depth_m is not None:
         why = "Depth set by hand on the Options page."
     elif plan.target is not None:
-        why = (
-            f"To pass the base of {names[plan.target]} (P95 {_m(p95_m[plan.target])} here)"
-            f" by the method's embedment of {_m(method.embedment_m)}."
-        )
+        why = f"To reach the base of {names[plan.target]} (P95 {_m(p95_m[plan.target])} here)"
+        if plan.depth_m >= p95_m[plan.target] + method.embedment_m - 1e-9:
+            why += f" and pass it by the method's embedment of {_m(method.embedment_m)}."
+        elif plan.refuses and plan.refusal_unit is not None:
+            why += f", where it is expected to stop on {units[plan.refusal_unit]}."
+        else:
+            why += f", capped at the method's maximum depth of {_m(method.max_depth_m)}."
     else:
         why = "No boundary it reads is within reach: to the method's maximum depth."
     if plan.refuses and plan.refusal_unit is not None:
