@@ -23,6 +23,7 @@ LAYOUT_KEYS = {
     "cost",
     "metres",
     "duration_days",
+    "rig_days",
     "information_gain_bits",
     "gain_per_cost",
     "pareto",

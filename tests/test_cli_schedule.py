@@ -36,6 +36,8 @@ JSON_KEYS = {
     "by_method",
     "totals",
     "main_boundary",
+    "programme",
+    "instructions",
     "justification",
     "caution",
 }

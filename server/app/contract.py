@@ -30,6 +30,7 @@ def layout_json(result, boundary_names: tuple[str, ...]) -> dict:
         cost=result.cost,
         metres=result.metres,
         duration_days=result.duration_days,
+        rig_days=result.rig_days,
         information_gain_bits=result.information_gain_bits,
         gain_per_cost=result.gain_per_cost,
         pareto=result.pareto,

@@ -10,6 +10,7 @@ passes its per-revision cache; the CLI lets it compute them).
 
 from __future__ import annotations
 
+import dataclasses
 from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Any
@@ -17,17 +18,22 @@ from typing import Any
 import numpy as np
 
 from probewise.app.design_value import ValueFigures, value_evaluator, value_figures
+from probewise.app.instructions import HoleInstruction, hole_instructions
 from probewise.app.justification import MainBoundary, OptionFigures, justification, value_letter
 from probewise.app.levels import history_paragraphs, probe_ground_levels
+from probewise.app.probe_warnings import probe_warnings
+from probewise.app.programme import ProgrammeView, programme_json, programme_view
 from probewise.app.project import find_layout
-from probewise.app.schedule_warnings import probe_warnings
+from probewise.app.schedule_warnings import placement_warnings
 from probewise.caution import CAUTION_LINE
+from probewise.core.analysis import ProjectAnalysis
 from probewise.core.evaluate import GridEvaluator, LayoutResult, with_pareto
 from probewise.core.grid import EmptyGridError
 from probewise.core.levels import level_of_depth
 from probewise.core.model import Project
 from probewise.core.options import RankedOption, rank_options
 from probewise.core.planning import ProbePlan
+from probewise.core.programme import probe_cost
 from probewise.errors import InputError
 from probewise.io.exports import schedule_rows
 
@@ -87,6 +93,8 @@ class Schedule:
     justification: tuple[str, ...]
     caution: str = CAUTION_LINE
     value: ValueFigures | None = None  # with design elements: what the option is worth
+    programme: ProgrammeView | None = None  # cost by item and the rigs' programme
+    instructions: tuple[HoleInstruction, ...] = ()  # per hole, in layout order
 
 
 # ---------------------------------------------------------------- parts
@@ -132,14 +140,20 @@ def methods_document(project: Project) -> dict[str, Any]:
     }
 
 
-def probe_rows(project: Project, plans: Sequence[ProbePlan]) -> list[dict[str, Any]]:
-    """The schedule rows of planned probes (what the CSV, GeoJSON and GeoPackage exports hold),
-    each with its ``warnings`` (``probewise.app.schedule_warnings``).
+def probe_rows(
+    project: Project, plans: Sequence[ProbePlan], analysis: ProjectAnalysis | None = None
+) -> list[dict[str, Any]]:
+    """The schedule rows of planned probes (what the CSV, GeoJSON and GeoPackage exports hold).
 
-    With a ground level, each row also holds the ground level at the probe and the level of
-    its target depth (ground level minus depth), project datum (docs/model.md "Levels and
-    site history")."""
+    ``cost`` is the probe's own cost as the layout is priced (``probewise.core.programme``);
+    ``warnings`` what the probe may meet in the field (``probewise.app.probe_warnings``) then
+    where it stands (``probewise.app.schedule_warnings``). With a ground level, each row also
+    holds the ground level at the probe and the level of its target depth (ground level minus
+    depth), project datum (docs/model.md "Levels and site history")."""
     rows = schedule_rows(probe_dicts(project, plans), methods_document(project))
+    for row, plan in zip(rows, plans, strict=True):
+        method = project.methods[plan.probe.method]
+        row["cost"] = probe_cost(method, plan.depth_m, plan.predrill_m, project.costs)
     xy = np.array([(r["x"], r["y"]) for r in rows], dtype=float).reshape(-1, 2)
     gl = probe_ground_levels(project, xy) if rows else None
     if gl is not None:
@@ -147,16 +161,20 @@ def probe_rows(project: Project, plans: Sequence[ProbePlan]) -> list[dict[str, A
         for row, ground, target in zip(rows, gl, level_of_depth(gl, depth), strict=True):
             row["ground_level_m"] = float(ground)
             row["target_level_m"] = float(target)
-    refusals = [plan.probe.id for plan in plans if plan.refuses]
-    warnings = probe_warnings(project, rows, refusals)
-    return [{**row, "warnings": w} for row, w in zip(rows, warnings, strict=True)]
+    in_field = probe_warnings(project, plans, analysis)
+    for row in rows:
+        row["warnings"] = in_field.get(row["id"], [])
+    placed = placement_warnings(project, rows)
+    return [{**row, "warnings": w} for row, w in zip(rows, placed, strict=True)]
 
 
 def method_rows(project: Project, result: LayoutResult) -> list[MethodRow]:
     """Cost and duration by method, in the order the methods first appear in the layout."""
     rows = []
+    lines = {line.method: line for line in result.programme.lines} if result.programme else {}
     for method_id, totals in result.by_method.items():
         m = project.methods[method_id]
+        items = lines[method_id].items if method_id in lines else {}
         rows.append(
             MethodRow(
                 id=method_id,
@@ -164,9 +182,9 @@ def method_rows(project: Project, result: LayoutResult) -> list[MethodRow]:
                 kind=m.kind,
                 count=totals.count,
                 metres=totals.metres,
-                mobilisation=m.mobilisation,
-                locations_cost=m.per_location * totals.count,
-                metres_cost=m.per_metre * totals.metres,
+                mobilisation=items.get("mobilisation", m.mobilisation),
+                locations_cost=items.get("locations", m.per_location * totals.count),
+                metres_cost=items.get("metres", m.per_metre * totals.metres),
                 cost=totals.cost,
                 duration_days=totals.duration_days,
                 metres_per_day=m.metres_per_day,
@@ -310,12 +328,13 @@ def build_schedule(
     if project.elements:  # money leads (docs/model.md "The value of an investigation")
         values = value_evaluator(project, evaluator)
         value = value_figures(project, evaluator, values, result, ranking or ())
+    rows = probe_rows(project, result.plans, evaluator.analysis)
     return Schedule(
         project_name=project.name,
         currency=project.currency,
         crs=project.crs,
         layout_name=result.name,
-        probes=tuple(probe_rows(project, result.plans)),
+        probes=tuple(rows),
         refusals=frozenset(plan.probe.id for plan in result.plans if plan.refuses),
         methods=tuple(methods),
         totals=totals_of(result, methods),
@@ -324,6 +343,8 @@ def build_schedule(
         + tuple(justification_of(project, evaluator, results, result.name))
         + tuple(history_paragraphs(project, result.plans)),  # levels and site history
         value=value,
+        programme=programme_view(project, result),
+        instructions=tuple(hole_instructions(project, result.plans, evaluator.analysis)),
     )
 
 
@@ -375,6 +396,8 @@ def schedule_json(schedule: Schedule) -> dict[str, Any]:
             "pareto": t.pareto,
         },
         "main_boundary": schedule.main_boundary,
+        "programme": programme_json(schedule.programme) if schedule.programme else None,
+        "instructions": [dataclasses.asdict(i) for i in schedule.instructions],
         "justification": list(schedule.justification),
         "caution": schedule.caution,
     }

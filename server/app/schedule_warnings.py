@@ -5,17 +5,14 @@ the probe is set out.
   layout drawn or imported by hand may put it there; the optimiser never does);
 - outside the site: the point lies outside the site outline (an outline changed after the
   layout was drawn, and the probes kept);
-- deep trial pit: a trial pit planned deeper than ``TRIAL_PIT_ENTRY_DEPTH_M``, where nobody
-  enters the excavation unsupported;
-- refusal expected: the planned depth stops on a unit the method cannot penetrate.
-
-Rows may already carry a ``warnings`` list (other parts of the schedule add theirs); these are
-appended after them.
+What the probe may meet in the field (refusal, pre-drilling, a trial pit's reach, entry,
+stability and groundwater) is ``probewise.app.probe_warnings``; rows already carry those in
+``warnings`` and these are appended after them.
 """
 
 from __future__ import annotations
 
-from collections.abc import Iterable, Sequence
+from collections.abc import Sequence
 from typing import Any
 
 import numpy as np
@@ -23,16 +20,10 @@ import numpy as np
 from probewise.core.geometry import points_in_polygon
 from probewise.core.model import Project
 
-# Depth beyond which an unsupported excavation is not entered: common practice in site
-# investigation (no published source checked here; local rules govern).
-TRIAL_PIT_ENTRY_DEPTH_M = 1.2
 
-
-def probe_warnings(
-    project: Project, rows: Sequence[dict[str, Any]], refusals: Iterable[str] = ()
-) -> list[list[str]]:
-    """Per row of ``rows`` (schedule rows: id, kind, x, y, depth_m): its warnings in words."""
-    refused = set(refusals)
+def placement_warnings(project: Project, rows: Sequence[dict[str, Any]]) -> list[list[str]]:
+    """Per row of ``rows`` (schedule rows: id, x, y, warnings): its warnings in words, those it
+    carries first."""
     if not rows:
         return []
     xy = np.array([[float(r["x"]), float(r["y"])] for r in rows], dtype=float)
@@ -49,11 +40,5 @@ def probe_warnings(
         words.extend(f"inside the exclusion {name}" for name in excluded[i])
         if not inside_site[i]:
             words.append("outside the site outline")
-        if row.get("kind") == "trial_pit" and float(row["depth_m"]) > TRIAL_PIT_ENTRY_DEPTH_M:
-            words.append(
-                f"deep trial pit (over {TRIAL_PIT_ENTRY_DEPTH_M:g} m): no entry without support"
-            )
-        if row["id"] in refused:
-            words.append("refusal expected before the target depth")
         out.append(words)
     return out

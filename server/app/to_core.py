@@ -21,6 +21,7 @@ from probewise.core.model import (
     BoundaryOfInterest,
     ChoiceConsequence,
     Correlation,
+    CostItems,
     DepthBound,
     DesignElement,
     ExistingProbe,
@@ -34,6 +35,7 @@ from probewise.core.model import (
     Polygon,
     Project,
     QuantityConsequence,
+    RefusalRule,
     Settlement,
     Site,
     ThicknessRange,
@@ -42,6 +44,7 @@ from probewise.core.model import (
 )
 from probewise.core.priors import DEFAULT_SHAPE
 from probewise.errors import InputError
+from probewise.io.model_programme import COST_ITEM_KEYS
 
 
 def core_polygon(geometry: dict) -> Polygon:
@@ -206,7 +209,6 @@ def core_method(spec: dict, model: dict) -> Method:
     """One method: refusal = shallowest unit it cannot penetrate; precision per boundary."""
     index = _unit_index(model)
     n_bnd = len(model["units"]) - 1
-    blocked = [index[name] for name in spec.get("cannot_penetrate") or []]
     precision = [math.nan] * n_bnd
     for name, tau in (spec.get("precision_m") or {}).items():
         if index[name] < n_bnd:
@@ -222,9 +224,41 @@ def core_method(spec: dict, model: dict) -> Method:
         metres_per_day=float(spec["metres_per_day"]),
         max_depth_m=float(spec["max_depth_m"]),
         embedment_m=float(spec.get("embedment_m", 0.0)),
-        refusal_unit=min(blocked) if blocked else None,
         precision_m=tuple(precision),
+        **core_method_programme(spec, index),
     )
+
+
+def core_method_programme(spec: dict, index: dict[str, int]) -> dict:
+    """A method's refusal rules, proof of refusal, rigs and moves (defaults when absent): a
+    rule takes over ``cannot_penetrate`` for its unit (``refusal_unit`` is recomputed)."""
+    rules = []
+    for rule in spec.get("refusal") or []:
+        predrill = rule.get("predrill") or {}
+        rules.append(
+            RefusalRule(
+                unit=index[rule["unit"]],
+                chance=float(rule.get("chance", 1.0)),
+                predrill_per_metre=(float(predrill.get("per_metre", 0.0)) if predrill else None),
+                predrill_metres_per_day=(float(predrill["metres_per_day"]) if predrill else None),
+            )
+        )
+    ruled = {r.unit for r in rules}
+    blocked = [index[n] for n in spec.get("cannot_penetrate") or [] if index[n] not in ruled]
+    proves = spec.get("proves_refusal")
+    return {
+        "refusal_unit": min(blocked) if blocked else None,
+        "refusals": tuple(rules),
+        "proves_refusal": True if proves is None else bool(proves),
+        "rigs": int(spec.get("rigs", 1)),
+        "move_days": float(spec.get("move_days", 0.0)),
+    }
+
+
+def core_cost_items(model: dict) -> CostItems:
+    """The project's cost items (``cost_items``; none when absent)."""
+    spec = model.get("cost_items") or {}
+    return CostItems(**{k: float(v) for k, v in spec.items() if k in COST_ITEM_KEYS})
 
 
 def core_existing(spec: dict, model: dict, methods: dict[str, Method]) -> ExistingProbe:
@@ -314,6 +348,7 @@ def to_core(model: dict) -> Project:
         existing=tuple(core_existing(e, model, methods) for e in model.get("existing") or []),
         layouts=tuple(core_layout(lay) for lay in model.get("layouts") or []),
         elements=tuple(core_element(e, model) for e in model.get("elements") or []),
+        costs=core_cost_items(model),
     )
     check_history_bounds(project)
     return project

@@ -68,7 +68,7 @@ def evaluation_text(evaluation, currency: str, values=None) -> str:
         "Probes",
         "Metres",
         f"Cost{cur}",
-        "Days",
+        "Calendar days",
         "Gain (bits)",
         f"Bits per 1000 {currency}".rstrip(),
         "Pareto",

@@ -79,7 +79,7 @@ def optimise_text(out, project, budget: float) -> str:
         [mid, str(t.count), num(t.metres, 1), num(t.cost, 0), num(t.duration_days, 1)]
         for mid, t in r.by_method.items()
     ]
-    parts += [format_table(["Method", "Probes", "Metres", f"Cost{cur}", "Days"], by_method), ""]
+    parts += [format_table(["Method", "Probes", "Metres", f"Cost{cur}", "Rig-days"], by_method), ""]
     parts += [probe_table(r.plans, names), ""]
     step = max(1, len(out.curve) // 12)
     curve = list(out.curve[::step])

@@ -8,7 +8,8 @@ Pareto-efficient option that buys the most information per unit cost.
 
 - text (default): a printable schedule;
 - json: ``{"project", "layout", "currency", "crs", "date", "probes", "by_method", "totals",
-  "main_boundary", "justification", "caution"}`` (``probewise.app.schedule.schedule_json``);
+  "main_boundary", "programme", "instructions", "justification", "caution"}`` (each
+  probe with its ``warnings``) (``probewise.app.schedule.schedule_json``);
 - csv, geojson, gpkg: the probe list as ``probewise export --what schedule`` writes it
   (a GeoPackage needs ``-o``).
 
@@ -64,6 +65,7 @@ def schedule_text(schedule, today: str) -> str:
     parts = _header_lines(schedule, today)
     parts += _probe_lines(schedule)
     parts += _method_lines(schedule)
+    parts += _programme_lines(schedule)
     parts += _totals_lines(schedule, today)
     return "\n".join(parts)
 
@@ -127,8 +129,9 @@ def _probe_lines(schedule) -> list[str]:
                 "reach, plus its embedment, capped by its maximum depth and by refusal (r: "
                 "expected to stop on a unit it cannot penetrate); a depth set on the layout is "
                 "used as given. *: the boundary the depth was planned for. Estimated cost per "
-                "probe: per location plus per metre x depth; mobilisation is counted once per "
-                "method below."
+                "probe: its own items (location, service clearance, reinstatement, metres, "
+                "pre-drilling, its rig-days' traffic management and supervision) with "
+                "contingency; mobilisation, standing time and reporting are counted below."
             ),
         ]
         warned = [row for row in schedule.probes if row.get("warnings")]
@@ -169,7 +172,7 @@ def _method_lines(schedule) -> list[str]:
             _money(t.locations_cost),
             _money(t.metres_cost),
             _money(t.cost),
-            _num(t.duration_days, 1),
+            _num(sum(m.duration_days for m in schedule.methods), 1),
             "",
         ]
     )
@@ -182,7 +185,7 @@ def _method_lines(schedule) -> list[str]:
         "Locations",
         "Metres probed",
         f"Total{_currency_suffix(schedule)}",
-        "Days",
+        "Rig-days",
         "m/day",
     ]
     return [
@@ -192,11 +195,48 @@ def _method_lines(schedule) -> list[str]:
         format_table(method_headers, method_rows, left=2),
         "",
         _wrap(
-            "Days: probing metres over each method's daily rate, one rig per method; methods "
-            "may run side by side. Rates and prices are the project's own figures, not "
-            "quotations."
+            "Rig-days: probing, pre-drilling and moves of each method; Total: each method's "
+            "share with contingency (the layout's total adds reporting). Rates and prices are "
+            "the project's own figures, not quotations."
         ),
     ]
+
+
+def _programme_lines(schedule) -> list[str]:
+    """Cost by item, the rigs' programme and each probe's warnings."""
+    from probewise.commands.tables import format_table
+
+    view = schedule.programme
+    if view is None or not view.lines:
+        return []
+    costs = [[row.label, _money(row.amount)] for row in view.costs]
+    costs.append(["Total", _money(view.cost)])
+    lines = [
+        [
+            line.method,
+            str(line.probes),
+            str(line.rigs),
+            _num(line.move_days, 2),
+            _num(line.predrill_m, 1),
+            _num(line.rig_days, 1),
+            _num(line.line_days, 1),
+        ]
+        for line in view.lines
+    ]
+    heads = ["Method", "Probes", "Rigs", "Move days", "Pre-drilled m", "Rig-days", "Days"]
+    parts = ["", "COST BY ITEM", "", format_table(["Item", "Amount"], costs, left=1)]
+    parts += ["", "PROGRAMME", "", format_table(heads, lines, left=1), ""]
+    parts.append(
+        _wrap(
+            f"{_num(view.calendar_days, 1)} calendar days (the longest method's line, rigs and "
+            f"methods side by side); {_num(view.rig_days, 1)} rig-days."
+        )
+    )
+    warned = [(row["id"], w) for row in schedule.probes for w in row.get("warnings") or []]
+    if warned:
+        parts += ["", "WARNINGS", ""]
+        parts += [_wrap(f"{pid}: {text}") for pid, text in warned]
+    return parts
 
 
 def _totals_lines(schedule, today: str) -> list[str]:
@@ -210,7 +250,8 @@ def _totals_lines(schedule, today: str) -> list[str]:
         f"Probes:            {t.probes}",
         f"Probing:           {_num(t.metres, 1)} m",
         f"Estimated cost:    {money}, mobilisation {_money(t.mobilisation)} included",
-        f"Fieldwork:         {_num(t.duration_days, 1)} days",
+        f"Fieldwork:         {_num(t.duration_days, 1)} calendar days"
+        + (f" ({_num(schedule.programme.rig_days, 1)} rig-days)" if schedule.programme else ""),
         f"Information gain:  {gain}" + ("" if t.pareto else " (not Pareto-efficient)"),
         "",
         "WHY THIS OPTION",

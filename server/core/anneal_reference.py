@@ -64,7 +64,7 @@ class LayoutScorer:
         state, plans = self.analysis.layout_state(layout)
         pred = state.predict(ev.grid.xy, base=ev.base_pred)
         gain = information_gain_bits(self.ground, ev.grid, ev.base_pred.var_m2, pred.var_m2)
-        return gain, layout_cost(plans, self.analysis.methods)[0]
+        return gain, layout_cost(plans, self.analysis.methods, self.analysis.project.costs)[0]
 
 
 def _layout(method_id: str, xy: np.ndarray) -> Layout:

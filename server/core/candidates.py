@@ -14,6 +14,7 @@ from probewise.core.grid import EvaluationGrid, evaluation_grid_capped
 from probewise.core.model import PlannedProbe, Project
 from probewise.core.optimise_types import MAX_CANDIDATE_LOCATIONS, Candidates, OptimiseError
 from probewise.core.planning import plan_probes
+from probewise.core.programme import probe_cost
 
 
 def nice_spacing_m(raw_m: float) -> float:
@@ -95,7 +96,7 @@ def build_candidates(
         l, j = divmod(n, J)
         method = methods[method_ids[j]]
         depth[l, j] = plan.depth_m
-        cost[l, j] = method.per_location + method.per_metre * plan.depth_m
+        cost[l, j] = probe_cost(method, plan.depth_m, plan.predrill_m, analysis.project.costs)
         for k in plan.observes:
             noise[l, j, k] = method.precision_m[k] ** 2
     valid = np.isfinite(noise).any(axis=2)

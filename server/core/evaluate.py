@@ -9,8 +9,8 @@ layout's probes added:
   of interest, which has no tolerance);
 - information gain (bits): sum over boundaries of interest of weight x weighted mean of
   0.5 log2(var_baseline / var_layout), variances floored at ``VAR_FLOOR_M2``;
-- cost: mobilisation once per method used + per location + per metre x planned depth;
-  metres; duration (days) = metres / metres per day summed per method; gain per unit cost;
+- cost, metres, rig-days and calendar days from ``probewise.core.programme`` (the one
+  place a layout is priced: method rates, cost items, contingency); gain per unit cost;
   Pareto efficiency among the layouts.
 
 Every cell figure is that of the cell average of the boundary depth, not of the depth at the
@@ -29,9 +29,10 @@ import numpy as np
 from probewise.core.analysis import ProjectAnalysis
 from probewise.core.blocks import CellBlocks, cell_blocks, predict_cells
 from probewise.core.grid import MAX_GRID_CELLS, EvaluationGrid, evaluation_grid_capped
-from probewise.core.model import GroundModel, Layout, Method, Project
+from probewise.core.model import CostItems, GroundModel, Layout, Method, Project
 from probewise.core.planning import ProbePlan
 from probewise.core.posterior import Prediction
+from probewise.core.programme import Programme, contingency_factor, layout_programme
 
 VAR_FLOOR_M2 = 1e-12  # keeps the log-ratio of an exactly known depth finite
 
@@ -46,7 +47,8 @@ class BoundaryMetrics:
 
 @dataclass(frozen=True)
 class MethodTotals:
-    """One method's share of a layout."""
+    """One method's share of a layout: cost with its contingency, ``duration_days`` its
+    rig-days."""
 
     count: int
     metres: float
@@ -93,11 +95,16 @@ class LayoutResult:
     plans: tuple[ProbePlan, ...]
     cost: float
     metres: float
-    duration_days: float
+    duration_days: float  # calendar days: rigs and methods side by side
     information_gain_bits: float
     gain_per_cost: float | None
     pareto: bool
     by_method: dict[str, MethodTotals]
+    programme: Programme | None = None  # cost by item, rig-days, method lines
+
+    @property
+    def rig_days(self) -> float:
+        return self.programme.rig_days if self.programme is not None else self.duration_days
 
 
 @dataclass(frozen=True, eq=False)
@@ -158,26 +165,17 @@ def information_gain_bits(
 
 
 def layout_cost(
-    plans: Sequence[ProbePlan], methods: dict[str, Method]
+    plans: Sequence[ProbePlan], methods: dict[str, Method], items: CostItems | None = None
 ) -> tuple[float, float, float, dict[str, MethodTotals]]:
-    """Cost, metres and duration (days) of planned probes, and the split per method.
-
-    Mobilisation is paid once per method used; per location and per metre for every probe.
-    """
-    by_method: dict[str, MethodTotals] = {}
-    for method_id in dict.fromkeys(p.probe.method for p in plans):
-        mine = [p for p in plans if p.probe.method == method_id]
-        m = methods[method_id]
-        metres = float(sum(p.depth_m for p in mine))
-        cost = m.mobilisation + m.per_location * len(mine) + m.per_metre * metres
-        by_method[method_id] = MethodTotals(len(mine), metres, cost, metres / m.metres_per_day)
-    totals = by_method.values()
-    return (
-        float(sum(t.cost for t in totals)),
-        float(sum(t.metres for t in totals)),
-        float(sum(t.duration_days for t in totals)),
-        by_method,
-    )
+    """Cost, metres and calendar days of planned probes, and the split per method
+    (``probewise.core.programme.layout_programme``; default cost items: none)."""
+    programme = layout_programme(plans, methods, items or CostItems())
+    factor = contingency_factor(items or CostItems())
+    by_method = {
+        line.method: MethodTotals(line.count, line.metres, factor * line.cost, line.rig_days)
+        for line in programme.lines
+    }
+    return programme.cost, programme.metres, programme.calendar_days, by_method
 
 
 def pareto_flags(costs: Sequence[float], gains: Sequence[float]) -> list[bool]:
@@ -230,7 +228,9 @@ class GridEvaluator:
         pred, plans = self.layout_prediction(layout)
         post = grid_posterior(self.analysis, pred)
         gain = information_gain_bits(self.ground, self.grid, self.base_pred.var_m2, pred.var_m2)
-        cost, metres, days, by_method = layout_cost(plans, self.analysis.methods)
+        costs = self.analysis.project.costs
+        programme = layout_programme(plans, self.analysis.methods, costs)
+        cost, metres, days, by_method = layout_cost(plans, self.analysis.methods, costs)
         return LayoutResult(
             name=layout.name,
             boundaries=summarise(self.ground, self.grid, post),
@@ -243,6 +243,7 @@ class GridEvaluator:
             gain_per_cost=gain / cost if cost > 0 else None,
             pareto=True,
             by_method=by_method,
+            programme=programme,
         )
 
 

@@ -327,14 +327,14 @@ class GreedyProblem:
         plans = plan_probes(
             self.ground, self.analysis.methods, self.analysis.baseline, layout.probes
         )
-        return layout_cost(plans, self.analysis.methods)[0]
+        return layout_cost(plans, self.analysis.methods, self.analysis.project.costs)[0]
 
     def apply_layout(self, state: GreedyState, layout: Layout) -> tuple[float, float]:
         """Condition ``state`` on a hand-made layout's readings; return (cost, gain bits)."""
         plans = plan_probes(
             self.ground, self.analysis.methods, self.analysis.baseline, layout.probes
         )
-        cost = layout_cost(plans, self.analysis.methods)[0]
+        cost = layout_cost(plans, self.analysis.methods, self.analysis.project.costs)[0]
         obs = planned_observations(plans, self.analysis.methods, self.analysis.origin)
         if obs.size == 0:
             return cost, 0.0

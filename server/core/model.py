@@ -188,12 +188,32 @@ class GroundModel:
 
 
 @dataclass(frozen=True)
+class RefusalRule:
+    """The chance (0, 1] that a method refuses in a unit, and how to get through when it may:
+    pre-drilling at a cost per metre and a rate (m/day), or None (no pre-drilling)
+    (docs/model.md "Refusal and pre-drilling")."""
+
+    unit: int
+    chance: float
+    predrill_per_metre: float | None = None
+    predrill_metres_per_day: float | None = None
+
+    @property
+    def predrills(self) -> bool:
+        return self.predrill_metres_per_day is not None
+
+
+@dataclass(frozen=True)
 class Method:
     """An investigation method: costs, production, reach and what it resolves.
 
     ``precision_m`` has one entry per boundary: the std (m) of the depth it reads for that
     boundary, or ``nan`` where it does not resolve the boundary.
     ``refusal_unit`` is the index of the shallowest unit it cannot penetrate, or None.
+    ``refusals`` are chances of refusal per unit (with pre-drilling to get through);
+    ``proves_refusal`` says whether a stop on a unit proves that unit's top (coring does; a
+    cone's refusal on a boulder looks the same as on rock). ``rigs`` work side by side;
+    ``move_days`` is the moving and setting up at each location (docs/model.md "Programme").
     """
 
     id: str
@@ -207,9 +227,34 @@ class Method:
     embedment_m: float
     refusal_unit: int | None
     precision_m: tuple[float, ...]
+    refusals: tuple[RefusalRule, ...] = ()
+    proves_refusal: bool = True
+    rigs: int = 1
+    move_days: float = 0.0
 
     def resolves(self, boundary: int) -> bool:
         return bool(np.isfinite(self.precision_m[boundary]))
+
+
+@dataclass(frozen=True)
+class CostItems:
+    """Costs of an investigation beyond each method's own rates (docs/model.md "Cost").
+
+    Per location: service clearance (scan and inspection pit) and reinstatement. Per rig-day
+    (a day of one rig's work at a location, moves included): traffic management, supervision
+    and logging. Per rig mobilised: a standing-time allowance of ``standing_days_per_rig`` at
+    ``standing_per_day``. Once: reporting. ``contingency_percent`` in [0, 100] is added on the
+    whole.
+    """
+
+    service_clearance_per_location: float = 0.0
+    reinstatement_per_location: float = 0.0
+    traffic_management_per_day: float = 0.0
+    supervision_per_day: float = 0.0
+    standing_per_day: float = 0.0
+    standing_days_per_rig: float = 0.0
+    reporting: float = 0.0
+    contingency_percent: float = 0.0
 
 
 @dataclass(frozen=True)
@@ -303,6 +348,7 @@ class Project:
     existing: tuple[ExistingProbe, ...] = ()
     layouts: tuple[Layout, ...] = field(default_factory=tuple)
     elements: tuple[DesignElement, ...] = ()
+    costs: CostItems = field(default_factory=CostItems)
 
     @property
     def origin(self) -> tuple[float, float]:

@@ -75,6 +75,7 @@ from probewise.core.optimise_types import (  # noqa: F401 - public here as befor
     ProgressFn,
     Refinement,
 )
+from probewise.core.programme import method_fixed_cost, project_fixed_cost
 
 
 def method_mixes(
@@ -144,6 +145,7 @@ class OptimiseSetup:
     min_spacing_m: float
     problem: GreedyProblem
     mobilisation: dict[str, float]
+    fixed_cost: float = 0.0  # what any layout with a probe pays (reporting, with contingency)
     _evaluator: GridEvaluator | None = None
 
     @property
@@ -206,9 +208,18 @@ def prepare_optimisation(
     targets = build_targets(analysis, grid)
     report(0.05, "building the covariance of candidates and targets")
     problem = GreedyProblem(analysis, cand, targets)
-    mob = {m: methods[m].mobilisation for m in allowed_ids}
+    # one pricing with evaluation and the schedule (probewise.core.programme)
+    mob = {m: method_fixed_cost(methods[m], project.costs) for m in allowed_ids}
     return OptimiseSetup(
-        project, options, analysis, grid, float(spacing), float(min_spacing), problem, mob
+        project,
+        options,
+        analysis,
+        grid,
+        float(spacing),
+        float(min_spacing),
+        problem,
+        mob,
+        project_fixed_cost(project.costs),
     )
 
 
@@ -219,7 +230,9 @@ def greedy_jobs(
     mob, allowed_ids = setup.mobilisation, setup.candidates.method_ids
     jobs: list[tuple[tuple[str, ...], Layout | None]] = [
         (mix, None)
-        for mix in method_mixes(allowed_ids, mob, options.budget, options.max_methods_per_mix)
+        for mix in method_mixes(
+            allowed_ids, mob, options.budget - setup.fixed_cost, options.max_methods_per_mix
+        )
     ]
     if options.warm_start:
         for layout in project.layouts:
@@ -255,7 +268,7 @@ def run_greedy_jobs(
         if should_stop is not None and should_stop():
             raise OptimiseCancelled()
         state = problem.base_state.copy()
-        start_cost = start_gain = 0.0
+        start_cost, start_gain = setup.fixed_cost, 0.0
         taken = None
         if start is not None:
             start_cost = problem.layout_cost(start)
@@ -265,7 +278,7 @@ def run_greedy_jobs(
             taken = analysis.to_local(np.array([(p.x, p.y) for p in start.probes]))
             left = budget - start_cost
         else:
-            left = budget - sum(mob[m] for m in mix)
+            left = budget - setup.fixed_cost - sum(mob[m] for m in mix)
         allowed = np.array([m in mix for m in cand.method_ids])
         label = f"from {start.name!r}" if start is not None else "+".join(mix)
 
@@ -284,16 +297,21 @@ def run_greedy_jobs(
 
 
 def budget_prefixes(
-    runs: Sequence[GreedyRun], cand: Candidates, mob: dict[str, float], budget: float
+    runs: Sequence[GreedyRun],
+    cand: Candidates,
+    mob: dict[str, float],
+    budget: float,
+    fixed_cost: float = 0.0,
 ) -> list[tuple[float, float, int, int]]:
-    """``(gain, -cost, run index, n picks)`` of every prefix within the budget."""
+    """``(gain, -cost, run index, n picks)`` of every prefix within the budget
+    (``fixed_cost``: what any layout with a probe pays)."""
     prefixes = []
     for r_idx, run in enumerate(runs):
         for n, cost, gain in run.prefixes(cand, mob):
             if cost <= budget + 1e-9 and (n > 0 or run.start is not None):
                 prefixes.append((gain, -cost, r_idx, n))
     if not prefixes:
-        if budget <= min(mob.values()):
+        if budget <= fixed_cost + min(mob.values()):
             raise _no_mobilisation_error(budget, mob)
         raise OptimiseError(
             f"nothing fits a budget of {budget:g}: no allowed probe costs that little "
@@ -389,7 +407,9 @@ def optimise(
         setup = prepare_optimisation(project, options, report)
     jobs = greedy_jobs(project, options, setup)
     runs, starts = run_greedy_jobs(setup, options.budget, jobs, report, should_stop)
-    prefixes = budget_prefixes(runs, setup.candidates, setup.mobilisation, options.budget)
+    prefixes = budget_prefixes(
+        runs, setup.candidates, setup.mobilisation, options.budget, setup.fixed_cost
+    )
     curve = upper_envelope([(-c, g) for g, c, _, _ in prefixes])
     report(0.82, "re-evaluating the best layouts on the full grid")
     title = name or f"Optimised for {options.budget:g}"

@@ -99,7 +99,8 @@ class Candidates:
     depth_m : (L, J) float
         Planned depth of each candidate.
     cost : (L, J) float
-        Per-location + per-metre cost (no mobilisation).
+        Cost of each candidate probe, contingency included, no fixed cost
+        (``probewise.core.programme.probe_cost``).
     noise_var : (L, J, B) float
         Reading variance for each boundary the candidate observes; ``nan`` elsewhere.
     valid : (L, J) bool
@@ -141,8 +142,9 @@ class GreedyRun:
     picks: tuple[Pick, ...]
 
     def prefixes(self, cand: Candidates, mobilisation: dict[str, float]):
-        """``(n_picks, cost, gain)`` of every prefix; cost pays mobilisation of methods used."""
-        used: set[str] = set()
+        """``(n_picks, cost, gain)`` of every prefix; cost pays mobilisation of methods used
+        (a start layout's cost paid its own methods', which are the run's mix)."""
+        used: set[str] = set(self.mix) if self.start is not None else set()
         cost, gain = self.start_cost, self.start_gain_bits
         out = [(0, cost, gain)]
         for n, p in enumerate(self.picks, start=1):

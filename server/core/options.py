@@ -133,6 +133,7 @@ class RankedOption:
     net_value: float | None = None
     # (choice element name, probability the readings allow its cheaper design)
     p_cheaper_allowed: tuple[tuple[str, float], ...] = ()
+    rig_days: float = 0.0  # every rig's days summed (``duration_days``: calendar days)
 
     @property
     def benefit_cost_ratio(self) -> float | None:
@@ -228,6 +229,7 @@ def rank_options(
             expected_saving=saving,
             net_value=None if saving is None else saving - r.cost,
             p_cheaper_allowed=chance,
+            rig_days=r.rig_days,
         )
         for layout, r, flag, saving, chance in zip(
             options, results, flags, savings, chances, strict=True

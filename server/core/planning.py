@@ -15,6 +15,18 @@ truncated posterior (``probewise.core.bounds``).
   nothing to reach: the maximum depth, capped by refusal.
 - Observed set: boundaries the method resolves, not below the refusal surface, whose current
   P95 is no deeper than the planned depth.
+- Refusal rules (``Method.refusals``): a chance of refusal in a unit of at least
+  ``LIKELY_REFUSAL`` is planned as a refusal (the likelier outcome), capped like
+  ``cannot_penetrate``, unless the rule pre-drills and the probe must pass the unit (its
+  depth planned with the pre-drilling is below the unit's current P95 base): then the probe
+  is pre-drilled from the unit's current P5 top to its P95 base, and the method does not read
+  the base of that unit (it resumes below it). A smaller chance is planned as passing and
+  reported as a risk. A probe that may refuse in a unit has entered it, so its record reads
+  the unit's top.
+- A stop on a unit it cannot penetrate at all (``cannot_penetrate``) proves that unit's top
+  only when the method proves refusal (``Method.proves_refusal``: coring reaches rock; a
+  cone stopped by a boulder looks the same as one stopped by rock). Otherwise that boundary
+  is neither a target nor observed.
 """
 
 from __future__ import annotations
@@ -25,8 +37,10 @@ from dataclasses import dataclass
 import numpy as np
 
 from probewise.core.bounds import depth_bounds, truncated_quantiles
-from probewise.core.model import GroundModel, Method, PlannedProbe
+from probewise.core.model import GroundModel, Method, PlannedProbe, RefusalRule
 from probewise.core.posterior import Observations, PosteriorState, Prediction
+
+LIKELY_REFUSAL = 0.5  # a chance of refusal at least this is planned as a refusal
 
 
 @dataclass(frozen=True)
@@ -47,6 +61,14 @@ class ProbePlan:
     refuses : bool
         True when the planned depth reaches the refusal cap (the probe is expected to stop on
         the unit it cannot penetrate).
+    refusal_unit : int or None
+        The unit it is expected to stop on (when ``refuses``).
+    predrill_m : float
+        Metres pre-drilled to get through units the method would likely refuse in.
+    predrilled : tuple of int
+        Units pre-drilled.
+    risks : tuple of (int, float)
+        Units the probe is planned into with a smaller chance of refusal: (unit, chance).
     """
 
     probe: PlannedProbe
@@ -54,6 +76,45 @@ class ProbePlan:
     observes: tuple[int, ...]
     target: int | None
     refuses: bool
+    refusal_unit: int | None = None
+    predrill_m: float = 0.0
+    predrilled: tuple[int, ...] = ()
+    risks: tuple[tuple[int, float], ...] = ()
+
+
+@dataclass(frozen=True)
+class RefusalOutcomes:
+    """What planning assumes of a method's refusals: the unit it stops on (None: none),
+    whether that stop reads the unit's top, the rules it pre-drills through (above the stop)
+    and those it may refuse in (above it)."""
+
+    stop_unit: int | None
+    stop_reads_top: bool
+    predrill: tuple[RefusalRule, ...]
+    possible: tuple[RefusalRule, ...]
+
+    def stopped_at(self, unit: int) -> RefusalOutcomes:
+        """The same with a stop in ``unit`` (a refusal rule's unit, above the stop)."""
+        return RefusalOutcomes(
+            unit,
+            True,
+            tuple(r for r in self.predrill if r.unit < unit),
+            tuple(r for r in self.possible if r.unit < unit),
+        )
+
+
+def refusal_outcomes(method: Method) -> RefusalOutcomes:
+    """The likelier outcome of each of a method's refusal rules (module docstring)."""
+    likely = [r.unit for r in method.refusals if r.chance >= LIKELY_REFUSAL and not r.predrills]
+    stops = likely + ([method.refusal_unit] if method.refusal_unit is not None else [])
+    stop = min(stops) if stops else None
+    above = [r for r in method.refusals if stop is None or r.unit < stop]
+    return RefusalOutcomes(
+        stop,
+        method.proves_refusal or stop != method.refusal_unit,
+        tuple(r for r in above if r.chance >= LIKELY_REFUSAL and r.predrills),
+        tuple(r for r in above if r.chance < LIKELY_REFUSAL),
+    )
 
 
 def plan_probes(
@@ -88,34 +149,82 @@ def plan_probes(
     pred = current_prediction if current_prediction is not None else current.predict(xy)
     lo, hi = depth_bounds(ground, xy, current.origin, pred.fields)
     p95 = truncated_quantiles(pred.mean_m, pred.std_m, lo, hi, 0.95)  # (n, B)
+    p05 = truncated_quantiles(pred.mean_m, pred.std_m, lo, hi, 0.05)
     of_interest = {b.boundary for b in ground.boundaries_of_interest}
-    B = ground.n_boundaries
+    outcomes = {mid: refusal_outcomes(methods[mid]) for mid in {p.method for p in probes}}
     plans = []
     for j, probe in enumerate(probes):
-        method = methods[probe.method]
-        r = method.refusal_unit
-        above_refusal = B if r is None else min(r, B)  # boundaries 0..above_refusal-1
-        if r is None:
-            cap = np.inf
-        elif r == 0:
-            cap = 0.0
-        else:
-            cap = float(p95[j, r - 1])
-        resolved = [k for k in range(above_refusal) if method.resolves(k)]
-        reachable = [k for k in resolved if p95[j, k] <= method.max_depth_m]
-        target = None
-        if probe.depth_m is not None:
-            depth = float(probe.depth_m)
-        else:
-            wanted = [k for k in reachable if k in of_interest] or reachable
-            if wanted:
-                target = max(wanted)
-                depth = min(float(p95[j, target]) + method.embedment_m, method.max_depth_m, cap)
-            else:
-                depth = min(float(method.max_depth_m), cap)
-        observes = tuple(k for k in resolved if p95[j, k] <= depth)
-        plans.append(ProbePlan(probe, depth, observes, target, bool(depth >= cap)))
+        plans.append(
+            _plan_one(
+                ground,
+                methods[probe.method],
+                outcomes[probe.method],
+                probe,
+                p95[j],
+                p05[j],
+                of_interest,
+            )
+        )
     return tuple(plans)
+
+
+def _plan_one(
+    ground: GroundModel,
+    method: Method,
+    outcome: RefusalOutcomes,
+    probe: PlannedProbe,
+    p95: np.ndarray,
+    p05: np.ndarray,
+    of_interest: set[int],
+) -> ProbePlan:
+    """One probe's plan from the current P95 and P5 depths ``(B,)`` at its spot."""
+    B = ground.n_boundaries
+    r = outcome.stop_unit
+    above_refusal = B if r is None else min(r, B)  # boundaries 0..above_refusal-1
+    cap = np.inf if r is None else (0.0 if r == 0 else float(p95[r - 1]))
+    unread = {u for u in (p.unit for p in outcome.predrill) if u < B}  # bases not read
+    if r is not None and r > 0 and not outcome.stop_reads_top:
+        unread.add(r - 1)  # a stop there does not prove the top of unit r
+    resolved = [k for k in range(above_refusal) if method.resolves(k) and k not in unread]
+    reachable = [k for k in resolved if p95[k] <= method.max_depth_m]
+    target = None
+    if probe.depth_m is not None:
+        depth = float(probe.depth_m)
+    else:
+        wanted = [k for k in reachable if k in of_interest] or reachable
+        if wanted:
+            target = max(wanted)
+            depth = min(float(p95[target]) + method.embedment_m, method.max_depth_m, cap)
+        else:
+            depth = min(float(method.max_depth_m), cap)
+    observes = tuple(k for k in resolved if p95[k] <= depth)
+
+    def top_m(unit: int) -> float:
+        return 0.0 if unit == 0 else float(p05[unit - 1])
+
+    predrill_m, predrilled = 0.0, []
+    for rule in sorted(outcome.predrill, key=lambda r: r.unit):
+        if rule.unit < B and depth <= p95[rule.unit]:  # need not pass it: a refusal there
+            return _plan_one(
+                ground, method, outcome.stopped_at(rule.unit), probe, p95, p05, of_interest
+            )
+        top = top_m(rule.unit)
+        base = float(p95[rule.unit]) if rule.unit < B else depth
+        predrill_m += max(min(base, depth) - top, 0.0)
+        predrilled.append(rule.unit)
+    risks = tuple((rule.unit, rule.chance) for rule in outcome.possible if depth > top_m(rule.unit))
+    refuses = bool(depth >= cap)
+    return ProbePlan(
+        probe,
+        depth,
+        observes,
+        target,
+        refuses,
+        r if refuses else None,
+        predrill_m,
+        tuple(predrilled),
+        risks,
+    )
 
 
 def planned_observations(

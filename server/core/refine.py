@@ -69,7 +69,8 @@ class RefineSpec:
     budget : float
         Most the layout may cost, mobilisation included.
     fixed_cost : float
-        Cost of the fixed part (a hand-made start layout, mobilisation included; else 0).
+        Cost of the fixed part (a hand-made start layout, mobilisation included; else what
+        any layout pays, reporting).
     fixed_methods : frozenset of str
         Methods whose mobilisation ``fixed_cost`` already pays.
     fixed_xy : (n, 2) float
@@ -384,7 +385,7 @@ def refine_layout(
         return layout, result, Refinement(g0, g0, 0, 0, 0, time.perf_counter() - t0)
     problem = refinement_problem(setup, picks, options.refine_cells)
     state = problem.base_state.copy()
-    fixed_cost, fixed_methods, fixed_xy = 0.0, frozenset(), np.zeros((0, 2))
+    fixed_cost, fixed_methods, fixed_xy = setup.fixed_cost, frozenset(), np.zeros((0, 2))
     if start is not None:
         fixed_cost = problem.apply_layout(state, start)[0]
         fixed_methods = frozenset(p.method for p in start.probes)

@@ -87,6 +87,7 @@ def ranking_rows(entry: ProjectResults, chosen: str | None) -> list[dict[str, An
                 "n_probes": option.n_probes,
                 "cost": option.cost,
                 "duration_days": option.duration_days,
+                "rig_days": option.rig_days,
                 "metres": option.metres,
                 "gain_bits": option.information_gain_bits,
                 "gain_per_1000": None

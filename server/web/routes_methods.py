@@ -14,9 +14,11 @@ from fastapi import APIRouter, Request
 from starlette.responses import Response
 
 from probewise.io.model_file import METHOD_KINDS
+from probewise.io.model_programme import COST_ITEM_KEYS
 from probewise.store import StoredProject
 from probewise.web.deps import Db
 from probewise.web.edits import EditPage, EditRefused, EditResult, FormReader, PostedForm, item_at
+from probewise.web.method_programme import read_cost_items, read_method_programme
 from probewise.web.templating import kind_label
 
 router = APIRouter(include_in_schema=False)
@@ -44,12 +46,16 @@ def methods_extra(
             for k, m in enumerate(methods)
         ],
         "unit_names": units,
+        "refusal_unit_options": [("", "(none)")] + [(u, u) for u in units],
+        "cost_items": {**dict.fromkeys(COST_ITEM_KEYS), **(model.get("cost_items") or {})},
         "boundary_names": units[:-1],
         "kind_options": [(kind, kind_label(kind)) for kind in METHOD_KINDS],
     }
 
 
-PAGE = EditPage("methods", "Methods and rates", methods_extra, own=("methods", "currency"))
+PAGE = EditPage(
+    "methods", "Methods and rates", methods_extra, own=("methods", "currency", "cost_items")
+)
 PAGE.add_undo_route(router)
 
 
@@ -69,6 +75,14 @@ def save_currency(request: Request, project_id: int, form: PostedForm, db: Db) -
     return PAGE.edit(request, db, project_id, form, edit, reader=reader)
 
 
+@router.post("/projects/{project_id}/methods/cost-items")
+def save_cost_items(request: Request, project_id: int, form: PostedForm, db: Db) -> Response:
+    reader = FormReader(form)
+    return PAGE.edit(
+        request, db, project_id, form, lambda model: read_cost_items(reader, model), reader=reader
+    )
+
+
 def read_method(reader: FormReader, path: str, method: dict) -> None:
     """The method form's fields into ``method`` (precision and extra keys are kept)."""
     method["id"] = reader.text("id", f"{path}.id", max_len=20)
@@ -85,6 +99,7 @@ def read_method(reader: FormReader, path: str, method: dict) -> None:
     method["embedment_m"] = reader.number("embedment_m", f"{path}.embedment_m")
     method["cannot_penetrate"] = reader.all("cannot_penetrate")
     method.setdefault("precision_m", {})
+    read_method_programme(reader, path, method)  # refusal rules, rigs, moves
 
 
 def rename_method(model: dict, old: str, new: str) -> None:
@@ -120,6 +135,10 @@ def save_method(request: Request, project_id: int, index: int, form: PostedForm,
             changed.append("depth limits")
         if old.get("cannot_penetrate") != method.get("cannot_penetrate"):
             changed.append("refusal units")
+        if any(old.get(k) != method.get(k) for k in ("refusal", "proves_refusal")):
+            changed.append("refusal rules")
+        if any(old.get(k) != method.get(k) for k in ("rigs", "move_days")):
+            changed.append("rigs and moves")
         if old.get("name") != method.get("name") or old.get("kind") != method.get("kind"):
             changed.append("name and kind")
         what = " and ".join([", ".join(changed[:-1]), changed[-1]] if len(changed) > 1 else changed)

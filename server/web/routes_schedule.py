@@ -152,6 +152,8 @@ def schedule_context(
         chart_src=f"{base}/compare/chart.svg?{urlencode(query)}",
         refusals=schedule.refusals,
         methods=schedule.methods,
+        programme=schedule.programme,  # _schedule_programme.html
+        instructions=schedule.instructions,  # _schedule_instructions.html
         justification=list(schedule.justification),
         main_boundary=schedule.main_boundary,
         plan_src=f"{base}/schedule/plan.png?{urlencode(query)}",

@@ -356,7 +356,8 @@ class Dense:
                 cost += meth["cost"]["mobilisation"] + meth["cost"]["per_location"] * len(mine)
                 cost += meth["cost"]["per_metre"] * sum(mine)
                 metres += sum(mine)
-                days += sum(mine) / meth["metres_per_day"]
+                # methods work side by side (one rig each, no moves in these models)
+                days = max(days, sum(mine) / meth["metres_per_day"])
             layouts.append(
                 {
                     "name": lay["name"],

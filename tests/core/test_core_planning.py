@@ -132,3 +132,92 @@ def test_existing_probes_shape_the_plan():
     prior_p95 = dense.quantile(prior_mean, prior_std, lo, hi, 0.95)
     # the reading, not the prior, governs: the mean sits on 6.2 m, the prior P95 is metres deeper
     assert abs(mean[0, gravel] - 6.2) < 0.05 and prior_p95 - p95 > 2.0
+
+
+# ---------------------------------------------------------------- refusal rules and proof
+# (docs/model.md "Refusal and pre-drilling"; constructed cases on the tiny model)
+
+
+def _cpt(model: dict) -> dict:
+    return next(m for m in model["methods"] if m["id"] == "CPT")
+
+
+def test_a_stop_that_does_not_prove_the_unit_top_is_not_a_reading():
+    # The tiny CPT stops on River gravel (cannot_penetrate). With proves_refusal false the
+    # stop at the top of River gravel (the base of Alluvial clay) is not a reading: neither
+    # the target nor observed, and the layout learns less about that boundary.
+    model = tiny_dict()
+    proven, p95 = _plan(model, "CPT")
+    _cpt(model)["proves_refusal"] = False
+    unproven, _ = _plan(model, "CPT")
+    assert 1 in proven.observes and 1 not in unproven.observes
+    assert unproven.observes == (0,) and unproven.target == 0
+    assert unproven.refuses is False  # planned for the base of Made ground, short of the stop
+    from probewise.core.evaluate import evaluate_project
+
+    layout = Layout("one", (PlannedProbe("P1", "CPT", *SPOT),))
+    std = {}
+    for flag in (True, False):
+        _cpt(model)["proves_refusal"] = flag
+        result = evaluate_project(to_core(model), [layout]).layouts[0]
+        std[flag] = result.boundaries["Alluvial clay"].std_mean_m
+    assert std[False] > std[True]
+
+
+def test_a_likely_refusal_without_pre_drilling_stops_like_cannot_penetrate():
+    model = tiny_dict()
+    _cpt(model)["cannot_penetrate"] = []
+    _cpt(model)["refusal"] = [{"unit": "River gravel", "chance": 0.7}]
+    plan, p95 = _plan(model, "CPT")
+    assert plan.refuses and plan.refusal_unit == 2
+    assert plan.depth_m == pytest.approx(p95[1], abs=1e-12)
+    assert plan.observes == (0, 1)  # a probe that may refuse in a unit has entered it
+
+
+def test_a_small_chance_of_refusal_is_planned_through_and_reported_as_a_risk():
+    model = tiny_dict()
+    cpt = _cpt(model)
+    cpt["cannot_penetrate"] = []
+    cpt["precision_m"]["River gravel"] = 0.3
+    cpt["refusal"] = [{"unit": "River gravel", "chance": 0.3}]
+    plan, p95 = _plan(model, "CPT")
+    assert not plan.refuses and plan.target == 2
+    assert plan.risks == ((2, 0.3),)
+    assert plan.observes == (0, 1, 2)
+
+
+def test_pre_drilling_passes_the_unit_but_does_not_read_its_base():
+    # Constructed: the CPT must pre-drill Alluvial clay (unit 1) to reach the base of River
+    # gravel: it reads the base of Made ground and of River gravel, not that of the clay, and
+    # pre-drills from the clay's P5 top to its P95 base.
+    model = tiny_dict()
+    cpt = _cpt(model)
+    cpt["cannot_penetrate"] = []
+    cpt["precision_m"]["River gravel"] = 0.3
+    cpt["refusal"] = [
+        {
+            "unit": "Alluvial clay",
+            "chance": 1.0,
+            "predrill": {"per_metre": 40, "metres_per_day": 20},
+        }
+    ]
+    plan, p95 = _plan(model, "CPT")
+    p05 = ProjectAnalysis(to_core(model)).at_points(np.array([SPOT])).p05_m[0]
+    assert plan.target == 2 and plan.observes == (0, 2)
+    assert plan.predrilled == (1,)
+    assert plan.predrill_m == pytest.approx(p95[1] - p05[0], abs=1e-12)
+    assert plan.depth_m == pytest.approx(p95[2] + 0.5, abs=1e-12)
+
+
+def test_pre_drilling_is_not_paid_when_the_target_is_above_the_unit():
+    # The same rule on River gravel: the CPT's targets end in the gravel, so it need not pass
+    # it and stops there (a likely refusal), with no pre-drilling priced.
+    model = tiny_dict()
+    cpt = _cpt(model)
+    cpt["cannot_penetrate"] = []
+    cpt["refusal"] = [
+        {"unit": "River gravel", "chance": 0.9, "predrill": {"per_metre": 40, "metres_per_day": 20}}
+    ]
+    plan, p95 = _plan(model, "CPT")
+    assert plan.refuses and plan.refusal_unit == 2 and plan.predrill_m == 0.0
+    assert plan.observes == (0, 1)

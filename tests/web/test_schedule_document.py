@@ -126,7 +126,7 @@ def test_warnings_column_names_exclusions_deep_pits_and_refusal(client, tiny_mod
         )
     }
     assert "inside the exclusion Live gas main easement" in rows["INX"]
-    assert "deep trial pit" in rows["TP1"]
+    assert "No person entry below 1.2 m" in rows["TP1"]  # probewise.app.probe_warnings
     assert "exclusion" not in rows["BH01"] and "trial pit" not in rows["BH01"]
     # the download carries the same warnings as the page
     csv_text = client.get(
