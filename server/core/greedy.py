@@ -125,7 +125,8 @@ class GreedyState:
     def flush(self) -> None:
         """Apply a pending update to ``M`` (the kernel normally does it while scoring)."""
         if self.pending:
-            self.M -= np.einsum("lbq,qs->bls", self.G, self.H)
+            for b in range(self.M.shape[0]):  # one matrix product per boundary (BLAS)
+                self.M[b] -= self.G[:, b, :] @ self.H
             self.pending = False
 
     def reserve_rows(self, count: int) -> None:

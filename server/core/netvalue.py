@@ -390,11 +390,10 @@ def value_greedy_run(
             break
         budget_left -= cand.cost[l, j]
         problem.apply_pick(state, l, j)
-        state.flush()
-        cost_before, cost_now = cost_now, problem.exact_cost(state.V[: problem.n_scored])
-        # the saving of the state reached (equal to the score up to rounding), so that the
-        # savings of a run's picks add up to its layout's
-        picks.append(ValuePick(l, j, float(cand.cost[l, j]), cost_before - cost_now))
+        # the exact score is the cost of the state reached (its variances are those scored,
+        # up to rounding), so the savings of a run's picks add up to its layout's
+        cost_now -= saving
+        picks.append(ValuePick(l, j, float(cand.cost[l, j]), saving))
         dist_ok &= np.hypot(*(cand.local - cand.local[l]).T) >= min_spacing_m
         if on_pick is not None:
             on_pick(len(picks))
