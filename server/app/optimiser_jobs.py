@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import copy
 import logging
+import math
 import threading
 import time
 from typing import Any
@@ -92,9 +93,12 @@ def run_optimiser_job(db: sqlite_utils.Database, job_id: int, project_id: int) -
         update_job(db, job_id, status="running", progress=0.0, message="starting")
         stored = get_project(db, project_id)
         project = to_core(stored.model)
+        objective = params.get("objective", "gain")
+        budget = params.get("budget")
         options = OptimiseOptions(
-            budget=float(params["budget"]),
+            budget=math.inf if budget is None else float(budget),
             methods=tuple(params["methods"]) or None,
+            objective=objective,
         )
         last = {"progress": 0.0, "cancel": 0.0}
         cancelled = {"flag": False}
@@ -113,30 +117,35 @@ def run_optimiser_job(db: sqlite_utils.Database, job_id: int, project_id: int) -
                 cancelled["flag"] = is_cancel_requested(db, job_id)
             return cancelled["flag"]
 
-        name = params.get("name") or f"Optimised for {params['budget']:,.0f}"
+        default = "Optimised for net value" if budget is None else f"Optimised for {budget:,.0f}"
+        name = params.get("name") or default
         result = optimise(project, options, progress=progress, should_stop=should_stop, name=name)
         if is_cancel_requested(db, job_id):
             raise OptimiseCancelled()
-        layout_doc = optimised_layout_entry(
-            result, name, float(params["budget"]), tuple(params["methods"]) or None
-        )
+        layout_doc = optimised_layout_entry(result, name, budget, tuple(params["methods"]) or None)
         curve = layout_doc["optimiser_curve"]
         saved_name, revision = save_result(db, project_id, layout_doc)
+        summary = {
+            "layout": saved_name,
+            "revision": revision,
+            "cost": result.result.cost,
+            "information_gain_bits": result.result.information_gain_bits,
+            "n_probes": len(result.layout.probes),
+            "seconds": round(result.seconds, 2),
+            "curve": curve,
+        }
+        if result.value is not None:
+            summary |= {
+                "expected_saving": result.value.expected_saving,
+                "net_value": result.value.net_value,
+            }
         update_job(
             db,
             job_id,
             status="done",
             progress=1.0,
             message=f"Saved as layout \u201c{saved_name}\u201d (revision {revision}).",
-            result={
-                "layout": saved_name,
-                "revision": revision,
-                "cost": result.result.cost,
-                "information_gain_bits": result.result.information_gain_bits,
-                "n_probes": len(result.layout.probes),
-                "seconds": round(result.seconds, 2),
-                "curve": curve,
-            },
+            result=summary,
         )
     except OptimiseCancelled:
         finish(db, job_id, "cancelled", "Cancelled; nothing was saved.")
@@ -163,9 +172,15 @@ def finish(db: sqlite_utils.Database, job_id: int, status: str, message: str) ->
 
 
 def start_optimiser(
-    db: sqlite_utils.Database, project_id: int, budget: float, methods: list[str], name: str
+    db: sqlite_utils.Database,
+    project_id: int,
+    budget: float | None,
+    methods: list[str],
+    name: str,
+    objective: str = "gain",
 ) -> int:
-    """Record a job and start its thread; InputError when one is already running here."""
+    """Record a job and start its thread; InputError when one is already running here.
+    ``budget`` None only with the objective ``net-value`` (no cap)."""
     with _running_lock:
         if project_id in _running:
             raise InputError(
@@ -173,7 +188,10 @@ def start_optimiser(
                 "an optimiser run is already going for this project; wait for it or cancel it",
             )
         job_id = create_job(
-            db, project_id, KIND, {"budget": budget, "methods": methods, "name": name}
+            db,
+            project_id,
+            KIND,
+            {"budget": budget, "methods": methods, "name": name, "objective": objective},
         )
         _running[project_id] = job_id
     thread = threading.Thread(

@@ -1,4 +1,5 @@
-"""`probewise optimise MODEL --budget N [...]`: propose a layout for a budget.
+"""`probewise optimise MODEL --budget N [...]`: propose a layout for a budget; with
+``--objective net-value`` (the budget then optional), the layout of highest net value.
 
 With ``--json`` it prints the document of docs/model-file.md ("CLI output contract"):
 ``{"layout": <as one entry of evaluate's layouts>, "curve": [{"cost",
@@ -13,9 +14,11 @@ from __future__ import annotations
 
 import argparse
 import json
+import math
 import sys
+from dataclasses import replace
 
-from probewise.app.contract import optimise_json, optimised_layout_entry
+from probewise.app.contract import net_value_json, optimise_json, optimised_layout_entry
 from probewise.app.project import load_project, write_model
 from probewise.caution import CAUTION_LINE
 from probewise.commands.options import (
@@ -32,7 +35,18 @@ from probewise.io.model_file import unique_layout_name
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("model", help="model file (JSON, schema probewise/1)")
-    parser.add_argument("--budget", required=True, metavar="N", help="most the layout may cost")
+    parser.add_argument(
+        "--budget",
+        metavar="N",
+        help="most the layout may cost (required unless --objective net-value, which it caps)",
+    )
+    parser.add_argument(
+        "--objective",
+        choices=("gain", "net-value"),  # OBJECTIVES of probewise.core.optimise_types
+        default="gain",
+        help="gain: most information within the budget (default); net-value: most expected "
+        "saving less investigation cost of the model's design elements",
+    )
     add_optimiser_arguments(parser)
     parser.add_argument("--name", help="name of the proposed layout")
     parser.add_argument("--json", action="store_true", help="print JSON for a machine to read")
@@ -96,16 +110,70 @@ def optimise_text(out, project, budget: float) -> str:
     return "\n".join(parts)
 
 
+def net_value_text(out, project, budget: float | None) -> str:
+    """The net-value proposal: its value, the elements, the probes and the saving-cost curve."""
+    r, v = out.result, out.value
+    cur = f" {project.currency}" if project.currency else ""
+    cap = "no budget" if budget is None else f"budget {num(budget, 0)}{cur}"
+    parts = [
+        f"Proposed layout: {r.name} (objective: net value; {cap})",
+        f"  investigation cost {num(v.gi_cost, 0)}{cur}; {len(r.plans)} probes, "
+        f"{num(r.metres, 1)} m, {num(r.duration_days, 1)} days",
+        f"  design cost now {num(v.design_cost_now, 0)}{cur}; expected after "
+        f"{num(v.design_cost_expected, 0)}{cur}; expected saving "
+        f"{num(v.expected_saving, 0)}{cur}; net value {num(v.net_value, 0)}{cur}",
+        f"  searched {len(out.candidates.xy)} locations at {out.candidate_spacing_m:g} m "
+        f"(min. spacing {out.min_spacing_m:g} m) on {out.optimisation_cells} cells of "
+        f"{out.optimisation_spacing_m:g} m; {len(out.runs)} greedy runs in {out.seconds:.1f} s",
+    ]
+    if not r.plans:
+        parts.append("  No probe found pays for itself: the best is to add none.")
+    rows = [
+        [e.name, e.kind, num(e.cost_now, 0), num(e.cost_expected, 0), num(e.expected_saving, 0),
+         "-" if e.p_cheaper_allowed is None else f"{100 * e.p_cheaper_allowed:.1f}%"]
+        for e in v.elements
+    ]  # fmt: skip
+    heads = ["Element", "Kind", f"Cost now{cur}", "Expected after", "Saving", "P(cheaper)"]
+    parts += ["", format_table(heads, rows), ""]
+    if r.plans:
+        parts += [probe_table(r.plans, project.ground.boundary_names), ""]
+    curve = list(out.value_curve)
+    step = max(1, len(curve) // 15)
+    shown = [p for n, p in enumerate(curve) if n % step == 0 or p.optimum or n == len(curve) - 1]
+    rows = [
+        [str(p.probes), num(p.cost, 0), num(p.expected_saving, 0), num(p.net_value, 0),
+         "<- optimum" if p.optimum else ""]
+        for p in shown
+    ]  # fmt: skip
+    parts += [
+        "Saving-cost curve of the chosen run (optimisation grid; cost includes mobilisation)",
+        format_table(["Probes", f"GI cost{cur}", "Expected saving", "Net value", ""], rows, left=0),
+        "",
+        "Expected figures average over the readings the layout may return.",
+        CAUTION_LINE,
+    ]
+    return "\n".join(parts)
+
+
 def run(args: argparse.Namespace) -> int:
     from probewise.core.grid import EmptyGridError
     from probewise.core.optimise import OptimiseError, optimise, prepare_optimisation
 
     model, project = load_project(args.model)
+    net_value = args.objective == "net-value"
     budget = parse_positive(args.budget, "--budget")
-    options = optimiser_options(args, project, budget)
+    if budget is None and not net_value:
+        raise InputError("--budget", "required (only --objective net-value may go without one)")
+    if net_value and not project.elements:
+        raise InputError("elements", "the model has no design elements: the net value needs one")
+    options = replace(
+        optimiser_options(args, project, math.inf if budget is None else budget),
+        objective=args.objective,
+    )
     if args.name is not None and not args.name.strip():
         raise InputError("--name", "must not be empty")
-    wanted = args.name.strip() if args.name else f"Optimised for {budget:g}"
+    default = "Optimised for net value" if net_value else f"Optimised for {budget:g}"
+    wanted = args.name.strip() if args.name else default
     name = unique_layout_name(model, wanted)
     bar = ProgressBar(sys.stderr.isatty())
     try:
@@ -122,9 +190,15 @@ def run(args: argparse.Namespace) -> int:
         entry = optimised_layout_entry(out, name, budget, options.methods)
         updated = dict(model, layouts=[*model.get("layouts", []), entry])
         write_model(updated, args.output)
+    names = project.ground.boundary_names
     if args.json:
-        doc = optimise_json(out, project.ground.boundary_names, notice)
+        if net_value:
+            doc = net_value_json(out, names, project.currency, budget, notice)
+        else:
+            doc = optimise_json(out, names, notice)
         sys.stdout.write(json.dumps(doc, allow_nan=False) + "\n")
+    elif net_value:
+        sys.stdout.write(net_value_text(out, project, budget) + "\n")
     else:
         sys.stdout.write(optimise_text(out, project, budget) + "\n")
         if args.output:

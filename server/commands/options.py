@@ -16,6 +16,7 @@ OPTION_OF_FIELD = {
     "methods": "--methods",
     "candidate_spacing_m": "--candidate-spacing",
     "min_spacing_m": "--min-spacing",
+    "objective": "--objective",
 }
 
 

@@ -125,7 +125,8 @@ class GreedyState:
     def flush(self) -> None:
         """Apply a pending update to ``M`` (the kernel normally does it while scoring)."""
         if self.pending:
-            self.M -= np.einsum("lbq,qs->bls", self.G, self.H)
+            for b in range(self.M.shape[0]):  # one matrix product per boundary (BLAS)
+                self.M[b] -= self.G[:, b, :] @ self.H
             self.pending = False
 
     def reserve_rows(self, count: int) -> None:
@@ -209,7 +210,7 @@ class GreedyProblem:
         pred_c = base.predict(self.cand.local)
         pred_t = self.base_cells = predict_cells(base, t.blocks)  # reused by apply_layout
         white_c = np.concatenate(pred_c.white, axis=0) if pred_c.white else None  # (m, B, L)
-        M = self._prior_cand_slots()
+        M = self.derive_slots(self._prior_cand_slots())
         real = t.slot_cell >= 0
         V = np.ones(len(t.slot_cell))
         V[real] = pred_t.var_m2[t.slot_cell[real], t.slot_bnd[real]]
@@ -221,6 +222,7 @@ class GreedyProblem:
             white_t = np.concatenate(pred_t.white, axis=0)  # (m, B, C)
             slots = np.zeros((white_t.shape[0], len(t.slot_cell)))
             slots[:, real] = white_t[:, t.slot_bnd[real], t.slot_cell[real]]
+            slots = self.derive_slots(slots)
             M -= np.einsum("mbl,ms->bls", white_c, slots)
             P -= np.einsum("mbl,mcl->lbc", white_c, white_c)
             F = white_c.transpose(2, 1, 0)  # (L, B, m)
@@ -229,6 +231,11 @@ class GreedyProblem:
         F_store = np.zeros((L, self.B, max(64, 2 * F.shape[2])))
         F_store[:, :, : F.shape[2]] = F
         return GreedyState(np.ascontiguousarray(M), P, V, F_store, F.shape[2])
+
+    def derive_slots(self, cov: np.ndarray) -> np.ndarray:
+        """Fill the slots that are linear functionals of other slots (none here; the net-value
+        search, ``probewise.core.netvalue``, adds element averages): ``(..., S)`` in place."""
+        return cov
 
     # -- scoring -------------------------------------------------------------------------
     def _search(self, state: GreedyState, active: np.ndarray, score_all: bool):
@@ -367,6 +374,7 @@ class GreedyProblem:
         if pred_t.white:
             white_t = np.concatenate(pred_t.white, axis=0)
             cov_slots[:, real] -= w_o.T @ white_t[:, sb, sc]
+        cov_slots = self.derive_slots(cov_slots)
         before = state.V.copy()
         state.flush()
         state.apply(chol, cov_cand, cov_slots)

@@ -65,6 +65,7 @@ from probewise.core.optimise_types import (  # noqa: F401 - public here as befor
     KERNEL_LOCK,
     MAX_CANDIDATE_LOCATIONS,
     MIN_GAIN_BITS,
+    OBJECTIVES,
     Candidates,
     GreedyRun,
     OptimiseCancelled,
@@ -168,6 +169,15 @@ def prepare_optimisation(
     ``options.budget`` is not used here. Raises OptimiseError (see :func:`optimise`).
     """
     report = progress or (lambda f, m: None)
+    if options.objective not in OBJECTIVES:
+        raise OptimiseError(
+            f"must be one of {', '.join(OBJECTIVES)}, not {options.objective!r}", "objective"
+        )
+    net_value = options.objective == "net-value"
+    if net_value and not project.elements:
+        raise OptimiseError(
+            "the model has no design elements: the net value needs at least one", "elements"
+        )
     if project.ground.thickness_correlation:  # the greedy updates sum independent units
         raise OptimiseError(CORRELATED_OPTIMISER_PROBLEM, "thickness_correlation")
     analysis = ProjectAnalysis(project)
@@ -205,9 +215,13 @@ def prepare_optimisation(
         raise OptimiseError(
             "no allowed method can read any boundary anywhere on the site", "methods"
         )
-    targets = build_targets(analysis, grid)
     report(0.05, "building the covariance of candidates and targets")
-    problem = GreedyProblem(analysis, cand, targets)
+    if net_value:
+        from probewise.core.netvalue import ValueProblem
+
+        problem = ValueProblem(analysis, cand, grid, project)
+    else:
+        problem = GreedyProblem(analysis, cand, build_targets(analysis, grid))
     # one pricing with evaluation and the schedule (probewise.core.programme)
     mob = {m: method_fixed_cost(methods[m], project.costs) for m in allowed_ids}
     return OptimiseSetup(
@@ -393,6 +407,10 @@ def optimise(
     """
     from probewise.core.refine import refine_layout
 
+    if options.objective == "net-value":
+        from probewise.core.optimise_value import optimise_net_value
+
+        return optimise_net_value(project, options, progress, should_stop, name, setup)
     t_start = time.perf_counter()
     done = [0.0]
 

@@ -21,6 +21,7 @@ FINALISTS = 4  # layouts re-evaluated on the full grid before choosing
 # Each candidate location holds a row of covariances with every target and is planned per
 # method: more than this makes a run take minutes for no better answer.
 MAX_CANDIDATE_LOCATIONS = 5000
+OBJECTIVES = ("gain", "net-value")  # what the optimiser maximises (OptimiseOptions.objective)
 
 
 class OptimiseCancelled(Exception):  # noqa: N818 - a signal, not an error
@@ -70,6 +71,10 @@ class OptimiseOptions:
         Most candidate-target covariances the refinement's tried exchanges may sweep (each
         try updates and scores every candidate's row once or twice); bounds its run time on
         large layouts.
+    objective : {"gain", "net-value"}
+        ``gain``: the most information within the budget; ``net-value``: the most expected
+        saving less investigation cost of the design elements (``probewise.core.netvalue``),
+        where ``budget`` may be ``inf`` (no cap).
     """
 
     budget: float
@@ -83,6 +88,7 @@ class OptimiseOptions:
     refine_sweeps: int = 3
     refine_cells: int = 3000
     refine_work: float = 5e8
+    objective: str = "gain"
 
 
 @dataclass(frozen=True, eq=False)
@@ -180,6 +186,9 @@ class Refinement:
 class OptimiseResult:
     """The chosen layout (evaluated on the full grid), the curve and how it was found.
 
+    With the net-value objective ``curve`` is empty, ``value_curve`` holds the saving-cost
+    curve and ``value`` the layout's value on the full grid; ``runs`` are ``ValueRun``.
+
     ``curve`` is that of the greedy prefixes (gains on the optimisation grid);
     ``refinement`` says what the exchange refinement added to the greedy layout.
     """
@@ -195,6 +204,25 @@ class OptimiseResult:
     min_spacing_m: float
     seconds: float
     refinement: Refinement | None = None
+    objective: str = "gain"
+    value: object = None  # net value: the layout's LayoutValue on the full grid
+    value_curve: tuple[ValuePoint, ...] = ()  # net value: the chosen run, pick by pick
+
+
+@dataclass(frozen=True)
+class ValuePoint:
+    """One prefix of a net-value greedy run: investigation cost (mobilisation included),
+    expected saving (optimisation grid) and number of probes added; ``optimum`` marks the
+    prefix returned."""
+
+    cost: float
+    expected_saving: float
+    probes: int
+    optimum: bool = False
+
+    @property
+    def net_value(self) -> float:
+        return self.expected_saving - self.cost
 
 
 ProgressFn = Callable[[float, str], None]

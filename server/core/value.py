@@ -27,6 +27,7 @@ target (``probewise.core.element_average``).
 
 from __future__ import annotations
 
+import functools
 from collections.abc import Sequence
 from dataclasses import dataclass
 
@@ -193,8 +194,37 @@ def expected_quantity_cost(
     loss integral: exact when the bounds do not bite, and the remainder's kinks nearly cancel
     where they bite little.
     """
+    per_cell = expected_excess_per_cell(
+        mean0_m, var0_m2, var1_m2, lo_m, hi_m, fractile, adverse, consequence, nodes
+    )
+    return float(consequence.rate_per_m3 * cell_area_m2 * float(per_cell.sum()))
+
+
+@functools.lru_cache(maxsize=8)
+def _normal_quadrature(nodes: int) -> tuple[np.ndarray, np.ndarray]:
+    """Gauss-Hermite nodes and weights of N(0, 1) (probabilists' weight), computed once."""
     x, w = hermegauss(nodes)
-    w = w / np.sqrt(2.0 * np.pi)  # weights of N(0, 1)
+    return x, w / np.sqrt(2.0 * np.pi)
+
+
+def expected_excess_per_cell(
+    mean0_m: np.ndarray,
+    var0_m2: np.ndarray,
+    var1_m2: np.ndarray,
+    lo_m: np.ndarray,
+    hi_m: np.ndarray,
+    fractile: float,
+    adverse: str,
+    consequence: QuantityConsequence,
+    nodes: int = GAUSS_HERMITE_NODES,
+) -> np.ndarray:
+    """E[g(design depth)] of each cell after readings with variance ``var1`` (m): ``(c,)``.
+
+    The per-cell terms of :func:`expected_quantity_cost` (which multiplies their sum by rate
+    x A); same arguments, same method (closed form for the untruncated design depth plus the
+    quadrature of the remainder).
+    """
+    x, w = _normal_quadrature(nodes)
     m0, v0, v1, lo, hi = (
         np.asarray(a, dtype=float).reshape(-1) for a in (mean0_m, var0_m2, var1_m2, lo_m, hi_m)
     )
@@ -203,14 +233,14 @@ def expected_quantity_cost(
     q = design_quantile(fractile, adverse)
     z = float(ndtri(q))
     r = consequence.reference_depth_m
-    total = float(_untruncated_expected_excess(m0, spread, std1, z, r, adverse).sum())
+    out = _untruncated_expected_excess(m0, spread, std1, z, r, adverse)
     for c0 in range(0, len(m0), CELL_CHUNK):
         s = slice(c0, c0 + CELL_CHUNK)
         m_after = m0[s, None] + spread[s, None] * x[None, :]  # (chunk, nodes)
         depth = truncated_quantiles(m_after, std1[s, None], lo[s, None], hi[s, None], q)
         remainder = excess_m(depth, r, adverse) - excess_m(m_after + z * std1[s, None], r, adverse)
-        total += float((remainder @ w).sum())
-    return float(consequence.rate_per_m3 * cell_area_m2 * total)
+        out[s] += remainder @ w
+    return out
 
 
 def expected_design_depth_m(

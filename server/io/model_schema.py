@@ -9,7 +9,14 @@ from __future__ import annotations
 
 from typing import Annotated, Any, Literal
 
-from pydantic import AfterValidator, BaseModel, ConfigDict, Field, model_validator
+from pydantic import (
+    AfterValidator,
+    BaseModel,
+    ConfigDict,
+    Field,
+    model_serializer,
+    model_validator,
+)
 
 from probewise.core.priors import DEFAULT_SHAPE
 from probewise.io.model_common import (
@@ -173,8 +180,26 @@ class PlannedProbe(_Base):
 
 
 class CurvePoint(_Base):
+    # the information-gain curve has information_gain_bits; the net-value curve has
+    # expected_saving and net_value, with optimum true on the prefix returned
     cost: Annotated[float, Field(ge=0)]
-    information_gain_bits: Number
+    information_gain_bits: Number | None = None
+    expected_saving: Number | None = None
+    net_value: Number | None = None
+    optimum: bool | None = None
+
+    @model_validator(mode="after")
+    def _one_kind(self):
+        if self.information_gain_bits is None and (
+            self.expected_saving is None or self.net_value is None
+        ):
+            raise ValueError("a curve point needs information_gain_bits, or expected_saving "
+                             "and net_value")  # fmt: skip
+        return self
+
+    @model_serializer(mode="wrap")
+    def _absent_not_null(self, handler):
+        return {k: v for k, v in handler(self).items() if v is not None}
 
 
 # Optional fields that stay absent, not null, in the normalised document, per section.

@@ -72,13 +72,22 @@ def start_optimiser_route(request: Request, project_id: int, db: Db, form: Poste
         notice = {"kind": "error", "text": "This project is deleted (read only)."}
         return job_response(request, db, project_id, None, notice=notice, status_code=409)
     method_ids = [m["id"] for m in project.model.get("methods") or []]
-    budget = to_number(reader.raw("budget"), decimal_comma=True, money=True)
+    objective = (reader.raw("objective") or "gain").strip()
+    raw_budget = (reader.raw("budget") or "").strip()
+    budget = to_number(raw_budget, decimal_comma=True, money=True) if raw_budget else None
     chosen = [m for m in reader.all("methods") if m]
     name = reader.text("name", "name", required=False, max_len=120)
     problem = None
+    net_value = objective == "net-value"
     if reader.problems:
         problem = reader.problems[0]
-    elif budget is None or not (math.isfinite(budget) and budget > 0):
+    elif objective not in ("gain", "net-value"):
+        problem = InputError("objective", "must be gain or net-value")
+    elif net_value and not project.model.get("elements"):
+        problem = InputError("elements", "the model has no design elements to value")
+    elif (raw_budget or not net_value) and (
+        budget is None or not (math.isfinite(budget) and budget > 0)
+    ):
         problem = InputError("budget", "must be a positive amount, e.g. 30000")
     elif not chosen:
         problem = InputError("methods", "choose at least one method")
@@ -97,7 +106,9 @@ def start_optimiser_route(request: Request, project_id: int, db: Db, form: Poste
         )
     methods = chosen if set(chosen) != set(method_ids) else []
     try:
-        job_id = start_optimiser(db, project_id, float(budget), methods, name)
+        job_id = start_optimiser(
+            db, project_id, None if budget is None else float(budget), methods, name, objective
+        )
     except InputError as exc:
         notice = {"kind": "error", "text": f"Not started: {exc.problem}."}
         return job_response(
