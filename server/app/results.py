@@ -58,6 +58,7 @@ class ProjectResults:
         self._ranked: tuple[LayoutResult, ...] | None = None
         self._ranking: list[RankedOption] | None = None
         self._memo: OrderedDict[tuple, Any] = OrderedDict()
+        self._computing: dict[tuple, threading.Lock] = {}  # one computation per key at a time
 
     @property
     def evaluator(self) -> GridEvaluator:
@@ -128,12 +129,20 @@ class ProjectResults:
             if key in self._memo:
                 self._memo.move_to_end(key)
                 return self._memo[key]
-        value = compute()  # outside the lock: figures of one revision may draw side by side
-        with self._lock:
-            self._memo[key] = value
-            self._memo.move_to_end(key)
-            while len(self._memo) > MAX_MEMO:
-                self._memo.popitem(last=False)
+            busy = self._computing.setdefault(key, threading.Lock())
+        # Figures of one revision draw side by side, but a page asking for several figures that
+        # share one costly value (the design elements' set-up) must not compute it once each.
+        with busy:
+            with self._lock:
+                if key in self._memo:
+                    return self._memo[key]
+            value = compute()
+            with self._lock:
+                self._memo[key] = value
+                self._memo.move_to_end(key)
+                while len(self._memo) > MAX_MEMO:
+                    self._memo.popitem(last=False)
+                self._computing.pop(key, None)
         return value
 
 

@@ -62,14 +62,16 @@ def test_demo_to_printed_schedule(page, server_url, demo_project, artifacts):
     page.wait_for_selector("#ranking-table")
     wait_for_map(page, "compare-map")
     page.wait_for_function(
-        "() => Array.from(document.images).every(img => img.complete && img.naturalWidth > 0)"
+        "() => Array.from(document.images).every(img => img.complete && img.naturalWidth > 0)",
+        timeout=90_000,  # Compare draws a dozen figures (maps, value charts) on first load
     )
     shot(page, artifacts, "04-compare")
 
     page.locator("#workflow-nav a", has_text="Schedule").click()
     page.wait_for_selector("#schedule-table")
     page.wait_for_function(
-        "() => Array.from(document.images).every(img => img.complete && img.naturalWidth > 0)"
+        "() => Array.from(document.images).every(img => img.complete && img.naturalWidth > 0)",
+        timeout=90_000,  # Compare draws a dozen figures (maps, value charts) on first load
     )
     shot(page, artifacts, "05-schedule")
     probe_ids = page.locator("#schedule-table tbody th").all_inner_texts()
