@@ -56,6 +56,7 @@ from probewise.io.model_common import (  # noqa: F401 - the model file's constan
 from probewise.io.model_geometry import to_shapely
 from probewise.io.model_history import history_problems
 from probewise.io.model_references import reference_problems
+from probewise.io.model_requirements import requirements_problems
 from probewise.io.model_schema import OPTIONAL_KEYS, ModelFile
 from probewise.io.model_structure import ground_structure_problems
 
@@ -93,6 +94,8 @@ def _validate(data: object, first_only: bool) -> tuple[dict | None, list[InputEr
             break
     if not stop():
         problems.extend(history_problems(data, normal))
+    if not stop():  # requirements and what methods deliver (server/io/model_requirements.py)
+        problems.extend(requirements_problems(data, normal))
     if not problems:  # optional structure fields and stages (server/io/model_structure.py)
         problems.extend(islice(ground_structure_problems(normal), 1 if first_only else None))
     return (None if problems else normal), problems
