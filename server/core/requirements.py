@@ -37,9 +37,10 @@ def k_n(n: int, v_known: bool) -> float:
 
     ``k_n = u_0.95 sqrt(1 + 1/n)`` when the coefficient of variation is known beforehand,
     ``k_n = t_0.95(n - 1) sqrt(1 + 1/n)`` when it is estimated from the results (Student's t
-    with n - 1 degrees of freedom; needs n >= 2). EN 1990:2002 (D.7.2), Table D1.
+    with n - 1 degrees of freedom; Table D1 gives no value for fewer than 3 results, nor do
+    we: ``inf``). EN 1990:2002 (D.7.2), Table D1.
     """
-    if n < 1 or (not v_known and n < 2):
+    if n < 1 or (not v_known and n < 3):
         return math.inf
     quantile = stats.norm.ppf(0.95) if v_known else stats.t.ppf(0.95, n - 1)
     return float(quantile * math.sqrt(1.0 + 1.0 / n))

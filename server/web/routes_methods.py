@@ -17,6 +17,7 @@ from probewise.io.model_file import METHOD_KINDS
 from probewise.store import StoredProject
 from probewise.web.deps import Db
 from probewise.web.edits import EditPage, EditRefused, EditResult, FormReader, PostedForm, item_at
+from probewise.web.method_requirements import add_requirement_routes, requirements_context
 from probewise.web.templating import kind_label
 
 router = APIRouter(include_in_schema=False)
@@ -46,11 +47,13 @@ def methods_extra(
         "unit_names": units,
         "boundary_names": units[:-1],
         "kind_options": [(kind, kind_label(kind)) for kind in METHOD_KINDS],
+        **requirements_context(model),
     }
 
 
 PAGE = EditPage("methods", "Methods and rates", methods_extra, own=("methods", "currency"))
 PAGE.add_undo_route(router)
+add_requirement_routes(router, PAGE)  # requirements and what methods deliver
 
 
 @router.get("/projects/{project_id}/methods")
