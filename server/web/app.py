@@ -30,6 +30,7 @@ from probewise.web import (
     routes_projects,
     routes_readings,
     routes_schedule,
+    routes_schedule_lab,
     routes_site,
 )
 from probewise.web.deps import database_of
@@ -51,6 +52,7 @@ ROUTERS = (
     routes_options.router,
     routes_compare.router,
     routes_schedule.router,
+    routes_schedule_lab.router,
     routes_jobs.router,
 )
 

@@ -215,6 +215,8 @@ def ranking_rows(entry: ProjectResults, chosen: str | None) -> list[dict[str, An
                 "net_value": option.net_value,
                 "benefit_cost": option.benefit_cost_ratio,
                 "p_cheaper": option.p_cheaper_allowed,
+                "requirements_met": option.requirements_met,
+                "unmet": option.unmet,
             }
         )
     return rows

@@ -37,6 +37,7 @@ from probewise.web.result_figures import (
     image_response,
     planned_points,
 )
+from probewise.web.schedule_lab import lab_context
 from probewise.web.templating import kind_label, render_page_or_fragment
 from probewise.web.workflow import project_context
 
@@ -111,6 +112,7 @@ def schedule_context(
             key: f"{base}/schedule?{urlencode({'layout': chosen, 'paper': key})}" for key in PAPERS
         },
         crs=entry.project.crs,
+        **lab_context(entry, chosen, project_id),  # the laboratory testing schedule
     )
     return context
 
