@@ -1,4 +1,4 @@
-"""The laboratory testing schedule of a layout (docs/model.md "Requirements").
+"""The laboratory testing schedule of a layout (docs/optimiser.md "Requirements").
 
 For every test requirement whose parameter samples deliver: how many results are still needed
 (the requirement's count less the results existing probes recorded), which planned holes

@@ -1,6 +1,6 @@
 """Requirements a plan must meet, and what a layout delivers towards them.
 
-docs/model.md "Requirements". Three kinds (``probewise.core.model.Requirements``):
+docs/optimiser.md "Requirements". Three kinds (``probewise.core.model.Requirements``):
 
 - least numbers of probes of a method (the layout's own probes);
 - calibration: every planned probe of the calibrated methods has a probe of the calibrating
