@@ -102,3 +102,14 @@ def test_evaluate_json_says_whether_each_layout_meets_them(tmp_path):
     for lay in layouts.values():
         assert isinstance(lay["requirements_met"], bool)
         assert lay["requirements_met"] == (lay["unmet"] == [])
+
+
+def test_schedule_lab_csv_from_the_command_line():
+    demo = Path(__file__).resolve().parents[1] / "seed_data" / "demo-project.json"
+    layout = "Mixed: boreholes + CPTu along the culvert and approach"
+    run = run_cli("schedule", str(demo), "--layout", layout, "--format", "lab-csv")
+    assert run.returncode == 0, run.stderr
+    lines = run.stdout.splitlines()
+    assert lines[0].startswith("# ") and "qualified geotechnical professional" in lines[0]
+    assert lines[1].startswith("unit,parameter,test,probe,method,samples,target_depths_m")
+    assert any(",UU triaxial,BH0" in line for line in lines[2:])
