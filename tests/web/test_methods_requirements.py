@@ -80,3 +80,11 @@ def test_delivery_edit_and_unknown_unit_refused(client, tiny_id):
     assert answer.status_code == 422
     assert "is not one of the units" in notice_of(answer.text) + answer.text
     assert revision_of(client, tiny_id) == 2
+
+
+def test_api_refuses_a_requirement_naming_an_unknown_method(empty_client, tiny_model):
+    broken = dict(tiny_model, requirements={"min_probes": {"XX": 1}})
+    answer = empty_client.post("/api/projects", json=broken)
+    assert answer.status_code == 422
+    assert "requirements.min_probes.XX" in answer.text
+    assert empty_client.get("/api/projects").json() == []  # nothing stored
