@@ -88,3 +88,19 @@ def test_api_refuses_a_requirement_naming_an_unknown_method(empty_client, tiny_m
     assert answer.status_code == 422
     assert "requirements.min_probes.XX" in answer.text
     assert empty_client.get("/api/projects").json() == []  # nothing stored
+
+
+def test_optimiser_job_that_cannot_meet_a_requirement_names_it(client, tiny_model):
+    from decision_helpers import import_model, job_id_of, post_form, stored, wait_for_job
+
+    model = dict(tiny_model, requirements={"min_probes": {"BH": 3}})
+    pid = import_model(client, model)
+    before = stored(client, pid)
+    # 4000 pays the BH mobilisation (2500) and one borehole, not three
+    answer = post_form(
+        client, f"/projects/{pid}/optimise", {"budget": "4000", "methods": ["BH", "CPT"]}
+    )
+    state = wait_for_job(client, pid, job_id_of(answer.text))
+    assert state["status"] == "failed"
+    assert "at least 3 BH probes" in state["message"]
+    assert stored(client, pid) == before
