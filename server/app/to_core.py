@@ -12,6 +12,7 @@ import math
 
 import numpy as np
 
+from probewise.app.requirements import with_requirements
 from probewise.core.analysis import reading_precision_m
 from probewise.core.bounds import BoundsConflictError, depth_bounds
 from probewise.core.grid import EmptyGridError, evaluation_grid_capped
@@ -351,4 +352,4 @@ def to_core(model: dict) -> Project:
         costs=core_cost_items(model),
     )
     check_history_bounds(project)
-    return project
+    return with_requirements(project, model)

@@ -5,7 +5,8 @@ With ``--json`` it prints exactly the document of docs/model-file.md ("CLI outpu
 information_gain_bits, gain_per_cost, pareto, probes]}``, plus an optional ``"notice"`` when
 the evaluation grid was coarsened (too many cells); the notice is also printed on stderr.
 When the model has design elements each layout also carries ``expected_saving`` and
-``net_value`` (``probewise value`` gives the detail).
+``net_value`` (``probewise value`` gives the detail); when it has requirements,
+``requirements_met`` and ``unmet`` (in words).
 Without ``--json``, readable tables.
 """
 
@@ -17,6 +18,7 @@ import sys
 
 from probewise.app.contract import evaluation_json
 from probewise.app.project import load_project
+from probewise.app.requirements import statuses_json, statuses_text
 from probewise.caution import CAUTION_LINE
 from probewise.commands.tables import format_table, num, probe_table
 
@@ -96,6 +98,7 @@ def evaluation_text(evaluation, currency: str, values=None) -> str:
 def run(args: argparse.Namespace) -> int:
     from probewise.core.evaluate import evaluate_project
     from probewise.core.grid import EmptyGridError
+    from probewise.core.options import layout_statuses
     from probewise.errors import InputError
 
     _, project = load_project(args.model)
@@ -110,9 +113,14 @@ def run(args: argparse.Namespace) -> int:
         from probewise.app.value import values_of_evaluation
 
         values = values_of_evaluation(project, evaluation)
+    statuses = layout_statuses(project, None, evaluation.layouts)
     if args.json:
         doc = evaluation_json(evaluation, values)
+        statuses_json(doc["layouts"], statuses)
         sys.stdout.write(json.dumps(doc, allow_nan=False) + "\n")
     else:
-        sys.stdout.write(evaluation_text(evaluation, project.currency, values) + "\n")
+        text = evaluation_text(evaluation, project.currency, values)
+        names = [r.name for r in evaluation.layouts]
+        body, caution = text.rsplit("\n", 1)  # the caution stays last
+        sys.stdout.write("\n".join([body, *statuses_text(names, statuses), "", caution]) + "\n")
     return 0

@@ -7,6 +7,8 @@ With ``--json`` it prints the document of docs/model-file.md ("CLI output contra
 ``"refinement"`` object saying what the exchange refinement added (and a ``"notice"`` when the
 evaluation grid was coarsened). Without it, a readable summary.
 ``-o OUT`` writes the model file with the proposed layout appended (under a unique name).
+When the model has requirements and no layout within the budget meets them all, it prints
+``{"layout": null, "unmet": [text]}`` (exit 0).
 A progress bar goes to stderr when stderr is a terminal; Ctrl-C cancels (exit 130).
 """
 
@@ -76,6 +78,8 @@ def optimise_text(out, project, budget: float) -> str:
             f"{ref.refined_gain_bits:.3f} bits, {ref.moves} moves in {ref.sweeps} sweeps "
             f"over {ref.candidate_locations} locations"
         )
+    if project.requirements is not None and not project.requirements.empty:
+        parts.append("  meets every requirement of the model (checked on the planned probes)")
     parts += [
         "",
     ]
@@ -155,9 +159,26 @@ def net_value_text(out, project, budget: float | None) -> str:
     return "\n".join(parts)
 
 
+def unmet_answer(exc, as_json: bool) -> int:
+    """The answer when the budget cannot meet every requirement: which ones, exit 0."""
+    if as_json:
+        doc = {"layout": None, "unmet": list(exc.unmet)}
+        sys.stdout.write(json.dumps(doc, allow_nan=False) + "\n")
+    else:
+        lines = [f"No layout within a budget of {num(exc.budget, 0)} meets every requirement:"]
+        lines += [f"  - {text}" for text in exc.unmet] + ["", CAUTION_LINE]
+        sys.stdout.write("\n".join(lines) + "\n")
+    return 0
+
+
 def run(args: argparse.Namespace) -> int:
     from probewise.core.grid import EmptyGridError
-    from probewise.core.optimise import OptimiseError, optimise, prepare_optimisation
+    from probewise.core.optimise import (
+        OptimiseError,
+        RequirementsUnmetError,
+        optimise,
+        prepare_optimisation,
+    )
 
     model, project = load_project(args.model)
     net_value = args.objective == "net-value"
@@ -180,6 +201,9 @@ def run(args: argparse.Namespace) -> int:
         setup = prepare_optimisation(project, options, bar)
         out = optimise(project, options, progress=bar, name=name, setup=setup)
         notice = getattr(setup.evaluator, "grid_notice", None)
+    except RequirementsUnmetError as exc:  # an answer, not bad input: exit 0, say which
+        bar.close()
+        return unmet_answer(exc, args.json)
     except (OptimiseError, EmptyGridError) as exc:
         raise optimiser_input_error(exc) from None
     finally:

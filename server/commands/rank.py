@@ -7,7 +7,9 @@ cost with duration, information gain, gain per cost and the Pareto flag, or with
 ``{"options": [{"name", "kind", "n_probes", "cost", "metres", "duration_days",
 "information_gain_bits", "gain_per_cost", "pareto"}], "budgets": [...]}``. With design
 elements each option also carries ``expected_saving`` and ``net_value`` and the options are
-sorted by net value (docs/model.md "The value of an investigation").
+sorted by net value (docs/model.md "The value of an investigation"). With requirements each
+option carries ``requirements_met`` and ``unmet`` (in words), and a budget no layout can meet
+them for is listed in ``unmet_budgets`` (``{"budget", "unmet"}``) instead of an option.
 """
 
 from __future__ import annotations
@@ -77,7 +79,7 @@ def guidance_layouts(items: list[str] | None, project, taken: set[str]):
     return out
 
 
-def ranking_json(ranked, budgets) -> dict:
+def ranking_json(ranked, budgets, unmet=None) -> dict:
     return {
         "options": [
             {
@@ -97,10 +99,15 @@ def ranking_json(ranked, budgets) -> dict:
                 if o.net_value is None
                 else {"expected_saving": o.expected_saving, "net_value": o.net_value}
             )
+            | (
+                {}
+                if o.requirements_met is None
+                else {"requirements_met": o.requirements_met, "unmet": list(o.unmet)}
+            )
             for o in ranked
         ],
         "budgets": list(budgets),
-    }
+    } | ({"unmet_budgets": unmet} if unmet else {})
 
 
 def ranking_text(ranked, currency: str) -> str:
@@ -141,9 +148,23 @@ def ranking_text(ranked, currency: str) -> str:
     )
 
 
+def unmet_lines(ranked, unmet) -> list[str]:
+    """The options that miss a requirement and the budgets that could not meet them."""
+    lines = [f"  {o.name}: misses " + "; ".join(o.unmet) for o in ranked if o.unmet]
+    lines += [
+        f"  budget {u['budget']:,.0f}: no layout meets " + "; ".join(u["unmet"]) for u in unmet
+    ]
+    return ["", "Requirements not met", *lines] if lines else []
+
+
 def run(args: argparse.Namespace) -> int:
     from probewise.core.grid import EmptyGridError
-    from probewise.core.optimise import OptimiseError, optimise, prepare_optimisation
+    from probewise.core.optimise import (
+        OptimiseError,
+        RequirementsUnmetError,
+        optimise,
+        prepare_optimisation,
+    )
     from probewise.core.options import rank_options
     from probewise.core.value import EmptyElementError
     from probewise.io.model_elements import no_cell_error
@@ -164,6 +185,7 @@ def run(args: argparse.Namespace) -> int:
     bar = ProgressBar(sys.stderr.isatty())
     known = {}
     optimised = []
+    unmet: list[dict] = []
     try:
         options = optimiser_options(args, project, 1.0)
         setup = None
@@ -186,6 +208,9 @@ def run(args: argparse.Namespace) -> int:
                 out = optimise(
                     project, replace(options, budget=budget), progress, name=name, setup=setup
                 )
+            except RequirementsUnmetError as exc:
+                unmet.append({"budget": budget, "unmet": list(exc.unmet)})
+                continue
             except OptimiseError as exc:
                 if exc.field != "budget":
                     raise
@@ -202,7 +227,10 @@ def run(args: argparse.Namespace) -> int:
     finally:
         bar.close()
     if args.json:
-        sys.stdout.write(json.dumps(ranking_json(ranked, budgets), allow_nan=False) + "\n")
+        doc = ranking_json(ranked, budgets, unmet)
+        sys.stdout.write(json.dumps(doc, allow_nan=False) + "\n")
     else:
-        sys.stdout.write(ranking_text(ranked, project.currency) + "\n")
+        text = ranking_text(ranked, project.currency)
+        body, caution = text.rsplit("\n", 1)  # the caution stays last
+        sys.stdout.write("\n".join([body, *unmet_lines(ranked, unmet), "", caution]) + "\n")
     return 0

@@ -28,7 +28,7 @@ from datetime import date
 from probewise.caution import CAUTION_LINE
 from probewise.errors import InputError
 
-FORMATS = ("text", "csv", "geojson", "gpkg", "json")
+FORMATS = ("text", "csv", "geojson", "gpkg", "json", "lab-csv")  # lab-csv: lab testing schedule
 WIDTH = 96  # wrap of the prose in the text schedule
 
 
@@ -356,6 +356,16 @@ def run(args: argparse.Namespace) -> int:
         buffer = io.StringIO()
         exports.write_schedule_csv(rows, buffer)
         _emit(buffer.getvalue(), args.output)
+    elif args.format == "lab-csv":
+        from probewise.app.lab_schedule import LAB_COLUMNS, lab_needs, lab_rows
+
+        layout = next(lay for lay in project.layouts if lay.name == schedule.layout_name)
+        analysis = evaluator.analysis
+        buffer = io.StringIO()
+        exports.write_lab_csv(
+            lab_rows(lab_needs(analysis, analysis.plan(layout))), LAB_COLUMNS, buffer
+        )
+        _emit(buffer.getvalue(), args.output)
     elif args.format == "geojson":
         document = exports.write_schedule_geojson(rows, project.crs)
         document["name"] = f"{schedule.project_name}: {schedule.layout_name}"
@@ -375,11 +385,11 @@ def run(args: argparse.Namespace) -> int:
         )
         for note in notes:
             print(f"note: {note}")
-        if args.format in ("csv", "gpkg"):
+        if args.format in ("csv", "gpkg", "lab-csv"):
             print(CAUTION_LINE)
     else:
         for note in notes:
             sys.stderr.write(f"note: {note}\n")
-        if args.format == "csv":
+        if args.format in ("csv", "lab-csv"):
             sys.stderr.write(f"{CAUTION_LINE}\n")
     return 0

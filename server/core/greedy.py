@@ -415,6 +415,8 @@ def greedy_run(
     taken_xy: np.ndarray | None = None,
     max_picks: int | None = None,
     on_pick: Callable[[int], None] | None = None,
+    tracker=None,
+    only: np.ndarray | None = None,
 ) -> tuple[Pick, ...]:
     """Greedy forward selection on gain per cost until nothing more fits.
 
@@ -435,6 +437,11 @@ def greedy_run(
         Stop after this many picks.
     on_pick : callable, optional
         Called with the number of picks so far; may raise to cancel.
+    tracker : probewise.core.requirements.RequirementTracker, optional
+        The requirements (updated in place): only candidates its mask allows are picked,
+        and each pick records whether the layout then meets every requirement.
+    only : (L, J) bool, optional
+        Candidates this run may pick from (e.g. those that deliver a test still short).
     """
     cand = problem.cand
     active = cand.valid & allowed[None, :]
@@ -443,15 +450,22 @@ def greedy_run(
         for p in taken_xy:
             dist_ok &= np.hypot(*(cand.local - p).T) >= min_spacing_m
     picks: list[Pick] = []
+    if only is not None:
+        active &= only
     while max_picks is None or len(picks) < max_picks:
         active &= dist_ok[:, None] & (cand.cost <= budget_left + 1e-9)
-        if not active.any():
+        now = active if tracker is None else active & tracker.mask()
+        if not now.any():
             break
-        found = problem.best_candidate(state, active)
+        found = problem.best_candidate(state, now)
         if found is None:
             break
         l, j, gain = found
-        picks.append(Pick(l, j, float(cand.cost[l, j]), gain))
+        meets = True
+        if tracker is not None:
+            tracker.add(l, j)
+            meets = tracker.meets()
+        picks.append(Pick(l, j, float(cand.cost[l, j]), gain, meets))
         budget_left -= cand.cost[l, j]
         problem.apply_pick(state, l, j)
         dist_ok &= np.hypot(*(cand.local - cand.local[l]).T) >= min_spacing_m

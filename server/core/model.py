@@ -204,6 +204,70 @@ class RefusalRule:
 
 
 @dataclass(frozen=True)
+class Delivery:
+    """What a method gives per probe besides boundary depths (docs/model-file.md "What a
+    method delivers"): a sample, an in-situ test, an installation or a log.
+
+    Exactly one of ``every_m`` (one per full interval of a unit the probe passes through),
+    ``per_unit`` (that many in each unit it reaches), ``per_probe`` (that many per probe, in
+    the units it reaches) or ``continuous`` (one profile per unit reached) says how many.
+    ``units`` are unit indices it is taken in (empty: every unit); ``parameters`` the design
+    parameters it gives (matched case-blind). ``quality_class`` (1-5) and ``category``
+    ("A", "B", "C") are those of samples (EN 1997-2 and EN ISO 22475-1).
+    """
+
+    kind: str  # "sample" | "in_situ" | "installation" | "log"
+    name: str
+    parameters: tuple[str, ...] = ()
+    units: tuple[int, ...] = ()
+    every_m: float | None = None
+    per_unit: int | None = None
+    per_probe: int | None = None
+    continuous: bool = False
+    quality_class: int | None = None
+    category: str | None = None
+
+
+@dataclass(frozen=True)
+class TestRequirement:
+    """At least ``count`` results of ``parameter`` in unit ``unit`` (planned and existing);
+    ``basis`` says where the count came from (given, or EN 1990 Annex D); ``test`` names the
+    laboratory or in-situ test that gives it (for the lab schedule)."""
+
+    unit: int
+    parameter: str
+    count: int
+    test: str = ""
+    basis: str = ""
+
+
+@dataclass(frozen=True)
+class CalibrationRequirement:
+    """Every planned probe of a ``for_methods`` method has a probe of ``method`` (planned or
+    existing) within ``within_m``; planned ``for_methods`` probes number at most ``per`` x the
+    ``method`` probes (planned and existing)."""
+
+    method: str
+    for_methods: tuple[str, ...]
+    per: int
+    within_m: float
+
+
+@dataclass(frozen=True)
+class Requirements:
+    """What every plan must meet (``probewise.core.requirements``): least numbers of probes
+    of a method (the layout's own), calibration of one method by another, tests per unit."""
+
+    min_probes: tuple[tuple[str, int], ...] = ()
+    calibration: tuple[CalibrationRequirement, ...] = ()
+    tests: tuple[TestRequirement, ...] = ()
+
+    @property
+    def empty(self) -> bool:
+        return not (any(n for _, n in self.min_probes) or self.calibration or self.tests)
+
+
+@dataclass(frozen=True)
 class Method:
     """An investigation method: costs, production, reach and what it resolves.
 
@@ -231,6 +295,7 @@ class Method:
     proves_refusal: bool = True
     rigs: int = 1
     move_days: float = 0.0
+    delivers: tuple[Delivery, ...] = ()  # samples, in-situ tests, installations (Delivery)
 
     def resolves(self, boundary: int) -> bool:
         return bool(np.isfinite(self.precision_m[boundary]))
@@ -270,6 +335,7 @@ class ExistingProbe:
     precision_m: dict[int, float]  # boundary index -> std (m) of each recorded depth
     stage: str | None = None  # investigation stage label; None = earlier information
     ground_level_m: float | None = None  # the probe's own surveyed ground level, project datum
+    tests: tuple[tuple[float, str], ...] = ()  # (depth m, parameter) of each recorded test
 
 
 @dataclass(frozen=True)
@@ -349,6 +415,7 @@ class Project:
     layouts: tuple[Layout, ...] = field(default_factory=tuple)
     elements: tuple[DesignElement, ...] = ()
     costs: CostItems = field(default_factory=CostItems)
+    requirements: Requirements | None = None  # what every plan must meet; None = nothing
 
     @property
     def origin(self) -> tuple[float, float]:

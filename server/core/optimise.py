@@ -60,6 +60,14 @@ from probewise.core.greedy import (  # noqa: F401 - public here as before
 )
 from probewise.core.grid import EvaluationGrid
 from probewise.core.model import CORRELATED_OPTIMISER_PROBLEM, Layout, PlannedProbe, Project
+from probewise.core.optimise_requirements import (
+    candidate_tracker,
+    check_finalist,
+    no_feasible_prefix,
+    requirement_picks,
+    unmet_text,
+    with_required_methods,
+)
 from probewise.core.optimise_types import (  # noqa: F401 - public here as before
     FINALISTS,
     KERNEL_LOCK,
@@ -75,8 +83,10 @@ from probewise.core.optimise_types import (  # noqa: F401 - public here as befor
     Pick,
     ProgressFn,
     Refinement,
+    RequirementsUnmetError,
 )
 from probewise.core.programme import method_fixed_cost, project_fixed_cost
+from probewise.core.requirements import RequirementTracker
 
 
 def method_mixes(
@@ -148,6 +158,7 @@ class OptimiseSetup:
     mobilisation: dict[str, float]
     fixed_cost: float = 0.0  # what any layout with a probe pays (reporting, with contingency)
     _evaluator: GridEvaluator | None = None
+    tracker: RequirementTracker | None = None  # the requirements hook (None: none)
 
     @property
     def candidates(self) -> Candidates:
@@ -234,6 +245,7 @@ def prepare_optimisation(
         problem,
         mob,
         project_fixed_cost(project.costs),
+        tracker=candidate_tracker(analysis, cand),
     )
 
 
@@ -242,12 +254,12 @@ def greedy_jobs(
 ) -> list[tuple[tuple[str, ...], Layout | None]]:
     """The greedy runs to make: one per mix of methods, one per usable hand-made layout."""
     mob, allowed_ids = setup.mobilisation, setup.candidates.method_ids
-    jobs: list[tuple[tuple[str, ...], Layout | None]] = [
-        (mix, None)
-        for mix in method_mixes(
-            allowed_ids, mob, options.budget - setup.fixed_cost, options.max_methods_per_mix
-        )
-    ]
+    left_for_mixes = options.budget - setup.fixed_cost
+    mixes = method_mixes(allowed_ids, mob, left_for_mixes, options.max_methods_per_mix)
+    if setup.tracker is not None:
+        mixes = with_required_methods(mixes, setup.analysis, allowed_ids)
+        mixes = [m for m in mixes if sum(mob[i] for i in m) < left_for_mixes]
+    jobs: list[tuple[tuple[str, ...], Layout | None]] = [(mix, None) for mix in mixes]
     if options.warm_start:
         for layout in project.layouts:
             used = tuple(dict.fromkeys(p.method for p in layout.probes))
@@ -283,7 +295,8 @@ def run_greedy_jobs(
             raise OptimiseCancelled()
         state = problem.base_state.copy()
         start_cost, start_gain = setup.fixed_cost, 0.0
-        taken = None
+        taken = np.zeros((0, 2))
+        tracker = setup.tracker.copy() if setup.tracker is not None else None
         if start is not None:
             start_cost = problem.layout_cost(start)
             if start_cost > budget:
@@ -291,9 +304,17 @@ def run_greedy_jobs(
             start_cost, start_gain = problem.apply_layout(state, start)
             taken = analysis.to_local(np.array([(p.x, p.y) for p in start.probes]))
             left = budget - start_cost
+            if tracker is not None:
+                tracker.add_plans(analysis, analysis.plan(start))
         else:
             left = budget - setup.fixed_cost - sum(mob[m] for m in mix)
         allowed = np.array([m in mix for m in cand.method_ids])
+        first: list[Pick] = []
+        start_meets = tracker is None or tracker.meets()
+        if tracker is not None:
+            first, left, taken = requirement_picks(
+                problem, state, tracker, allowed, left, setup.min_spacing_m, taken
+            )
         label = f"from {start.name!r}" if start is not None else "+".join(mix)
 
         def on_pick(n, n_job=n_job, label=label):
@@ -302,10 +323,29 @@ def run_greedy_jobs(
             report(0.05 + 0.75 * (n_job + min(n, 50) / 51) / len(jobs), f"{label}: {n} picks")
 
         picks = greedy_run(
-            problem, state, allowed, left, setup.min_spacing_m, taken, on_pick=on_pick
+            problem,
+            state,
+            allowed,
+            left,
+            setup.min_spacing_m,
+            taken,
+            on_pick=on_pick,
+            tracker=tracker,
         )
+        picks = (*first, *picks)
+        unmet = () if tracker is None else unmet_text(analysis, tracker)
         starts[len(runs)] = start
-        runs.append(GreedyRun(mix, start.name if start else None, start_cost, start_gain, picks))
+        runs.append(
+            GreedyRun(
+                mix,
+                start.name if start else None,
+                start_cost,
+                start_gain,
+                picks,
+                start_meets,
+                unmet,
+            )
+        )
         report(0.05 + 0.75 * (n_job + 1) / len(jobs), f"{label}: done, {len(picks)} picks")
     return runs, starts
 
@@ -316,14 +356,18 @@ def budget_prefixes(
     mob: dict[str, float],
     budget: float,
     fixed_cost: float = 0.0,
+    requirements: bool = False,
 ) -> list[tuple[float, float, int, int]]:
-    """``(gain, -cost, run index, n picks)`` of every prefix within the budget
-    (``fixed_cost``: what any layout with a probe pays)."""
+    """``(gain, -cost, run index, n picks)`` of every prefix within the budget (that meets
+    every requirement, with ``requirements``; ``fixed_cost``: what any layout with a probe
+    pays)."""
     prefixes = []
     for r_idx, run in enumerate(runs):
-        for n, cost, gain in run.prefixes(cand, mob):
+        for n, cost, gain in run.prefixes(cand, mob, feasible=requirements):
             if cost <= budget + 1e-9 and (n > 0 or run.start is not None):
                 prefixes.append((gain, -cost, r_idx, n))
+    if not prefixes and requirements and runs:
+        raise no_feasible_prefix(budget, runs)
     if not prefixes:
         if budget <= fixed_cost + min(mob.values()):
             raise _no_mobilisation_error(budget, mob)
@@ -354,14 +398,22 @@ def choose_finalist(
             if mine:
                 finalists.append(max(mine))
     best = None
+    missed: tuple[str, ...] = ()
     for _, _, r_idx, n in dict.fromkeys(finalists):
         if should_stop is not None and should_stop():
             raise OptimiseCancelled()
         layout = layout_from_run(setup.problem, runs[r_idx], n, starts[r_idx], title)
         result = setup.evaluator.evaluate_layout(layout)
+        if setup.tracker is not None:
+            unmet = check_finalist(setup.analysis, result)
+            if unmet:
+                missed = unmet
+                continue
         key = (result.information_gain_bits, -result.cost)
         if result.cost <= budget + 1e-6 and (best is None or key > best[0]):
             best = (key, layout, result, r_idx, n)
+    if best is None and setup.tracker is not None:
+        raise RequirementsUnmetError(budget, missed)
     if best is None:  # pragma: no cover - prefixes were costed the same way
         raise OptimiseError(f"nothing fits a budget of {budget:g}", "budget")
     return best[1:]
@@ -426,7 +478,12 @@ def optimise(
     jobs = greedy_jobs(project, options, setup)
     runs, starts = run_greedy_jobs(setup, options.budget, jobs, report, should_stop)
     prefixes = budget_prefixes(
-        runs, setup.candidates, setup.mobilisation, options.budget, setup.fixed_cost
+        runs,
+        setup.candidates,
+        setup.mobilisation,
+        options.budget,
+        setup.fixed_cost,
+        setup.tracker is not None,
     )
     curve = upper_envelope([(-c, g) for g, c, _, _ in prefixes])
     report(0.82, "re-evaluating the best layouts on the full grid")

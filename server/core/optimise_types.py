@@ -40,6 +40,19 @@ class OptimiseError(ValueError):
         self.field = field
 
 
+class RequirementsUnmetError(OptimiseError):
+    """No layout within the budget meets every requirement; ``unmet`` says, in words, which
+    ones the closest layout found misses (docs/optimiser.md "Requirements")."""
+
+    def __init__(self, budget: float, unmet: tuple[str, ...]):
+        self.budget = budget
+        self.unmet = tuple(unmet)
+        super().__init__(
+            f"a budget of {budget:,.0f} cannot meet the requirements: " + "; ".join(self.unmet),
+            "requirements",
+        )
+
+
 @dataclass(frozen=True)
 class OptimiseOptions:
     """What to optimise for.
@@ -135,6 +148,7 @@ class Pick:
     method: int
     cost: float
     gain_bits: float
+    meets: bool = True  # the layout up to this pick meets every requirement
 
 
 @dataclass(frozen=True)
@@ -146,13 +160,17 @@ class GreedyRun:
     start_cost: float
     start_gain_bits: float
     picks: tuple[Pick, ...]
+    start_meets: bool = True  # the start (no pick yet) meets every requirement
+    unmet: tuple[str, ...] = ()  # requirements the whole run still misses, in words
 
-    def prefixes(self, cand: Candidates, mobilisation: dict[str, float]):
+    def prefixes(self, cand: Candidates, mobilisation: dict[str, float], feasible=False):
         """``(n_picks, cost, gain)`` of every prefix; cost pays mobilisation of methods used
-        (a start layout's cost paid its own methods', which are the run's mix)."""
+        (a start layout's cost paid its own methods', which are the run's mix).
+
+        With ``feasible``, only the prefixes that meet every requirement."""
         used: set[str] = set(self.mix) if self.start is not None else set()
         cost, gain = self.start_cost, self.start_gain_bits
-        out = [(0, cost, gain)]
+        out = [(0, cost, gain)] if self.start_meets or not feasible else []
         for n, p in enumerate(self.picks, start=1):
             mid = cand.method_ids[p.method]
             if mid not in used:
@@ -160,7 +178,8 @@ class GreedyRun:
                 cost += mobilisation[mid]
             cost += p.cost
             gain += p.gain_bits
-            out.append((n, cost, gain))
+            if p.meets or not feasible:
+                out.append((n, cost, gain))
         return out
 
 

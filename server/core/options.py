@@ -15,9 +15,11 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from probewise.core.analysis import ProjectAnalysis
 from probewise.core.evaluate import GridEvaluator, LayoutResult, pareto_flags
 from probewise.core.model import Layout, PlannedProbe, Project
 from probewise.core.optimise import candidate_locations
+from probewise.core.requirements import requirement_status
 from probewise.core.value import ValueEvaluator, layout_values
 
 KINDS = ("hand", "guidance", "optimised")
@@ -134,6 +136,9 @@ class RankedOption:
     # (choice element name, probability the readings allow its cheaper design)
     p_cheaper_allowed: tuple[tuple[str, float], ...] = ()
     rig_days: float = 0.0  # every rig's days summed (``duration_days``: calendar days)
+    # with requirements (probewise.core.requirements), else None; unmet in words
+    requirements_met: bool | None = None
+    unmet: tuple[str, ...] = ()
 
     @property
     def benefit_cost_ratio(self) -> float | None:
@@ -141,6 +146,14 @@ class RankedOption:
         if self.expected_saving is None or self.cost <= 0:
             return None
         return self.expected_saving / self.cost
+
+
+def layout_statuses(project: Project, evaluator: GridEvaluator | None, results) -> list:
+    """Each result's ``RequirementStatus`` (all None when the project has no requirements)."""
+    if project.requirements is None or project.requirements.empty:
+        return [None] * len(results)
+    analysis = evaluator.analysis if evaluator is not None else ProjectAnalysis(project)
+    return [requirement_status(analysis, r.plans) for r in results]
 
 
 def rank_options(
@@ -215,6 +228,7 @@ def rank_options(
             )
             for v in worth
         ]
+    statuses = layout_statuses(project, evaluator, results)
     ranked = [
         RankedOption(
             name=layout.name,
@@ -230,9 +244,11 @@ def rank_options(
             net_value=None if saving is None else saving - r.cost,
             p_cheaper_allowed=chance,
             rig_days=r.rig_days,
+            requirements_met=None if status is None else status.met,
+            unmet=() if status is None else status.unmet,
         )
-        for layout, r, flag, saving, chance in zip(
-            options, results, flags, savings, chances, strict=True
+        for layout, r, flag, saving, chance, status in zip(
+            options, results, flags, savings, chances, statuses, strict=True
         )
     ]
     if project.elements:

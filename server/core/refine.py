@@ -56,6 +56,8 @@ from probewise.core.optimise import (
     build_targets,
     layout_from_picks,
 )
+from probewise.core.optimise_requirements import check_finalist
+from probewise.core.requirements import build_tracker
 
 
 @dataclass(frozen=True)
@@ -86,6 +88,7 @@ class RefineSpec:
     fixed_xy: np.ndarray
     mobilisation: dict
     min_spacing_m: float
+    tracker: object = None  # requirements with the fixed part taken (None: no requirements)
 
 
 class RefineState:
@@ -274,6 +277,11 @@ class Exchange:
         taken = [cand.local[l] for l, _ in others] + list(spec.fixed_xy)
         for p in taken:
             ok &= (np.hypot(*(cand.local - p).T) >= spec.min_spacing_m)[:, None]
+        if spec.tracker is not None:  # the layout after the exchange meets every requirement
+            tracker = spec.tracker.copy()
+            for l, j in others:
+                tracker.add(l, j)
+            ok &= tracker.mask(complete=True)
         return ok
 
     def removal_losses(self) -> np.ndarray:
@@ -390,6 +398,12 @@ def refine_layout(
         fixed_cost = problem.apply_layout(state, start)[0]
         fixed_methods = frozenset(p.method for p in start.probes)
         fixed_xy = setup.analysis.to_local(np.array([(p.x, p.y) for p in start.probes]))
+    tracker = None
+    if setup.tracker is not None:
+        cand = problem.cand
+        tracker = build_tracker(setup.analysis, cand.method_ids, cand.xy, cand.depth_m)
+        if start is not None:
+            tracker.add_plans(setup.analysis, setup.analysis.plan(start))
     spec = RefineSpec(
         tuple(picks),
         budget,
@@ -398,6 +412,7 @@ def refine_layout(
         fixed_xy,
         dict(setup.mobilisation),
         setup.min_spacing_m,
+        tracker,
     )
     new_picks, moves, sweeps = refine_picks(
         problem, spec, state, options.refine_sweeps, options.refine_work, on_step
@@ -406,7 +421,8 @@ def refine_layout(
     if moves:
         refined = layout_from_picks(problem.cand, new_picks, start, layout.name)
         out = setup.evaluator.evaluate_layout(refined)
-        if out.cost <= budget + 1e-6 and out.information_gain_bits > g0:
+        meets = tracker is None or not check_finalist(setup.analysis, out)
+        if out.cost <= budget + 1e-6 and out.information_gain_bits > g0 and meets:
             info = Refinement(
                 g0, out.information_gain_bits, moves, sweeps, n_loc, time.perf_counter() - t0
             )

@@ -132,6 +132,16 @@ def write_schedule_csv(rows: Sequence[dict], path_or_buffer: str | Path | IO[str
             writer.writerow([_cell(c, row.get(c, "")) for c in columns])
 
 
+def write_lab_csv(rows: Sequence[dict], columns: Sequence[str], path_or_buffer) -> None:
+    """The laboratory testing schedule as CSV, one (test, hole) per row, caution first."""
+    with _text_out(path_or_buffer) as out:
+        _write_caution_row(out)
+        writer = csv.writer(out, lineterminator="\n")
+        writer.writerow(columns)
+        for row in rows:
+            writer.writerow([_cell(c, row.get(c, "")) for c in columns])
+
+
 def _to_wgs84(crs: str) -> Any:
     from pyproj import Transformer
 

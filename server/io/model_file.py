@@ -57,6 +57,7 @@ from probewise.io.model_geometry import to_shapely
 from probewise.io.model_history import history_problems
 from probewise.io.model_programme import programme_problems
 from probewise.io.model_references import reference_problems
+from probewise.io.model_requirements import requirements_problems
 from probewise.io.model_schema import OPTIONAL_KEYS, OPTIONAL_TOP_KEYS, ModelFile
 from probewise.io.model_structure import ground_structure_problems
 from probewise.io.model_tests import tests_problems
@@ -100,6 +101,8 @@ def _validate(data: object, first_only: bool) -> tuple[dict | None, list[InputEr
         problems.extend(history_problems(data, normal))
     if not stop():  # refusal rules, rigs and cost items (server/io/model_programme.py)
         problems.extend(programme_problems(data, normal))
+    if not stop():  # requirements and what methods deliver (server/io/model_requirements.py)
+        problems.extend(requirements_problems(data, normal))
     if not problems:  # optional structure fields and stages (server/io/model_structure.py)
         problems.extend(islice(ground_structure_problems(normal), 1 if first_only else None))
     if not problems:  # test results and behaviour settings (server/io/model_tests.py)

@@ -19,6 +19,7 @@ from probewise.store import StoredProject
 from probewise.web.deps import Db
 from probewise.web.edits import EditPage, EditRefused, EditResult, FormReader, PostedForm, item_at
 from probewise.web.method_programme import read_cost_items, read_method_programme
+from probewise.web.method_requirements import add_requirement_routes, requirements_context
 from probewise.web.templating import kind_label
 
 router = APIRouter(include_in_schema=False)
@@ -50,6 +51,7 @@ def methods_extra(
         "cost_items": {**dict.fromkeys(COST_ITEM_KEYS), **(model.get("cost_items") or {})},
         "boundary_names": units[:-1],
         "kind_options": [(kind, kind_label(kind)) for kind in METHOD_KINDS],
+        **requirements_context(model),
     }
 
 
@@ -57,6 +59,7 @@ PAGE = EditPage(
     "methods", "Methods and rates", methods_extra, own=("methods", "currency", "cost_items")
 )
 PAGE.add_undo_route(router)
+add_requirement_routes(router, PAGE)  # requirements and what methods deliver
 
 
 @router.get("/projects/{project_id}/methods")

@@ -48,6 +48,7 @@ from probewise.web.result_figures import (
     image_response,
     ranking_rows,
 )
+from probewise.web.schedule_lab import lab_context
 from probewise.web.stage_sections import stage_context
 from probewise.web.symbols import SYMBOLS, methods_drawn
 from probewise.web.templating import kind_label, render_action, render_page_or_fragment
@@ -174,6 +175,7 @@ def schedule_context(
         **schedule_value_context(entry, project_id, schedule.value),
         behaviour=schedule_behaviour(entry),  # appendix: templates/_schedule_behaviour.html
         level_datum=level_datum(entry.project),
+        **lab_context(entry, chosen, project_id),  # the laboratory testing schedule
     )
     context.update(stage_context(entry))  # the last stage against its prediction
     return context
