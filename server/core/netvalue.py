@@ -72,6 +72,7 @@ class ValueRun:
     start_cost: float
     start_saving: float
     picks: tuple[ValuePick, ...]
+    n_forced: int = 0  # the first picks bring the layout up to the requirements' counts
 
     def prefixes(self, cand: Candidates, mobilisation: dict[str, float]):
         """``(n_picks, gi_cost, expected_saving)`` of every prefix; the cost pays the
@@ -362,13 +363,15 @@ def value_greedy_run(
     taken_xy: np.ndarray | None = None,
     max_picks: int | None = None,
     on_pick=None,
+    tracker=None,
 ) -> tuple[ValuePick, ...]:
     """Greedy forward selection on expected saving per cost while a probe pays for itself.
 
     Stops when the best candidate's expected saving is no more than its cost (no candidate
     then pays: it has the most saving per unit cost), when nothing more fits
     ``budget_left`` (``inf``: no budget), or after ``max_picks``. Arguments as
-    ``probewise.core.greedy.greedy_run``; ``state`` is updated in place.
+    ``probewise.core.greedy.greedy_run`` (``tracker``: every pick keeps the calibration
+    rules of the requirements); ``state`` is updated in place.
     """
     cand = problem.cand
     active = cand.valid & allowed[None, :]
@@ -380,15 +383,18 @@ def value_greedy_run(
     cost_now = problem.exact_cost(state.V[: problem.n_scored])
     while max_picks is None or len(picks) < max_picks:
         active &= dist_ok[:, None] & (cand.cost <= budget_left + 1e-9)
-        if not active.any():
+        now = active if tracker is None else active & tracker.mask()
+        if not now.any():
             break
-        found = problem.best_value_candidate(state, active, cost_now)
+        found = problem.best_value_candidate(state, now, cost_now)
         if found is None:
             break
         l, j, saving = found
         if saving <= cand.cost[l, j]:  # the stop rule: the next probe does not pay
             break
         budget_left -= cand.cost[l, j]
+        if tracker is not None:
+            tracker.add(l, j)
         problem.apply_pick(state, l, j)
         # the exact score is the cost of the state reached (its variances are those scored,
         # up to rounding), so the savings of a run's picks add up to its layout's

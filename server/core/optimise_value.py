@@ -20,13 +20,14 @@ from collections.abc import Callable
 import numpy as np
 
 from probewise.core.model import Layout, Project
-from probewise.core.netvalue import ValueRun, value_greedy_run
+from probewise.core.netvalue import ValuePick, ValueRun, value_greedy_run
 from probewise.core.optimise import (
     OptimiseSetup,
     greedy_jobs,
     layout_from_picks,
     prepare_optimisation,
 )
+from probewise.core.optimise_requirements import requirement_picks, unmet_text
 from probewise.core.optimise_types import (
     FINALISTS,
     OptimiseCancelled,
@@ -34,6 +35,7 @@ from probewise.core.optimise_types import (
     OptimiseOptions,
     OptimiseResult,
     ProgressFn,
+    RequirementsUnmetError,
     ValuePoint,
 )
 from probewise.core.value import EmptyElementError, ValueEvaluator
@@ -48,6 +50,7 @@ def run_value_jobs(setup: OptimiseSetup, budget: float, jobs, report, should_sto
     cost_now = problem.exact_cost(problem.base_state.V[: problem.n_scored])
     runs: list[ValueRun] = []
     starts: dict[int, Layout | None] = {}
+    unmet: list[tuple[str, ...]] = []  # what runs that could not meet the requirements miss
     for n_job, (mix, start) in enumerate(jobs):
         if should_stop is not None and should_stop():
             raise OptimiseCancelled()
@@ -67,6 +70,17 @@ def run_value_jobs(setup: OptimiseSetup, budget: float, jobs, report, should_sto
             left = budget - setup.fixed_cost - sum(mob[m] for m in mix)
         allowed = np.array([m in mix for m in cand.method_ids])
         label = f"from {start.name!r}" if start is not None else "+".join(mix)
+        tracker = setup.tracker.copy() if setup.tracker is not None else None
+        forced: list[ValuePick] = []
+        if tracker is not None:
+            if start is not None:
+                tracker.add_plans(analysis, analysis.plan(start))
+            forced, left, taken = _forced_picks(
+                problem, state, tracker, allowed, left, setup, taken
+            )
+            if not tracker.meets():  # the budget cannot bring this run up to the counts
+                unmet.append(unmet_text(analysis, tracker))
+                continue
 
         def on_pick(n, n_job=n_job, label=label):
             if should_stop is not None and should_stop():
@@ -74,20 +88,57 @@ def run_value_jobs(setup: OptimiseSetup, budget: float, jobs, report, should_sto
             report(0.05 + 0.75 * (n_job + min(n, 50) / 51) / len(jobs), f"{label}: {n} picks")
 
         picks = value_greedy_run(
-            problem, state, allowed, left, setup.min_spacing_m, taken, MAX_VALUE_PICKS, on_pick
+            problem,
+            state,
+            allowed,
+            left,
+            setup.min_spacing_m,
+            taken,
+            MAX_VALUE_PICKS,
+            on_pick,
+            tracker,
         )
+        picks = tuple(forced) + picks
         starts[len(runs)] = start
-        runs.append(ValueRun(mix, start.name if start else None, start_cost, start_saving, picks))
+        runs.append(
+            ValueRun(
+                mix, start.name if start else None, start_cost, start_saving, picks, len(forced)
+            )
+        )
         report(0.05 + 0.75 * (n_job + 1) / len(jobs), f"{label}: done, {len(picks)} picks")
+    if setup.tracker is not None and not runs:
+        raise RequirementsUnmetError(budget, min(unmet, key=len) if unmet else ("no run",))
     return runs, starts
 
 
-def _finalists(runs, cand, mob, budget):
+def _forced_picks(problem, state, tracker, allowed, left, setup, taken):
+    """The picks that bring a run up to the requirements' counts
+    (``probewise.core.optimise_requirements.requirement_picks``), each with the expected saving
+    it adds: ``(picks, money left, taken locations)``."""
+    taken = np.zeros((0, 2)) if taken is None else taken
+    state.flush()
+    before = problem.exact_cost(state.V[: problem.n_scored])
+    got, left, taken = requirement_picks(
+        problem, state, tracker, allowed, left, setup.min_spacing_m, taken
+    )
+    state.flush()
+    after = problem.exact_cost(state.V[: problem.n_scored])
+    # their joint saving sits on the last of them: the prefixes before it are not layouts
+    savings = [0.0] * len(got)
+    if got:
+        savings[-1] = before - after
+    picks = [ValuePick(p.location, p.method, p.cost, s) for p, s in zip(got, savings, strict=True)]
+    return picks, left, taken
+
+
+def _finalists(runs, cand, mob, budget, nothing_meets=True):
     """``(net value, -cost, run index, n picks)`` of the prefixes to value on the full grid:
     the best few, the best of each warm start, and adding nothing (run index -1)."""
-    prefixes = [(0.0, -0.0, -1, 0)]
+    prefixes = [(0.0, -0.0, -1, 0)] if nothing_meets else []
     for r_idx, run in enumerate(runs):
         for n, cost, saving in run.prefixes(cand, mob):
+            if n < run.n_forced:  # short of the requirements' counts: not a layout
+                continue
             if cost <= budget + 1e-9 and (n > 0 or run.start is not None):
                 prefixes.append((saving - cost, -cost, r_idx, n))
     chosen = sorted(prefixes, reverse=True)[:FINALISTS]
@@ -103,6 +154,7 @@ def value_curve(run: ValueRun, cand, mob, n_chosen: int | None) -> tuple[ValuePo
     return tuple(
         ValuePoint(float(cost), float(saving), n, n == n_chosen)
         for n, cost, saving in run.prefixes(cand, mob)
+        if n >= run.n_forced
     )
 
 
@@ -146,7 +198,9 @@ def optimise_net_value(
     jobs = greedy_jobs(project, options, setup)
     runs, starts = run_value_jobs(setup, budget, jobs, report, should_stop)
     cand, mob = setup.candidates, setup.mobilisation
-    finalists, prefixes = _finalists(runs, cand, mob, budget)
+    # adding nothing is a layout only when the existing probes already meet the requirements
+    nothing_meets = setup.tracker is None or setup.tracker.meets()
+    finalists, prefixes = _finalists(runs, cand, mob, budget, nothing_meets)
     report(0.82, "valuing the best layouts on the full grid")
     evaluator, analysis = setup.evaluator, setup.analysis
     try:

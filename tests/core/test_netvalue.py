@@ -238,3 +238,40 @@ def test_net_value_result_is_the_value_of_its_layout(case):
     assert out.value.net_value >= 0.0  # adding nothing (net value 0) is always a candidate
     marked = [p for p in out.value_curve if p.optimum]
     assert len(marked) == 1 and marked[0].probes <= len(out.layout.probes)
+
+
+# ---------------------------------------------------------------- with requirements
+
+
+def test_net_value_meets_every_requirement_checked_from_its_plans():
+    """The net-value runs start with the picks that reach the requirements' counts and keep
+    the calibration rule (probewise.core.optimise_requirements); checked here from the
+    evaluated plans, independently of the optimiser's tracker (tests/core/test_requirements.py
+    ``independent_check``)."""
+    from test_requirements import add_requirements, independent_check
+
+    model = add_requirements(tiny_dict(), "Alluvial clay", "River gravel")
+    project = replace(to_core(model), elements=elements())
+    options = OptimiseOptions(
+        budget=math.inf, objective="net-value", candidate_spacing_m=SPACING_M, warm_start=False
+    )
+    out = optimise(project, options)
+    assert independent_check(project, out.result, 1) == []
+    assert sum(p.method == "BH" for p in out.layout.probes) >= 2
+    assert all(p.probes >= 2 for p in out.value_curve)  # no prefix short of the counts
+
+
+def test_net_value_budget_too_small_names_the_requirement():
+    from test_requirements import add_requirements
+
+    from probewise.core.optimise import RequirementsUnmetError
+
+    model = add_requirements(tiny_dict(), "Alluvial clay", "River gravel")
+    project = replace(to_core(model), elements=elements())
+    options = OptimiseOptions(
+        budget=3000.0, objective="net-value", candidate_spacing_m=SPACING_M, warm_start=False
+    )
+    with pytest.raises(RequirementsUnmetError) as info:
+        optimise(project, options)
+    assert info.value.field == "requirements"
+    assert "at least 2 BH" in " ".join(info.value.unmet)
