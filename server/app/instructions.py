@@ -3,8 +3,9 @@ to do when the ground is not as predicted (docs/model.md "Programme": instructio
 
 "Unexpected" is a boundary met outside its current P5-P95 band at the hole (the existing
 probes only): the driller or logger stops and calls the engineer, since the layout was
-planned on that band. Sampling and in-situ testing intervals belong to the testing
-requirements; ``HoleInstruction.sampling`` is where they go (None: not set here).
+planned on that band. Sampling, in-situ testing and installations are what the method
+delivers (``Method.delivers``, docs/model-file.md "What a method delivers"), in the units the
+hole is expected to reach.
 """
 
 from __future__ import annotations
@@ -40,11 +41,44 @@ class HoleInstruction:
     ends: str
     bands: tuple[BoundaryBand, ...]
     unexpected: str
-    sampling: str | None = None  # testing requirements, when a module provides them
+    sampling: str | None = None  # what the method delivers in the units reached (None: nothing)
 
 
 def _m(value: float) -> str:
     return f"{value:.1f} m"
+
+
+def _how_many(delivery) -> str:
+    if delivery.every_m is not None:
+        return f"one every {delivery.every_m:g} m"
+    if delivery.per_unit is not None:
+        return f"{delivery.per_unit} in each unit"
+    if delivery.per_probe is not None:
+        return f"{delivery.per_probe} in the hole"
+    return "a continuous profile"
+
+
+def sampling_text(project: Project, plan: ProbePlan, p05_m: np.ndarray) -> str | None:
+    """What the hole's method delivers in the units it is expected to reach, in words: each
+    sample, in-situ test, installation or log with its interval, quality class and sampling
+    category (EN 1997-2, EN ISO 22475-1) and its units; None when the method lists nothing."""
+    method = project.methods[plan.probe.method]
+    units = [u.name for u in project.ground.units]
+    # a unit is reached when its top (the base of the unit above) is likely above the depth
+    reached = [i for i in range(len(units)) if i == 0 or p05_m[i - 1] < plan.depth_m]
+    parts = []
+    for d in method.delivers:
+        where = [units[i] for i in (d.units or reached) if i in reached]
+        if not where:
+            continue
+        grade = []
+        if d.quality_class is not None:
+            grade.append(f"quality class {d.quality_class}")
+        if d.category is not None:
+            grade.append(f"category {d.category}")
+        extra = f" ({', '.join(grade)})" if grade else ""
+        parts.append(f"{d.name}{extra}: {_how_many(d)} in {', '.join(where)}")
+    return "; ".join(parts) + "." if parts else None
 
 
 def hole_instruction(
@@ -55,7 +89,7 @@ def hole_instruction(
     names = project.ground.boundary_names
     units = [u.name for u in project.ground.units]
     if plan.probe.depth_m is not None:
-        why = "Depth set by hand on the Options page."
+        why = "Depth set by hand for this probe."
     elif plan.target is not None:
         why = f"To reach the base of {names[plan.target]} (P95 {_m(p95_m[plan.target])} here)"
         if plan.depth_m >= p95_m[plan.target] + method.embedment_m - 1e-9:
@@ -83,7 +117,14 @@ def hole_instruction(
         " stop and call the engineer before going on: the layout was planned on these bands."
     )
     return HoleInstruction(
-        plan.probe.id, plan.probe.method, plan.depth_m, why, ends, bands, unexpected
+        plan.probe.id,
+        plan.probe.method,
+        plan.depth_m,
+        why,
+        ends,
+        bands,
+        unexpected,
+        sampling_text(project, plan, p05_m),
     )
 
 
