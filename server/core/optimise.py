@@ -59,6 +59,7 @@ from probewise.core.greedy import (  # noqa: F401 - public here as before
     greedy_run,
 )
 from probewise.core.grid import EvaluationGrid
+from probewise.core.local_conditioning import LocalState
 from probewise.core.model import CORRELATED_OPTIMISER_PROBLEM, Layout, PlannedProbe, Project
 from probewise.core.optimise_types import (  # noqa: F401 - public here as before
     FINALISTS,
@@ -169,6 +170,8 @@ def prepare_optimisation(
     if project.ground.thickness_correlation:  # the greedy updates sum independent units
         raise OptimiseError(CORRELATED_OPTIMISER_PROBLEM, "thickness_correlation")
     analysis = ProjectAnalysis(project)
+    if isinstance(analysis.baseline, LocalState):  # the greedy updates need the exact factor
+        raise OptimiseError(analysis.baseline.exact_needed("the optimiser"), "existing")
     methods = analysis.methods
     allowed_ids = tuple(dict.fromkeys(options.methods)) if options.methods else tuple(methods)
     unknown = [m for m in allowed_ids if m not in methods]
