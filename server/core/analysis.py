@@ -97,18 +97,20 @@ class ProjectAnalysis:
         Readings of the existing probes.
     baseline : PosteriorState or LocalState
         Conditioned on ``existing``; the "current" state used for planning. Local (tile by
-        tile) beyond the thresholds of ``probewise.core.local_conditioning``.
+        tile) beyond the thresholds of ``probewise.core.local_conditioning`` for ``n_cells``
+        targets (default: the cells of the site's evaluation grid).
     """
 
-    def __init__(self, project: Project):
+    def __init__(self, project: Project, n_cells: int | None = None):
         self.project = project
         self.ground = project.ground
         self.methods = project.methods
         self.origin = project.origin
         self.existing = existing_observations(project.existing, project.methods, self.origin)
         # exact, or tile by tile beyond the thresholds of probewise.core.local_conditioning
+        cells = estimated_cells(project.site) if n_cells is None else n_cells
         self.baseline: PosteriorState | LocalState = condition_scaled(
-            self.ground, self.origin, self.existing, estimated_cells(project.site)
+            self.ground, self.origin, self.existing, cells
         )
         self._bounds_at: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None
 

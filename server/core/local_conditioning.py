@@ -44,10 +44,11 @@ from probewise.core.model import GroundModel, Site
 from probewise.core.posterior import Observations, PosteriorState, Prediction, condition
 
 # Exact conditioning while readings <= EXACT_MAX_READINGS and readings x evaluation cells <=
-# EXACT_MAX_READING_CELLS (the whitened covariances then hold at most 16 M entries per
-# boundary, 512 MiB for four boundaries); local conditioning beyond either.
+# EXACT_MAX_READING_CELLS (the whitened covariances then hold at most 8 M entries per
+# boundary, 256 MiB for four boundaries, about 0.5 GiB at the peak of an evaluation); local
+# conditioning beyond either.
 EXACT_MAX_READINGS = 4_000
-EXACT_MAX_READING_CELLS = 16_000_000
+EXACT_MAX_READING_CELLS = 8_000_000
 NEAREST_SPOTS = 250  # existing (and planned) reading spots each tile is conditioned on
 TILE_SHARE = 1 / 8  # share of those spots a tile holds on average
 MAX_TILE_TARGETS = 1_024  # keeps a tile's whitened covariances small on sparse sites

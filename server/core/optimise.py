@@ -169,7 +169,8 @@ def prepare_optimisation(
     report = progress or (lambda f, m: None)
     if project.ground.thickness_correlation:  # the greedy updates sum independent units
         raise OptimiseError(CORRELATED_OPTIMISER_PROBLEM, "thickness_correlation")
-    analysis = ProjectAnalysis(project)
+    # the greedy works on at most max_cells cells: exact unless the readings alone are many
+    analysis = ProjectAnalysis(project, n_cells=options.max_cells)
     if isinstance(analysis.baseline, LocalState):  # the greedy updates need the exact factor
         raise OptimiseError(analysis.baseline.exact_needed("the optimiser"), "existing")
     methods = analysis.methods

@@ -134,3 +134,26 @@ def test_five_thousand_probes_evaluate_in_bounded_memory():
     # 1 GiB for everything the evaluation allocates
     assert peak < 2**30
     assert peak < readings**2 * 8 / 3
+
+
+def test_optimiser_refuses_beyond_exact_readings_naming_existing():
+    from probewise.core.optimise import OptimiseError, OptimiseOptions, prepare_optimisation
+
+    project = bench_case("S", 1_001)  # 4,004 CPT readings and the boreholes': over 4,000
+    with pytest.raises(OptimiseError, match="thin the existing probes") as caught:
+        prepare_optimisation(project, OptimiseOptions(budget=50_000))
+    assert caught.value.field == "existing"
+
+
+def test_evaluation_reports_local_conditioning_in_json_and_table():
+    from probewise.app.contract import evaluation_json
+    from probewise.commands.evaluate import evaluation_text
+    from probewise.core.evaluate import evaluate_project
+
+    project = bench_case("S", 1_001, grid_m=20.0)
+    evaluation = evaluate_project(project)
+    doc = evaluation_json(evaluation)["conditioning"]
+    assert doc["method"] == "local"
+    assert doc["readings"] == sum(len(p.observed) for p in project.existing)
+    assert doc["nearest_spots"] > 0
+    assert "Conditioning: local on" in evaluation_text(evaluation, "GBP")
