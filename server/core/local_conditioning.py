@@ -40,6 +40,7 @@ from probewise.core.blocks import CellBlocks, block_cross_covariance
 from probewise.core.covariance import cross_covariance_all, distinct_spots
 from probewise.core.field import prior_boundary_moments, unit_fields
 from probewise.core.geometry import polygon_area_m2
+from probewise.core.grid import MAX_GRID_CELLS
 from probewise.core.model import GroundModel, Site
 from probewise.core.posterior import Observations, PosteriorState, Prediction, condition
 
@@ -106,9 +107,11 @@ def use_local(n_readings: int, n_cells: int) -> bool:
 
 
 def estimated_cells(site: Site) -> int:
-    """Evaluation cells of a site, from its area (before any coarsening)."""
+    """Evaluation cells of a site, from its area (at most ``MAX_GRID_CELLS``: a finer grid is
+    coarsened)."""
     g = float(site.grid_spacing_m)
-    return int(math.ceil(polygon_area_m2(site.outline) / (g * g))) if g > 0 else 0
+    cells = int(math.ceil(polygon_area_m2(site.outline) / (g * g))) if g > 0 else 0
+    return min(cells, MAX_GRID_CELLS)
 
 
 def condition_scaled(

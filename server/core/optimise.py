@@ -59,7 +59,7 @@ from probewise.core.greedy import (  # noqa: F401 - public here as before
     greedy_run,
 )
 from probewise.core.grid import EvaluationGrid
-from probewise.core.local_conditioning import LocalState
+from probewise.core.local_conditioning import LocalState, estimated_cells, use_local
 from probewise.core.model import CORRELATED_OPTIMISER_PROBLEM, Layout, PlannedProbe, Project
 from probewise.core.optimise_types import (  # noqa: F401 - public here as before
     FINALISTS,
@@ -155,7 +155,11 @@ class OptimiseSetup:
     def evaluator(self) -> GridEvaluator:
         """Evaluator on the project's full evaluation grid (built on first use)."""
         if self._evaluator is None:
-            self._evaluator = GridEvaluator(self.project, self.analysis)
+            # the full grid may be beyond exact conditioning (a corridor): then the evaluator
+            # conditions afresh, locally, in bounded memory (docs/model.md "Many readings")
+            cells = estimated_cells(self.project.site)
+            exact = not use_local(self.analysis.existing.size, cells)
+            self._evaluator = GridEvaluator(self.project, self.analysis if exact else None)
         return self._evaluator
 
 
