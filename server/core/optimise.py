@@ -58,8 +58,8 @@ from probewise.core.greedy import (  # noqa: F401 - public here as before
     forward_substitute,
     greedy_run,
 )
-from probewise.core.grid import EvaluationGrid
-from probewise.core.local_conditioning import LocalState, estimated_cells, use_local
+from probewise.core.grid import MAX_GRID_CELLS, EvaluationGrid
+from probewise.core.local_conditioning import EXACT_MAX_READING_CELLS, LocalState
 from probewise.core.model import CORRELATED_OPTIMISER_PROBLEM, Layout, PlannedProbe, Project
 from probewise.core.optimise_types import (  # noqa: F401 - public here as before
     FINALISTS,
@@ -155,11 +155,12 @@ class OptimiseSetup:
     def evaluator(self) -> GridEvaluator:
         """Evaluator on the project's full evaluation grid (built on first use)."""
         if self._evaluator is None:
-            # the full grid may be beyond exact conditioning (a corridor): then the evaluator
-            # conditions afresh, locally, in bounded memory (docs/model.md "Many readings")
-            cells = estimated_cells(self.project.site)
-            exact = not use_local(self.analysis.existing.size, cells)
-            self._evaluator = GridEvaluator(self.project, self.analysis if exact else None)
+            # beyond exact conditioning on the full grid (a corridor), the finalists are
+            # scored exactly on a grid coarsened until readings x cells fits, with a notice
+            # (docs/model.md "Many readings")
+            fits = EXACT_MAX_READING_CELLS // max(self.analysis.existing.size, 1)
+            cells = min(max(self.options.max_cells, fits), MAX_GRID_CELLS)
+            self._evaluator = GridEvaluator(self.project, self.analysis, max_cells=cells)
         return self._evaluator
 
 
@@ -399,7 +400,9 @@ def optimise(
     runs, starts = run_greedy_jobs(setup, options.budget, jobs, report, should_stop)
     prefixes = budget_prefixes(runs, setup.candidates, setup.mobilisation, options.budget)
     curve = upper_envelope([(-c, g) for g, c, _, _ in prefixes])
-    report(0.82, "re-evaluating the best layouts on the full grid")
+    notice = setup.evaluator.grid_notice  # many readings over a large site: coarsened
+    where = f"({notice})" if notice else "on the full grid"
+    report(0.82, f"re-evaluating the best layouts {where}")
     title = name or f"Optimised for {options.budget:g}"
     layout, result, r_idx, n = choose_finalist(
         setup, runs, starts, prefixes, options.budget, title, should_stop
