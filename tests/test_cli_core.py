@@ -42,7 +42,8 @@ def test_evaluate_json_has_the_documented_fields():
     run = cli("evaluate", str(TINY), "--json")
     assert run.returncode == 0, run.stderr
     doc = json.loads(run.stdout)
-    assert set(doc) == {"baseline", "layouts"}
+    assert set(doc) == {"baseline", "layouts", "conditioning"}
+    assert doc["conditioning"]["method"] == "exact"  # a handful of readings
     assert set(doc["baseline"]) == {"boundaries"}
     assert list(doc["baseline"]["boundaries"]) == BOUNDARIES
     for metrics in doc["baseline"]["boundaries"].values():

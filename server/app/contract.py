@@ -3,6 +3,7 @@ output contract"), and the one model-file entry of an optimised layout, whicheve
 
 from __future__ import annotations
 
+import dataclasses
 from typing import Any
 
 MAX_CURVE_POINTS = 400  # points of the cost-gain curve kept with an optimised layout
@@ -62,6 +63,9 @@ def evaluation_json(evaluation, values=None) -> dict:
     notice = getattr(evaluation, "grid_notice", None)
     if notice:
         out["notice"] = notice
+    conditioning = getattr(evaluation, "conditioning", None)
+    if conditioning is not None:  # exact or local (docs/model.md "Many readings")
+        out["conditioning"] = dataclasses.asdict(conditioning)
     return out
 
 

@@ -48,6 +48,7 @@ def evaluation_text(evaluation, currency: str, values=None) -> str:
     grid = evaluation.grid
     parts = [
         f"Evaluation grid: {grid.n_cells} cells of {grid.spacing_m:g} m",
+        *([evaluation.conditioning.describe()] if evaluation.conditioning else []),
         "",
         "Baseline (existing probes only)",
         _boundary_table(evaluation.baseline.boundaries),

@@ -14,9 +14,10 @@ import numpy as np
 from probewise.core.blocks import cell_blocks, predict_cells
 from probewise.core.bounds import depth_bounds, truncated_quantiles
 from probewise.core.grid import EvaluationGrid
+from probewise.core.local_conditioning import LocalState, condition_scaled, estimated_cells
 from probewise.core.model import ExistingProbe, Layout, Method, Project
 from probewise.core.planning import ProbePlan, plan_probes, planned_observations
-from probewise.core.posterior import Observations, PosteriorState, Prediction, condition
+from probewise.core.posterior import Observations, PosteriorState, Prediction
 
 # Precision of a reading when neither the probe nor its method gives one for that boundary
 # (common practice, no source).
@@ -94,17 +95,23 @@ class ProjectAnalysis:
         Local origin (centre of the site bbox); every array of local points is relative to it.
     existing : Observations
         Readings of the existing probes.
-    baseline : PosteriorState
-        Conditioned on ``existing``; the "current" state used for planning.
+    baseline : PosteriorState or LocalState
+        Conditioned on ``existing``; the "current" state used for planning. Local (tile by
+        tile) beyond the thresholds of ``probewise.core.local_conditioning`` for ``n_cells``
+        targets (default: the cells of the site's evaluation grid).
     """
 
-    def __init__(self, project: Project):
+    def __init__(self, project: Project, n_cells: int | None = None):
         self.project = project
         self.ground = project.ground
         self.methods = project.methods
         self.origin = project.origin
         self.existing = existing_observations(project.existing, project.methods, self.origin)
-        self.baseline: PosteriorState = condition(self.ground, self.origin, self.existing)
+        # exact, or tile by tile beyond the thresholds of probewise.core.local_conditioning
+        cells = estimated_cells(project.site) if n_cells is None else n_cells
+        self.baseline: PosteriorState | LocalState = condition_scaled(
+            self.ground, self.origin, self.existing, cells
+        )
         self._bounds_at: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None
 
     def to_local(self, xy: np.ndarray) -> np.ndarray:

@@ -354,6 +354,10 @@ def predict_cells(
         of the cell averages, ``(n, B)``.
     """
 
+    local = getattr(state, "predict_cells", None)  # a local state tiles the cells itself
+    if local is not None:
+        return local(blocks, base)
+
     def cross(obs, fields_obs):
         return block_cross_covariance(state.ground, obs.xy, obs.boundary, fields_obs, blocks)
 

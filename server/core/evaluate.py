@@ -29,6 +29,7 @@ import numpy as np
 from probewise.core.analysis import ProjectAnalysis
 from probewise.core.blocks import CellBlocks, cell_blocks, predict_cells
 from probewise.core.grid import MAX_GRID_CELLS, EvaluationGrid, evaluation_grid_capped
+from probewise.core.local_conditioning import ConditioningInfo, conditioning_info
 from probewise.core.model import CostItems, GroundModel, Layout, Method, Project
 from probewise.core.planning import ProbePlan
 from probewise.core.posterior import Prediction
@@ -116,6 +117,7 @@ class Evaluation:
     baseline: StateResult
     layouts: tuple[LayoutResult, ...]
     grid_notice: str | None = None  # set when the grid was coarsened (see grid.py)
+    conditioning: ConditioningInfo | None = None  # exact or local (local_conditioning.py)
 
 
 def weighted_mean(values: np.ndarray, weight: np.ndarray) -> np.ndarray:
@@ -215,6 +217,7 @@ class GridEvaluator:
             self.ground, self.grid.xy, self.grid.spacing_m, self.analysis.origin
         )
         self.base_pred = predict_cells(self.analysis.baseline, self.blocks)
+        self.conditioning = conditioning_info(self.analysis.baseline)
         base_post = grid_posterior(self.analysis, self.base_pred)
         self.baseline = StateResult(summarise(self.ground, self.grid, base_post), base_post)
 
@@ -276,4 +279,5 @@ def evaluate_project(project: Project, layouts: Sequence[Layout] | None = None) 
         evaluator.baseline,
         results,
         evaluator.grid_notice,
+        evaluator.conditioning,
     )

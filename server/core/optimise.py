@@ -58,7 +58,8 @@ from probewise.core.greedy import (  # noqa: F401 - public here as before
     forward_substitute,
     greedy_run,
 )
-from probewise.core.grid import EvaluationGrid
+from probewise.core.grid import MAX_GRID_CELLS, EvaluationGrid
+from probewise.core.local_conditioning import EXACT_MAX_READING_CELLS, LocalState
 from probewise.core.model import CORRELATED_OPTIMISER_PROBLEM, Layout, PlannedProbe, Project
 from probewise.core.optimise_requirements import (
     candidate_tracker,
@@ -168,7 +169,12 @@ class OptimiseSetup:
     def evaluator(self) -> GridEvaluator:
         """Evaluator on the project's full evaluation grid (built on first use)."""
         if self._evaluator is None:
-            self._evaluator = GridEvaluator(self.project, self.analysis)
+            # beyond exact conditioning on the full grid (a corridor), the finalists are
+            # scored exactly on a grid coarsened until readings x cells fits, with a notice
+            # (docs/model.md "Many readings")
+            fits = EXACT_MAX_READING_CELLS // max(self.analysis.existing.size, 1)
+            cells = min(max(self.options.max_cells, fits), MAX_GRID_CELLS)
+            self._evaluator = GridEvaluator(self.project, self.analysis, max_cells=cells)
         return self._evaluator
 
 
@@ -191,7 +197,10 @@ def prepare_optimisation(
         )
     if project.ground.thickness_correlation:  # the greedy updates sum independent units
         raise OptimiseError(CORRELATED_OPTIMISER_PROBLEM, "thickness_correlation")
-    analysis = ProjectAnalysis(project)
+    # the greedy works on at most max_cells cells: exact unless the readings alone are many
+    analysis = ProjectAnalysis(project, n_cells=options.max_cells)
+    if isinstance(analysis.baseline, LocalState):  # the greedy updates need the exact factor
+        raise OptimiseError(analysis.baseline.exact_needed("the optimiser"), "existing")
     methods = analysis.methods
     allowed_ids = tuple(dict.fromkeys(options.methods)) if options.methods else tuple(methods)
     unknown = [m for m in allowed_ids if m not in methods]
@@ -486,7 +495,9 @@ def optimise(
         setup.tracker is not None,
     )
     curve = upper_envelope([(-c, g) for g, c, _, _ in prefixes])
-    report(0.82, "re-evaluating the best layouts on the full grid")
+    notice = setup.evaluator.grid_notice  # many readings over a large site: coarsened
+    where = f"({notice})" if notice else "on the full grid"
+    report(0.82, f"re-evaluating the best layouts {where}")
     title = name or f"Optimised for {options.budget:g}"
     layout, result, r_idx, n = choose_finalist(
         setup, runs, starts, prefixes, options.budget, title, should_stop

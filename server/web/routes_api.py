@@ -154,6 +154,10 @@ class EvaluationOut(BaseModel):
     notice: str | None = Field(
         default=None, description="present when the evaluation grid was coarsened"
     )
+    conditioning: dict[str, Any] | None = Field(
+        default=None,
+        description="how the existing readings were conditioned on: method exact or local",
+    )
 
 
 NOT_FOUND = {404: {"model": ErrorOut, "description": "no such project"}}
@@ -324,6 +328,7 @@ def api_evaluation(project_id: ProjectId, db: Db) -> JSONResponse:
             evaluator.baseline,
             entry.results(),
             evaluator.grid_notice,
+            evaluator.conditioning,
         )
         return evaluation_json(evaluation)
 
