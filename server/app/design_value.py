@@ -22,6 +22,7 @@ from probewise.core.options import RankedOption
 from probewise.core.value import (
     EmptyElementError,
     ValueEvaluator,
+    ValueTotals,
     cheaper_allowed_now,
     design_depth_m,
     design_quantile,
@@ -61,7 +62,7 @@ class ElementFigures:
 
 
 @dataclass(frozen=True)
-class ValueFigures:
+class ValueFigures(ValueTotals):
     """An option's design elements, its investigation cost and what it is worth; ``best``:
     the option of highest net value among those compared, with that net value."""
 
@@ -71,22 +72,6 @@ class ValueFigures:
     elements: tuple[ElementFigures, ...]
     best: tuple[str, float] | None = None
     n_options: int = 1
-
-    @property
-    def design_cost_now(self) -> float:
-        return float(sum(e.cost_now for e in self.elements))
-
-    @property
-    def design_cost_expected(self) -> float:
-        return float(sum(e.cost_expected for e in self.elements))
-
-    @property
-    def expected_saving(self) -> float:
-        return self.design_cost_now - self.design_cost_expected
-
-    @property
-    def net_value(self) -> float:
-        return self.expected_saving - self.gi_cost
 
 
 def value_evaluator(project: Project, evaluator: GridEvaluator) -> ValueEvaluator:

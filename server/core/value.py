@@ -358,13 +358,13 @@ class ElementValue:
         return self.cost_now - self.cost_expected
 
 
-@dataclass(frozen=True)
-class LayoutValue:
-    """A layout's investigation cost, design costs and what it is worth."""
+class ValueTotals:
+    """The sums of a layout's value over its ``elements`` (each with ``cost_now`` and
+    ``cost_expected``), less its investigation cost ``gi_cost``: one home for them (a mixin
+    of the dataclasses that hold those two fields)."""
 
-    name: str
+    elements: Sequence  # annotations only: the dataclass using the mixin holds the fields
     gi_cost: float
-    elements: tuple[ElementValue, ...]
 
     @property
     def design_cost_now(self) -> float:
@@ -381,6 +381,15 @@ class LayoutValue:
     @property
     def net_value(self) -> float:
         return self.expected_saving - self.gi_cost
+
+
+@dataclass(frozen=True, eq=False)
+class LayoutValue(ValueTotals):
+    """A layout's investigation cost, design costs and what it is worth."""
+
+    name: str
+    gi_cost: float
+    elements: tuple[ElementValue, ...]
 
 
 @dataclass(frozen=True, eq=False)
