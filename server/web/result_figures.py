@@ -88,6 +88,8 @@ def ranking_rows(entry: ProjectResults, chosen: str | None) -> list[dict[str, An
                 "cost": option.cost,
                 "duration_days": option.duration_days,
                 "rig_days": option.rig_days,
+                "requirements_met": option.requirements_met,
+                "unmet": option.unmet,
                 "metres": option.metres,
                 "gain_bits": option.information_gain_bits,
                 "gain_per_1000": None
