@@ -1,7 +1,8 @@
 """The workflow an engineer follows, in headless Chromium against a real server:
 open the demo, change a unit's thickness range and see the comparison change, add a probe by
 clicking the map (and undo it), run the optimiser with a budget and see the progress bar and
-the new layout, open the schedule and print it to PDF. Screenshots go to test-artifacts/.
+the new layout, type a section's ends and see its line move on the map, open the schedule and
+print it to PDF. Screenshots go to test-artifacts/.
 
 Waits are on selectors and texts, never on sleeps.
 """
@@ -248,4 +249,38 @@ def test_optimiser_with_progress_bar_and_new_layout(page, server_url, demo_proje
     page.locator(".job-done a", has_text="Compare it").click()
     page.wait_for_selector("#ranking-table")
     assert page.locator("#ranking-table tr.is-chosen", has_text="Browser run").count() == 1
+    no_script_errors(page)
+
+
+# ---------------------------------------------------------------- a typed section
+
+
+def test_typed_section_ends_move_the_line_on_the_map(page, server_url, demo_project):
+    """Typing the two ends of a section and drawing it redraws the section figure and moves the
+    line on the map to the typed ends (the figure's data-section carries them)."""
+    page.goto(f"{server_url}/projects/{demo_project}/compare")
+    page.wait_for_selector("#section-form")
+    wait_for_map(page, "compare-map")
+    page.wait_for_selector(".compare-map path.section-line")
+    before = page.locator(".compare-map path.section-line").get_attribute("d")
+    x1 = float(page.locator("#section-x1").input_value().replace(",", ""))
+    y1 = float(page.locator("#section-y1").input_value().replace(",", ""))
+    x2 = float(page.locator("#section-x2").input_value().replace(",", ""))
+    y2 = float(page.locator("#section-y2").input_value().replace(",", ""))
+    # a shorter line: the start moved halfway towards the end
+    page.fill("#section-x1", f"{(x1 + x2) / 2:.1f}")
+    page.fill("#section-y1", f"{(y1 + y2) / 2:.1f}")
+    old_figure = page.locator("#section-figure").get_attribute("data-section")
+    page.click("#section-form button[type=submit]")
+    page.wait_for_function(
+        "old => document.getElementById('section-figure').getAttribute('data-section') !== old",
+        arg=old_figure,
+    )
+    page.wait_for_function(
+        "old => { const p = document.querySelector('.compare-map path.section-line');"
+        " return p && p.getAttribute('d') !== old; }",
+        arg=before,
+    )
+    after = page.locator(".compare-map path.section-line").get_attribute("d")
+    assert after != before
     no_script_errors(page)
