@@ -336,6 +336,19 @@ def remove_rule(request: Request, project_id: int, r: int, form: PostedForm, db:
     )
 
 
+def _edit_in_slot(request, db, project_id: int, form, edit, reader, r: int, slot: str):
+    """An edit that adds former environments to rule ``r``: problems with the new entries are
+    shown beside the form ``slot`` that typed or imported them."""
+
+    def remap(field: str) -> str:
+        return re.sub(rf"^history\[{r}\]\.environments\[\d+\]", slot, field)
+
+    return PAGE.edit(
+        request, db, project_id, form, edit, reader=reader, own=(slot,), fallback=slot,
+        remap=remap, keep_input=False,
+    )  # fmt: skip
+
+
 @router.post("/projects/{project_id}/history/rules/{r:int}/environments/add")
 def add_environment(request: Request, project_id: int, r: int, form: PostedForm, db: Db):
     reader = FormReader(form)
@@ -348,13 +361,7 @@ def add_environment(request: Request, project_id: int, r: int, form: PostedForm,
         envs.append(env)
         return f"Added the former environment {env['name']}"
 
-    def remap(field: str) -> str:
-        return re.sub(rf"^history\[{r}\]\.environments\[\d+\]", slot, field)
-
-    return PAGE.edit(
-        request, db, project_id, form, edit, reader=reader, own=(slot,), fallback=slot,
-        remap=remap, keep_input=False,
-    )  # fmt: skip
+    return _edit_in_slot(request, db, project_id, form, edit, reader, r, slot)
 
 
 @router.post("/projects/{project_id}/history/rules/{r:int}/environments/{e:int}")
@@ -416,13 +423,7 @@ def import_environments(request: Request, project_id: int, r: int, form: PostedF
             envs.append({"name": feature["name"], "geometry": feature["geometry"], **band})
         return f"Imported {len(features)} former environments from {filename}"
 
-    def remap(field: str) -> str:
-        return re.sub(rf"^history\[{r}\]\.environments\[\d+\]", slot, field)
-
-    return PAGE.edit(
-        request, db, project_id, form, edit, reader=reader, own=(slot,), fallback=slot,
-        remap=remap, keep_input=False,
-    )  # fmt: skip
+    return _edit_in_slot(request, db, project_id, form, edit, reader, r, slot)
 
 
 @router.get("/projects/{project_id}/history/band.png")
