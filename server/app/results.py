@@ -66,7 +66,7 @@ class ProjectResults:
         with self._lock:
             if self._evaluator is None:
                 try:
-                    self._evaluator = GridEvaluator(self.project)
+                    self._evaluator = GridEvaluator(self.project, layouts=self.project.layouts)
                 except EmptyGridError as exc:
                     raise InputError("grid_spacing_m", str(exc)) from None
             return self._evaluator

@@ -54,8 +54,8 @@ def boundary_covariance(
     """
     bnd_a = np.asarray(bnd_a, dtype=int).reshape(-1)
     bnd_b = np.asarray(bnd_b, dtype=int).reshape(-1)
-    h = pairwise_distance_m(xy_a, xy_b)
     if fields_a.coreg is not None:
+        h = pairwise_distance_m(xy_a, xy_b)
         load_a = boundary_loadings(fields_a)[np.arange(len(bnd_a)), bnd_a]  # (na, B)
         load_b = boundary_loadings(fields_b)[np.arange(len(bnd_b)), bnd_b]
         out = np.zeros(h.shape)
@@ -64,17 +64,29 @@ def boundary_covariance(
                 ground.units[i].correlation, h
             )
         return out
-    shallower = np.minimum(bnd_a[:, None], bnd_b[None, :])
-    out = np.zeros(h.shape)
-    for i in range(ground.n_boundaries):
-        active = shallower >= i
-        if not active.any():
-            break
-        term = np.outer(fields_a.std_m[:, i], fields_b.std_m[:, i]) * correlate_unit(
-            ground.units[i].correlation, h
-        )
-        out += np.where(active, term, 0.0)
-    return out
+    # A probe reads several boundaries at one spot: correlate each pair of distinct spots
+    # once. cum[i, s, t] = sum over units i' <= i of s_i'(s) s_i'(t) rho_i'(|s - t|); a pair of
+    # readings of boundaries j and k then has covariance cum[min(j, k), s, t].
+    spots_a, spot_a, first_a = distinct_spots(xy_a)
+    spots_b, spot_b, first_b = distinct_spots(xy_b)
+    levels = min(int(bnd_a.max(initial=-1)), int(bnd_b.max(initial=-1))) + 1
+    if levels <= 0:
+        return np.zeros((len(bnd_a), len(bnd_b)))
+    h_spots = pairwise_distance_m(spots_a, spots_b)  # (ua, ub)
+    s_a, s_b = fields_a.std_m[first_a], fields_b.std_m[first_b]
+    ua, ub = h_spots.shape
+    cum = np.empty((levels, ua, ub))
+    acc = np.zeros((ua, ub))
+    for i in range(levels):
+        rho = correlate_unit(ground.units[i].correlation, h_spots)
+        rho *= s_a[:, i, None]
+        rho *= s_b[None, :, i]
+        acc += rho
+        cum[i] = acc
+    flat = np.minimum(bnd_a[:, None], bnd_b[None, :]) * (ua * ub)
+    flat += (spot_a * ub)[:, None]
+    flat += spot_b[None, :]
+    return cum.reshape(-1).take(flat)
 
 
 def distinct_spots(xy_obs: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:

@@ -21,7 +21,7 @@ every layout (block Cholesky update).
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -29,7 +29,11 @@ import numpy as np
 from probewise.core.analysis import ProjectAnalysis
 from probewise.core.blocks import CellBlocks, cell_blocks, predict_cells
 from probewise.core.grid import MAX_GRID_CELLS, EvaluationGrid, evaluation_grid_capped
-from probewise.core.local_conditioning import ConditioningInfo, conditioning_info
+from probewise.core.local_conditioning import (
+    ConditioningInfo,
+    concat_observations,
+    conditioning_info,
+)
 from probewise.core.model import CostItems, GroundModel, Layout, Method, Project
 from probewise.core.planning import ProbePlan
 from probewise.core.posterior import Prediction
@@ -207,6 +211,8 @@ class GridEvaluator:
         project: Project,
         analysis: ProjectAnalysis | None = None,
         max_cells: int = MAX_GRID_CELLS,
+        layouts: Sequence[Layout] = (),
+        on_progress: Callable[[float], None] | None = None,
     ):
         self.analysis = analysis if analysis is not None else ProjectAnalysis(project)
         self.ground = project.ground
@@ -216,13 +222,35 @@ class GridEvaluator:
         self.blocks: CellBlocks = cell_blocks(
             self.ground, self.grid.xy, self.grid.spacing_m, self.analysis.origin
         )
-        self.base_pred = predict_cells(self.analysis.baseline, self.blocks)
+        self._swept: dict[int, tuple[Layout, Prediction, tuple[ProbePlan, ...]]] = {}
+        self.base_pred = self._predict_baseline(layouts, on_progress)
         self.conditioning = conditioning_info(self.analysis.baseline)
         base_post = grid_posterior(self.analysis, self.base_pred)
         self.baseline = StateResult(summarise(self.ground, self.grid, base_post), base_post)
 
+    def _predict_baseline(
+        self, layouts: Sequence[Layout], on_progress: Callable[[float], None] | None
+    ) -> Prediction:
+        """The baseline's cell prediction. A local state (many readings) predicts ``layouts``
+        in the same sweep of its tiles, so each tile is conditioned on the existing readings
+        once rather than once per layout; ``on_progress`` gets the share of tiles done."""
+        baseline = self.analysis.baseline
+        sweep = getattr(baseline, "predict_cells_alternatives", None)
+        if sweep is None or not layouts:
+            return predict_cells(baseline, self.blocks)
+        n_known = len(baseline.observations)
+        states = [self.analysis.layout_state(layout) for layout in layouts]
+        planned = [concat_observations(state.observations[n_known:]) for state, _ in states]
+        base_pred, preds = sweep(self.blocks, tuple(planned), on_progress)
+        for layout, (_, plans), pred in zip(layouts, states, preds, strict=True):
+            self._swept[id(layout)] = (layout, pred, plans)
+        return base_pred
+
     def layout_prediction(self, layout: Layout) -> tuple[Prediction, tuple[ProbePlan, ...]]:
         """Cell averages given the existing probes and a layout's, and the layout's plans."""
+        swept = self._swept.get(id(layout))
+        if swept is not None and swept[0] is layout:
+            return swept[1], swept[2]
         state, plans = self.analysis.layout_state(layout)
         return predict_cells(state, self.blocks, base=self.base_pred), plans
 
@@ -270,8 +298,8 @@ def evaluate_project(project: Project, layouts: Sequence[Layout] | None = None) 
         Per-layout metrics, plans, costs, Pareto flags, per-cell arrays for maps and the
         grid notice (None unless the grid was coarsened).
     """
-    evaluator = GridEvaluator(project)
     chosen = project.layouts if layouts is None else layouts
+    evaluator = GridEvaluator(project, layouts=chosen)
     results = with_pareto([evaluator.evaluate_layout(layout) for layout in chosen])
     return Evaluation(
         evaluator.grid,

@@ -32,6 +32,7 @@ for reuse by layouts up to ``KEEP_BYTES`` in all; beyond it a layout solves them
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
@@ -50,8 +51,8 @@ from probewise.core.posterior import Observations, PosteriorState, Prediction, c
 # conditioning beyond either.
 EXACT_MAX_READINGS = 4_000
 EXACT_MAX_READING_CELLS = 8_000_000
-NEAREST_SPOTS = 250  # existing (and planned) reading spots each tile is conditioned on
-TILE_SHARE = 1 / 8  # share of those spots a tile holds on average
+NEAREST_SPOTS = 350  # existing (and planned) reading spots each tile is conditioned on
+TILE_SHARE = 1 / 4  # share of those spots a tile holds on average
 MAX_TILE_TARGETS = 1_024  # keeps a tile's whitened covariances small on sparse sites
 KEEP_BYTES = 256 * 2**20  # tiles' factors and covariances kept for reuse by layouts
 
@@ -317,10 +318,33 @@ class LocalState:
 
             return xy_t, f_t, prior_mean[idx], prior_var[idx], cross, 0.0
 
-        return self._predict(xy, fields, prior_mean, prior_var, tile_targets, base)
+        return self._predict(xy, fields, prior_mean, prior_var, tile_targets, base)[0]
 
     def predict_cells(self, blocks: CellBlocks, base: Prediction | None = None) -> Prediction:
         """Prior and posterior of the cell average of every boundary, tile by tile."""
+        targets = self._cell_targets(blocks)
+        pm, pv = blocks.prior_mean_m, blocks.prior_var_m2
+        return self._predict(blocks.xy, blocks.fields, pm, pv, targets, base)[0]
+
+    def predict_cells_alternatives(
+        self,
+        blocks: CellBlocks,
+        alternatives: tuple[Observations, ...],
+        on_progress: Callable[[float], None] | None = None,
+    ) -> tuple[LocalPrediction, tuple[LocalPrediction, ...]]:
+        """This state's cell prediction and one for each block of planned readings added to
+        it alone, in one sweep of the tiles: each tile is conditioned on the existing readings
+        once and extended by each block (a layout each). ``on_progress`` gets the share of
+        tiles done (0 to 1) after each tile."""
+        targets = self._cell_targets(blocks)
+        pm, pv = blocks.prior_mean_m, blocks.prior_var_m2
+        out = self._predict(
+            blocks.xy, blocks.fields, pm, pv, targets, None, tuple(alternatives), on_progress
+        )
+        return out[0], out[1:]
+
+    def _cell_targets(self, blocks: CellBlocks):
+        """``tile_targets`` of :meth:`_predict` for the cells of ``blocks``."""
 
         def tile_targets(idx):
             tile = take_blocks(blocks, idx)
@@ -331,49 +355,83 @@ class LocalState:
             pm, pv = tile.prior_mean_m, tile.prior_var_m2
             return tile.xy, tile.fields, pm, pv, cross, 0.5 * blocks.spacing_m
 
-        return self._predict(
-            blocks.xy, blocks.fields, blocks.prior_mean_m, blocks.prior_var_m2, tile_targets, base
-        )
+        return tile_targets
 
-    def _predict(self, xy, fields, prior_mean, prior_var, tile_targets, base):
+    def _predict(
+        self,
+        xy,
+        fields,
+        prior_mean,
+        prior_var,
+        tile_targets,
+        base,
+        alternatives=(),
+        on_progress=None,
+    ):
         """Shared by points and cells: ``tile_targets(idx)`` gives a tile's targets as
-        ``(xy, fields, prior mean, prior var, cross, half extent of a target)``."""
+        ``(xy, fields, prior mean, prior var, cross, half extent of a target)``. Returns this
+        state's prediction and one per block of ``alternatives`` (planned readings, each added
+        to this state alone)."""
         planned_all = concat_observations(self.planned)
         done = base.planned if isinstance(base, LocalPrediction) else 0
-        new = take_observations(planned_all, np.arange(done, planned_all.size))
-        p_spots, p_spot_of, _ = distinct_spots(new.xy)
+        new = SpotIndex(take_observations(planned_all, np.arange(done, planned_all.size)))
+        alts = [SpotIndex(a) for a in alternatives]
         if isinstance(base, LocalPrediction):
             tiles_in = [(idx, st, pr) for idx, st, pr in base.tiles]
         else:
             groups = group_tiles(xy, self.tile_m, MAX_TILE_TARGETS)
             tiles_in = [(idx, None, None) for idx in groups]
-        mean, var = prior_mean.copy(), prior_var.copy()
+        moments = [(prior_mean.copy(), prior_var.copy()) for _ in range(1 + len(alts))]
         tiles_out, kept_bytes = [], 0
-        for idx, state_t, pred_t in tiles_in:
+        for done_tiles, (idx, state_t, pred_t) in enumerate(tiles_in, start=1):
             xy_t, f_t, pm_t, pv_t, cross, half = tile_targets(idx)
             lo, hi = xy_t.min(axis=0) - half, xy_t.max(axis=0) + half
             if state_t is None:  # first solve, or a tile not kept within the budget
                 pick = nearest_spot_readings(self.spots, self.spot_of, lo, hi, self.nearest_spots)
                 state_t = condition(self.ground, self.origin, take_observations(self.known, pick))
                 if done:  # the planned readings the base had seen, unkept with it
-                    old = take_observations(planned_all, np.arange(done))
-                    o_spots, o_spot_of, _ = distinct_spots(old.xy)
-                    pick = nearest_spot_readings(o_spots, o_spot_of, lo, hi, self.nearest_spots)
-                    state_t = state_t.extend(take_observations(old, pick))
+                    old = SpotIndex(take_observations(planned_all, np.arange(done)))
+                    state_t = state_t.extend(old.nearest(lo, hi, self.nearest_spots))
                 pred_t = None
-            if new.size:
-                pick = nearest_spot_readings(p_spots, p_spot_of, lo, hi, self.nearest_spots)
-                state_t = state_t.extend(take_observations(new, pick))
+            if new.obs.size:
+                state_t = state_t.extend(new.nearest(lo, hi, self.nearest_spots))
             pred_t = state_t.predict_targets(xy_t, f_t, pm_t, pv_t, cross, pred_t)
-            mean[idx], var[idx] = pred_t.mean_m, pred_t.var_m2
+            moments[0][0][idx], moments[0][1][idx] = pred_t.mean_m, pred_t.var_m2
+            for k, alt in enumerate(alts, start=1):
+                alt_t = state_t.extend(alt.nearest(lo, hi, self.nearest_spots))
+                alt_pred = alt_t.predict_targets(xy_t, f_t, pm_t, pv_t, cross, pred_t)
+                moments[k][0][idx], moments[k][1][idx] = alt_pred.mean_m, alt_pred.var_m2
             # keep the tile's factor and whitened covariances while they fit the budget, so
             # a layout reuses them; beyond it the layout solves the tile again
             r = state_t.n_observations
             kept_bytes += 8 * (r * r + sum(w.size for w in pred_t.white))
-            if kept_bytes <= KEEP_BYTES:
+            if kept_bytes <= KEEP_BYTES and not alts:
                 tiles_out.append((idx, state_t, pred_t))
             else:
                 tiles_out.append((idx, None, None))
-        return LocalPrediction(
-            xy, fields, prior_mean, prior_var, mean, var, (), tuple(tiles_out), planned_all.size
-        )
+            if on_progress is not None:
+                on_progress(done_tiles / len(tiles_in))
+        unkept = tuple((idx, None, None) for idx, _, _ in tiles_out)
+        return tuple(
+            LocalPrediction(
+                xy, fields, prior_mean, prior_var, mean, var, (),
+                tuple(tiles_out) if k == 0 else unkept,
+                planned_all.size + (alts[k - 1].obs.size if k else 0),
+            )
+            for k, (mean, var) in enumerate(moments)
+        )  # fmt: skip
+
+
+class SpotIndex:
+    """A block of readings with its distinct spots, for picking those nearest a tile."""
+
+    def __init__(self, obs: Observations):
+        self.obs = obs
+        self.spots, self.spot_of, _ = distinct_spots(obs.xy)
+
+    def nearest(self, lo: np.ndarray, hi: np.ndarray, count: int) -> Observations:
+        """The readings at the ``count`` spots nearest the rectangle ``lo``-``hi``."""
+        if self.obs.size == 0:
+            return self.obs
+        pick = nearest_spot_readings(self.spots, self.spot_of, lo, hi, count)
+        return take_observations(self.obs, pick)

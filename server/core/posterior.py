@@ -149,10 +149,12 @@ def cholesky_jittered(a: np.ndarray, scale: float | None = None) -> tuple[np.nda
         scale = float(np.max(np.diag(a)))
     scale = scale if np.isfinite(scale) and scale > 0 else 1.0
     jitter = JITTER_START * scale
-    eye = np.eye(m)
+    diag = np.diag_indices(m)
     while True:
+        work = a.copy()  # factorised in place: one copy per try, no identity matrix
+        work[diag] += jitter
         try:
-            low = cholesky(a + jitter * eye, lower=True, check_finite=False)
+            low = cholesky(work, lower=True, overwrite_a=True, check_finite=False)
             if np.all(np.isfinite(low)):
                 return low, jitter
         except LinAlgError:
