@@ -19,6 +19,8 @@ from probewise.core.evaluate import layout_cost
 from probewise.core.field import UnitFields, unit_fields
 from probewise.core.greedy_kernel import BOUND_SLACK, FOLD, Q_MIN, kernel_for, plan_runs
 from probewise.core.grid import EvaluationGrid
+from probewise.core.local_conditioning import LocalState
+from probewise.core.local_cross import explain_locally
 from probewise.core.model import Layout
 from probewise.core.optimise_types import (
     KERNEL_LOCK,
@@ -207,6 +209,8 @@ class GreedyProblem:
     def _initial_state(self) -> GreedyState:
         t = self.targets
         base = self.analysis.baseline
+        if isinstance(base, LocalState):  # many readings: conditioned tile by tile
+            return self._initial_state_local(base)
         pred_c = base.predict(self.cand.local)
         pred_t = self.base_cells = predict_cells(base, t.blocks)  # reused by apply_layout
         white_c = np.concatenate(pred_c.white, axis=0) if pred_c.white else None  # (m, B, L)
@@ -228,6 +232,28 @@ class GreedyProblem:
             F = white_c.transpose(2, 1, 0)  # (L, B, m)
         else:
             F = np.zeros((L, self.B, 0))
+        F_store = np.zeros((L, self.B, max(64, 2 * F.shape[2])))
+        F_store[:, :, : F.shape[2]] = F
+        return GreedyState(np.ascontiguousarray(M), P, V, F_store, F.shape[2])
+
+    def _initial_state_local(self, base: LocalState) -> GreedyState:
+        """The start of the search beyond exact conditioning (``probewise.core.local_cross``):
+        the covariances the existing readings explain, tile by tile, instead of whitened
+        against the factor of all readings."""
+        t = self.targets
+        ex = explain_locally(base, self.cand.local, self.cand_fields, t.blocks)
+        L, S = len(self.cand.local), len(t.slot_cell)
+        real = t.slot_cell >= 0
+        sc, sb = t.slot_cell[real], t.slot_bnd[real]
+        explained = np.zeros((self.B, L, S))
+        explained[:, :, real] = ex.cand_cells[:, :, sc, sb].transpose(1, 0, 2)
+        M = self.derive_slots(self._prior_cand_slots()) - self.derive_slots(explained)
+        V = np.ones(S)
+        V[real] = ex.cell_var_m2[sc, sb]
+        var_cum = np.cumsum(self.cand_fields.std_m**2, axis=1)  # (L, B)
+        P = var_cum[:, np.minimum.outer(np.arange(self.B), np.arange(self.B))]  # (L, B, B)
+        F = ex.cand_factor  # (L, B, R)
+        P -= np.einsum("lbr,lcr->lbc", F, F)
         F_store = np.zeros((L, self.B, max(64, 2 * F.shape[2])))
         F_store[:, :, : F.shape[2]] = F
         return GreedyState(np.ascontiguousarray(M), P, V, F_store, F.shape[2])
@@ -338,6 +364,9 @@ class GreedyProblem:
 
     def apply_layout(self, state: GreedyState, layout: Layout) -> tuple[float, float]:
         """Condition ``state`` on a hand-made layout's readings; return (cost, gain bits)."""
+        if isinstance(self.analysis.baseline, LocalState):  # needs the factor of all readings
+            what = "starting from a hand-made layout"
+            raise OptimiseError(self.analysis.baseline.exact_needed(what), "existing")
         plans = plan_probes(
             self.ground, self.analysis.methods, self.analysis.baseline, layout.probes
         )

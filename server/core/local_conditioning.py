@@ -51,6 +51,7 @@ from probewise.core.posterior import Observations, PosteriorState, Prediction, c
 # conditioning beyond either.
 EXACT_MAX_READINGS = 4_000
 EXACT_MAX_READING_CELLS = 8_000_000
+REACH_RANGES = 3.0  # readings farther than this many of the longest range are left out
 NEAREST_SPOTS = 350  # existing (and planned) reading spots each tile is conditioned on
 TILE_SHARE = 1 / 4  # share of those spots a tile holds on average
 MAX_TILE_TARGETS = 1_024  # keeps a tile's whitened covariances small on sparse sites
@@ -140,7 +141,11 @@ def conditioning_info(state) -> ConditioningInfo:
     """What :class:`ConditioningInfo` says of a state (exact or local)."""
     if isinstance(state, LocalState):
         return ConditioningInfo(
-            "local", state.known.size, len(state.spots), state.nearest_spots, state.tile_m
+            "local",
+            state.known.size,
+            len(state.existing.spots),
+            state.nearest_spots,
+            state.tile_m,
         )
     known = state.observations[0]
     return ConditioningInfo("exact", known.size, len(distinct_spots(known.xy)[0]))
@@ -185,8 +190,10 @@ def nearest_spot_readings(
     lo: np.ndarray,
     hi: np.ndarray,
     count: int,
+    reach_m: float = math.inf,
 ) -> np.ndarray:
-    """Readings at the ``count`` spots nearest a rectangle (0 inside it).
+    """Readings at the ``count`` spots nearest a rectangle (0 inside it), none farther than
+    ``reach_m`` from it.
 
     Parameters
     ----------
@@ -195,18 +202,21 @@ def nearest_spot_readings(
         Spot of each reading.
     lo, hi : (2,) float
         Corners of the rectangle.
+    reach_m : float
+        Spots farther away are left out even when fewer than ``count`` remain.
 
     Returns
     -------
     (r,) int
         Indices of the readings, ascending.
     """
-    if len(spots) <= count:
-        return np.arange(len(spot_of))
     gap = np.maximum(np.maximum(lo - spots, spots - hi), 0.0)
     d2 = np.einsum("ij,ij->i", gap, gap)
-    chosen = np.zeros(len(spots), dtype=bool)
-    chosen[np.argpartition(d2, count - 1)[:count]] = True
+    chosen = d2 <= reach_m * reach_m
+    if np.count_nonzero(chosen) > count:
+        nearest = np.zeros(len(spots), dtype=bool)
+        nearest[np.argpartition(d2, count - 1)[:count]] = True
+        chosen &= nearest
     return np.flatnonzero(chosen[spot_of])
 
 
@@ -260,12 +270,18 @@ class LocalState:
         self.planned: tuple[Observations, ...] = tuple(planned)
         self.nearest_spots = int(nearest_spots)
         self.tile_share = float(tile_share)
-        self.spots, self.spot_of, _ = distinct_spots(known.xy)
-        span = np.ptp(self.spots, axis=0) if len(self.spots) else np.zeros(2)
-        area_per_spot = max(float(np.prod(np.maximum(span, 1.0))), 1.0) / max(len(self.spots), 1)
+        spots = distinct_spots(known.xy)[0]
+        span = np.ptp(spots, axis=0) if len(spots) else np.zeros(2)
+        area_per_spot = max(float(np.prod(np.maximum(span, 1.0))), 1.0) / max(len(spots), 1)
         # a tile holds a small share of the spots it is conditioned on, so targets at its
         # corners keep neighbours on every side
         self.tile_m = max(math.sqrt(self.nearest_spots * self.tile_share * area_per_spot), 1.0)
+        # beyond REACH_RANGES of the longest practical range every unit's correlation is below
+        # about 1e-4 (exponential; the others less): such readings are left out even when
+        # fewer than nearest_spots are nearer (sparse probes along a corridor)
+        ranges = [u.correlation.range_m for u in ground.units[: ground.n_boundaries]]
+        self.reach_m = REACH_RANGES * max(ranges, default=math.inf)
+        self.existing = SpotIndex(known)
 
     @property
     def observations(self) -> tuple[Observations, ...]:
@@ -286,6 +302,10 @@ class LocalState:
     @property
     def chol(self):
         raise ExactStateNeededError(self.exact_needed())
+
+    def nearest(self, index: SpotIndex, lo: np.ndarray, hi: np.ndarray) -> Observations:
+        """The readings of ``index`` a tile spanning ``lo``-``hi`` is conditioned on."""
+        return index.nearest(lo, hi, self.nearest_spots, self.reach_m)
 
     def exact_needed(self, what: str = "this computation") -> str:
         """Why ``what`` cannot run on this state, in words."""
@@ -387,18 +407,17 @@ class LocalState:
             xy_t, f_t, pm_t, pv_t, cross, half = tile_targets(idx)
             lo, hi = xy_t.min(axis=0) - half, xy_t.max(axis=0) + half
             if state_t is None:  # first solve, or a tile not kept within the budget
-                pick = nearest_spot_readings(self.spots, self.spot_of, lo, hi, self.nearest_spots)
-                state_t = condition(self.ground, self.origin, take_observations(self.known, pick))
+                state_t = condition(self.ground, self.origin, self.nearest(self.existing, lo, hi))
                 if done:  # the planned readings the base had seen, unkept with it
                     old = SpotIndex(take_observations(planned_all, np.arange(done)))
-                    state_t = state_t.extend(old.nearest(lo, hi, self.nearest_spots))
+                    state_t = state_t.extend(self.nearest(old, lo, hi))
                 pred_t = None
             if new.obs.size:
-                state_t = state_t.extend(new.nearest(lo, hi, self.nearest_spots))
+                state_t = state_t.extend(self.nearest(new, lo, hi))
             pred_t = state_t.predict_targets(xy_t, f_t, pm_t, pv_t, cross, pred_t)
             moments[0][0][idx], moments[0][1][idx] = pred_t.mean_m, pred_t.var_m2
             for k, alt in enumerate(alts, start=1):
-                alt_t = state_t.extend(alt.nearest(lo, hi, self.nearest_spots))
+                alt_t = state_t.extend(self.nearest(alt, lo, hi))
                 alt_pred = alt_t.predict_targets(xy_t, f_t, pm_t, pv_t, cross, pred_t)
                 moments[k][0][idx], moments[k][1][idx] = alt_pred.mean_m, alt_pred.var_m2
             # keep the tile's factor and whitened covariances while they fit the budget, so
@@ -429,9 +448,12 @@ class SpotIndex:
         self.obs = obs
         self.spots, self.spot_of, _ = distinct_spots(obs.xy)
 
-    def nearest(self, lo: np.ndarray, hi: np.ndarray, count: int) -> Observations:
-        """The readings at the ``count`` spots nearest the rectangle ``lo``-``hi``."""
+    def nearest(
+        self, lo: np.ndarray, hi: np.ndarray, count: int, reach_m: float = math.inf
+    ) -> Observations:
+        """The readings at the ``count`` spots nearest the rectangle ``lo``-``hi`` (none
+        farther than ``reach_m``)."""
         if self.obs.size == 0:
             return self.obs
-        pick = nearest_spot_readings(self.spots, self.spot_of, lo, hi, count)
+        pick = nearest_spot_readings(self.spots, self.spot_of, lo, hi, count, reach_m)
         return take_observations(self.obs, pick)

@@ -199,8 +199,6 @@ def prepare_optimisation(
         raise OptimiseError(CORRELATED_OPTIMISER_PROBLEM, "thickness_correlation")
     # the greedy works on at most max_cells cells: exact unless the readings alone are many
     analysis = ProjectAnalysis(project, n_cells=options.max_cells)
-    if isinstance(analysis.baseline, LocalState):  # the greedy updates need the exact factor
-        raise OptimiseError(analysis.baseline.exact_needed("the optimiser"), "existing")
     methods = analysis.methods
     allowed_ids = tuple(dict.fromkeys(options.methods)) if options.methods else tuple(methods)
     unknown = [m for m in allowed_ids if m not in methods]
@@ -269,7 +267,9 @@ def greedy_jobs(
         mixes = with_required_methods(mixes, setup.analysis, allowed_ids)
         mixes = [m for m in mixes if sum(mob[i] for i in m) < left_for_mixes]
     jobs: list[tuple[tuple[str, ...], Layout | None]] = [(mix, None) for mix in mixes]
-    if options.warm_start:
+    # a warm start conditions on a hand-made layout given the factor of all readings, which
+    # local conditioning (many readings) has not
+    if options.warm_start and not isinstance(setup.analysis.baseline, LocalState):
         for layout in project.layouts:
             used = tuple(dict.fromkeys(p.method for p in layout.probes))
             if layout.probes and set(used) <= set(allowed_ids):

@@ -43,6 +43,7 @@ from probewise.core.correlation import correlate
 from probewise.core.evaluate import LayoutResult
 from probewise.core.geometry import points_in_polygon
 from probewise.core.grid import evaluation_grid_capped
+from probewise.core.local_conditioning import LocalState
 from probewise.core.model import Layout
 from probewise.core.optimise import (
     Candidates,
@@ -389,7 +390,10 @@ def refine_layout(
     layout, result = greedy
     picks = [(p.location, p.method) for p in run.picks[:n_picks]]
     g0 = result.information_gain_bits
-    if options.refine_sweeps <= 0 or not picks:
+    # beyond exact conditioning the refinement's many local candidates would need the
+    # covariance among all of them explained tile by tile (probewise.core.local_cross): skipped
+    local = isinstance(setup.analysis.baseline, LocalState)
+    if options.refine_sweeps <= 0 or not picks or local:
         return layout, result, Refinement(g0, g0, 0, 0, 0, time.perf_counter() - t0)
     problem = refinement_problem(setup, picks, options.refine_cells)
     state = problem.base_state.copy()

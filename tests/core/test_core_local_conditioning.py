@@ -18,6 +18,7 @@ import numpy as np
 import pytest
 
 from probewise.app.to_core import to_core
+from probewise.core import local_conditioning
 from probewise.core.analysis import ProjectAnalysis
 from probewise.core.blocks import cell_blocks, predict_cells
 from probewise.core.grid import evaluation_grid
@@ -26,6 +27,7 @@ from probewise.core.local_conditioning import (
     ExactStateNeededError,
     LocalState,
     condition_scaled,
+    take_observations,
     use_local,
 )
 from probewise.core.planning import plan_probes, planned_observations
@@ -138,12 +140,22 @@ def test_five_thousand_probes_evaluate_in_bounded_memory():
     assert peak < readings**2 * 8 / 3
 
 
-def test_optimiser_refuses_beyond_exact_readings_naming_existing():
-    from probewise.core.optimise import OptimiseError, OptimiseOptions, prepare_optimisation
+def test_optimiser_runs_beyond_exact_readings_but_refuses_a_hand_made_start():
+    from probewise.core.optimise import (
+        OptimiseError,
+        OptimiseOptions,
+        optimise,
+        prepare_optimisation,
+    )
 
     project = bench_case("S", 1_001)  # 4,004 CPT readings and the boreholes': over 4,000
+    options = OptimiseOptions(budget=20_000, refine_sweeps=3)
+    result = optimise(project, options)
+    assert result.layout.probes  # the local start is checked in test_core_local_cross.py
+    assert result.refinement.moves == 0  # the refinement is skipped beyond exact conditioning
+    problem = prepare_optimisation(project, options).problem
     with pytest.raises(OptimiseError, match="thin the existing probes") as caught:
-        prepare_optimisation(project, OptimiseOptions(budget=50_000))
+        problem.apply_layout(problem.base_state.copy(), project.layouts[0])
     assert caught.value.field == "existing"
 
 
@@ -159,3 +171,44 @@ def test_evaluation_reports_local_conditioning_in_json_and_table():
     assert doc["readings"] == sum(len(p.observed) for p in project.existing)
     assert doc["nearest_spots"] > 0
     assert "Conditioning: local on" in evaluation_text(evaluation, "GBP")
+
+
+def test_one_sweep_for_several_layouts_equals_each_layout_on_its_own():
+    """Evaluate conditions each tile once for the baseline and every layout: the same numbers
+    as extending the state by each layout in turn."""
+    project = bench_case("S", 300)
+    analysis = ProjectAnalysis(project)
+    grid = evaluation_grid(project.site, analysis.origin)
+    blocks = cell_blocks(project.ground, grid.xy, grid.spacing_m, analysis.origin)
+    local = LocalState(project.ground, analysis.origin, analysis.existing, nearest_spots=60)
+    plans = plan_probes(project.ground, project.methods, local, project.layouts[0].probes)
+    whole = planned_observations(plans, project.methods, analysis.origin)
+    planned = [whole, take_observations(whole, np.arange(whole.size // 2))]  # two layouts
+    base, swept = local.predict_cells_alternatives(blocks, tuple(planned))
+    assert len(base.tiles) > 1 and len(swept) == 2
+    alone_base = predict_cells(local, blocks)
+    np.testing.assert_allclose(base.var_m2, alone_base.var_m2, rtol=1e-12)
+    for obs, pred in zip(planned, swept, strict=True):
+        alone = predict_cells(local.extend(obs), blocks, base=alone_base)
+        np.testing.assert_allclose(pred.var_m2, alone.var_m2, rtol=1e-10, atol=1e-14)
+        np.testing.assert_allclose(pred.mean_m, alone.mean_m, rtol=1e-12)
+        assert np.all(pred.var_m2 <= base.var_m2 + 1e-12)
+
+
+def test_readings_beyond_three_ranges_are_left_out_without_measurable_change(monkeypatch):
+    """Along a corridor the nearest spots reach kilometres away; beyond three times the longest
+    practical range (correlation about 1e-4 for the exponential, docs/model.md) they are left
+    out: the std moves by less than 0.01%."""
+    project = bench_case("C", 0, grid_m=50.0)  # 5 km x 200 m, 400 boreholes
+    analysis = ProjectAnalysis(project)
+    grid = evaluation_grid(project.site, analysis.origin)
+    blocks = cell_blocks(project.ground, grid.xy, grid.spacing_m, analysis.origin)
+    near = LocalState(project.ground, analysis.origin, analysis.existing)
+    assert near.reach_m == 3.0 * 200.0  # the longest range of bench C is 200 m
+    monkeypatch.setattr(local_conditioning, "REACH_RANGES", np.inf)
+    every = LocalState(project.ground, analysis.origin, analysis.existing)
+    lo, hi = grid.xy.min(axis=0), grid.xy.min(axis=0) + near.tile_m
+    assert near.nearest(near.existing, lo, hi).size < every.nearest(every.existing, lo, hi).size
+    ratio = predict_cells(near, blocks).std_m / predict_cells(every, blocks).std_m
+    assert ratio.min() >= 1.0 - 1e-9
+    assert ratio.max() <= 1.0001
