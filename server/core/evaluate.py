@@ -235,16 +235,34 @@ class GridEvaluator:
         in the same sweep of its tiles, so each tile is conditioned on the existing readings
         once rather than once per layout; ``on_progress`` gets the share of tiles done."""
         baseline = self.analysis.baseline
-        sweep = getattr(baseline, "predict_cells_alternatives", None)
-        if sweep is None or not layouts:
+        if getattr(baseline, "predict_cells_alternatives", None) is None or not layouts:
             return predict_cells(baseline, self.blocks)
+        return self._sweep(layouts, on_progress)
+
+    def _sweep(
+        self, layouts: Sequence[Layout], on_progress: Callable[[float], None] | None = None
+    ) -> Prediction:
+        """One sweep of a local state's tiles for ``layouts`` (kept for
+        :meth:`layout_prediction`); returns the baseline prediction of the sweep."""
+        baseline = self.analysis.baseline
         n_known = len(baseline.observations)
         states = [self.analysis.layout_state(layout) for layout in layouts]
         planned = [concat_observations(state.observations[n_known:]) for state, _ in states]
-        base_pred, preds = sweep(self.blocks, tuple(planned), on_progress)
+        base_pred, preds = baseline.predict_cells_alternatives(
+            self.blocks, tuple(planned), on_progress
+        )
         for layout, (_, plans), pred in zip(layouts, states, preds, strict=True):
             self._swept[id(layout)] = (layout, pred, plans)
         return base_pred
+
+    def evaluate_layouts(self, layouts: Sequence[Layout]) -> list[LayoutResult]:
+        """Metrics of several layouts; a local state predicts them in one sweep of its
+        tiles instead of one per layout."""
+        local = getattr(self.analysis.baseline, "predict_cells_alternatives", None)
+        todo = [layout for layout in layouts if id(layout) not in self._swept]
+        if local is not None and len(todo) > 1:
+            self._sweep(todo)
+        return [self.evaluate_layout(layout) for layout in layouts]
 
     def layout_prediction(self, layout: Layout) -> tuple[Prediction, tuple[ProbePlan, ...]]:
         """Cell averages given the existing probes and a layout's, and the layout's plans."""

@@ -58,8 +58,8 @@ from probewise.core.greedy import (  # noqa: F401 - public here as before
     forward_substitute,
     greedy_run,
 )
-from probewise.core.grid import MAX_GRID_CELLS, EvaluationGrid
-from probewise.core.local_conditioning import EXACT_MAX_READING_CELLS, LocalState
+from probewise.core.grid import EvaluationGrid
+from probewise.core.local_conditioning import LocalState, estimated_cells, use_local
 from probewise.core.model import CORRELATED_OPTIMISER_PROBLEM, Layout, PlannedProbe, Project
 from probewise.core.optimise_requirements import (
     candidate_tracker,
@@ -169,12 +169,15 @@ class OptimiseSetup:
     def evaluator(self) -> GridEvaluator:
         """Evaluator on the project's full evaluation grid (built on first use)."""
         if self._evaluator is None:
-            # beyond exact conditioning on the full grid (a corridor), the finalists are
-            # scored exactly on a grid coarsened until readings x cells fits, with a notice
+            # the greedy's own grid may be exact where the full grid is not (a corridor): the
+            # finalists are then scored on the full grid locally, as evaluate scores them
             # (docs/model.md "Many readings")
-            fits = EXACT_MAX_READING_CELLS // max(self.analysis.existing.size, 1)
-            cells = min(max(self.options.max_cells, fits), MAX_GRID_CELLS)
-            self._evaluator = GridEvaluator(self.project, self.analysis, max_cells=cells)
+            analysis = self.analysis
+            full_cells = estimated_cells(self.project.site)
+            exact_here = not isinstance(analysis.baseline, LocalState)
+            if exact_here and use_local(analysis.existing.size, full_cells):
+                analysis = ProjectAnalysis(self.project)
+            self._evaluator = GridEvaluator(self.project, analysis)
         return self._evaluator
 
 
@@ -408,11 +411,16 @@ def choose_finalist(
                 finalists.append(max(mine))
     best = None
     missed: tuple[str, ...] = ()
-    for _, _, r_idx, n in dict.fromkeys(finalists):
-        if should_stop is not None and should_stop():
-            raise OptimiseCancelled()
-        layout = layout_from_run(setup.problem, runs[r_idx], n, starts[r_idx], title)
-        result = setup.evaluator.evaluate_layout(layout)
+    if should_stop is not None and should_stop():
+        raise OptimiseCancelled()
+    chosen = list(dict.fromkeys(finalists))
+    layouts = [
+        layout_from_run(setup.problem, runs[r_idx], n, starts[r_idx], title)
+        for _, _, r_idx, n in chosen
+    ]
+    # one sweep of the tiles for all of them when conditioned locally
+    results = setup.evaluator.evaluate_layouts(layouts)
+    for (_, _, r_idx, n), layout, result in zip(chosen, layouts, results, strict=True):
         if setup.tracker is not None:
             unmet = check_finalist(setup.analysis, result)
             if unmet:

@@ -29,6 +29,14 @@ from scipy.stats import chi2
 
 from probewise.core.covariance import boundary_covariance
 from probewise.core.field import prior_boundary_moments, unit_fields
+from probewise.core.local_conditioning import (
+    MAX_TILE_TARGETS,
+    LocalState,
+    group_tiles,
+    nearest_spot_readings,
+    take_observations,
+    use_local,
+)
 from probewise.core.model import GroundModel
 from probewise.core.posterior import Observations, cholesky_jittered
 
@@ -175,6 +183,43 @@ def predict_by_stage(
     return res, var, jitter
 
 
+def predict_readings(
+    ground: GroundModel, origin: tuple[float, float], obs: Observations, stage
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Each reading predicted from the other probes (``stage`` None) or from earlier stages:
+    ``(prior variance, reading minus prediction, variance of the reading, jitter)``, each
+    ``(m,)``."""
+    mean, prior_var, cov = observation_moments(ground, origin, obs)
+    residual = obs.value_m - mean
+    if stage is None:
+        res, var_y, jitter = leave_group_out(cov, residual, obs.probe)
+    else:
+        res, var_y, jitter = predict_by_stage(cov, residual, stage)
+    return prior_var, res, var_y, np.full(obs.size, jitter)
+
+
+def predict_locally(
+    ground: GroundModel, origin: tuple[float, float], obs: Observations, stage
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """:func:`predict_readings` tile by tile: the probes of a tile of spots are predicted from
+    the readings of the tile's nearest spots (``probewise.core.local_conditioning``;
+    docs/model.md "Many readings"), never from a matrix of all readings."""
+    local = LocalState(ground, origin, obs)
+    index = local.existing
+    out = tuple(np.empty(obs.size) for _ in range(4))
+    for tile in group_tiles(index.spots, local.tile_m, MAX_TILE_TARGETS):
+        lo, hi = index.spots[tile].min(axis=0), index.spots[tile].max(axis=0)
+        near = nearest_spot_readings(
+            index.spots, index.spot_of, lo, hi, local.nearest_spots, local.reach_m
+        )
+        mine = np.isin(index.spot_of[near], tile)
+        sub_stage = None if stage is None else stage[near]
+        got = predict_readings(ground, origin, take_observations(obs, near), sub_stage)
+        for whole, part in zip(out, got, strict=True):
+            whole[near[mine]] = part[mine]
+    return out
+
+
 def check_readings(
     ground: GroundModel,
     origin: tuple[float, float],
@@ -197,14 +242,11 @@ def check_readings(
     -------
     ReadingChecks
     """
-    mean, prior_var, cov = observation_moments(ground, origin, obs)
-    residual = obs.value_m - mean
-    if stage is None:
-        res, var_y, jitter = leave_group_out(cov, residual, obs.probe)
-        stage_out = np.full(obs.size, -1)
-    else:
-        stage_out = np.asarray(stage, dtype=int).reshape(-1)
-        res, var_y, jitter = predict_by_stage(cov, residual, stage_out)
+    stage_in = None if stage is None else np.asarray(stage, dtype=int).reshape(-1)
+    stage_out = np.full(obs.size, -1) if stage_in is None else stage_in
+    # beyond exact conditioning each tile of probes is checked against its nearest readings
+    predict = predict_locally if use_local(obs.size, 0) else predict_readings
+    prior_var, res, var_y, jitter = predict(ground, origin, obs, stage_in)
     var_y = np.maximum(var_y, 0.0)
     var_d = np.maximum(var_y - obs.noise_std_m**2 - jitter, 0.0)
     with np.errstate(divide="ignore", invalid="ignore"):
