@@ -114,7 +114,7 @@ def test_adding_and_removing_probes_equals_a_fresh_solve():
     valid = setup.candidates.valid
     picks = [(l, j) for l, j in [(3, 0), (20, 1), (41, 2), (30, 1)] if valid[l, j]]
     assert len(picks) == 4
-    problem = refinement_problem(setup, picks, 3000)
+    problem, picks = refinement_problem(setup, picks, 3000)
     cand = problem.cand
     state = RefineState(problem, problem.base_state.copy())
 
