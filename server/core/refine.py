@@ -16,6 +16,10 @@ of the candidate spacing, or half the candidate spacing when the cells are coars
 the candidate spacing of the pick), planned exactly as the greedy plans them. Targets are
 the evaluation grid coarsened to at most ``refine_cells`` cells, built by the optimiser's own
 ``build_targets``, so the refinement uses whatever target kind the optimiser uses.
+``Q`` below takes ``(L B)^2`` float64 numbers, so the candidates are bounded by
+``OptimiseOptions.refine_bytes``: past it the local grid's step is doubled until the local
+points fit (none past half the candidate spacing), and when the greedy grid alone is too
+large only its locations nearest the picks are kept (docs/optimiser.md "Memory").
 
 Exact state with removals: besides the cross-covariance ``M`` of candidates and targets and
 the target variances ``V`` of the greedy search, the refinement keeps ``Q``, the posterior
