@@ -10,6 +10,7 @@ from dataclasses import dataclass
 
 import numpy as np
 from scipy.linalg import solve_triangular
+from scipy.linalg.blas import dgemm
 
 from probewise.core.analysis import ProjectAnalysis
 from probewise.core.blocks import CellBlocks, block_unit_terms, cell_blocks, predict_cells
@@ -196,7 +197,7 @@ class GreedyProblem:
         (a point with a cell average)."""
         t = self.targets
         terms = block_unit_terms(self.ground, self.cand.local, self.cand_fields.std_m, t.blocks)
-        cum = np.cumsum(terms, axis=0)  # (B, L, C): sum over units 0..i
+        cum = np.cumsum(terms, axis=0, out=terms)  # (B, L, C): sum over units 0..i
         L, S = len(self.cand.local), len(t.slot_cell)
         out = np.zeros((self.B, L, S))
         real = t.slot_cell >= 0
@@ -227,9 +228,12 @@ class GreedyProblem:
             slots = np.zeros((white_t.shape[0], len(t.slot_cell)))
             slots[:, real] = white_t[:, t.slot_bnd[real], t.slot_cell[real]]
             slots = self.derive_slots(slots)
-            M -= np.einsum("mbl,ms->bls", white_c, slots)
-            P -= np.einsum("mbl,mcl->lbc", white_c, white_c)
-            F = white_c.transpose(2, 1, 0)  # (L, B, m)
+            M = np.ascontiguousarray(M)
+            for b in range(self.B):  # M[b] -= white_c[:, b].T @ slots in place (BLAS)
+                wb = np.ascontiguousarray(white_c[:, b, :])  # (m, L)
+                dgemm(-1.0, slots.T, wb.T, 1.0, M[b].T, 0, 1, 1)
+            F = np.ascontiguousarray(white_c.transpose(2, 1, 0))  # (L, B, m)
+            P -= np.matmul(F, F.transpose(0, 2, 1))
         else:
             F = np.zeros((L, self.B, 0))
         F_store = np.zeros((L, self.B, max(64, 2 * F.shape[2])))

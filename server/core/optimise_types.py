@@ -21,6 +21,8 @@ FINALISTS = 4  # layouts re-evaluated on the full grid before choosing
 # Each candidate location holds a row of covariances with every target and is planned per
 # method: more than this makes a run take minutes for no better answer.
 MAX_CANDIDATE_LOCATIONS = 5000
+# Memory for the refinement's posterior covariance among candidates (probewise.core.refine)
+REFINE_BYTES = 512 * 2**20
 OBJECTIVES = ("gain", "net-value")  # what the optimiser maximises (OptimiseOptions.objective)
 
 
@@ -84,6 +86,12 @@ class OptimiseOptions:
         Most candidate-target covariances the refinement's tried exchanges may sweep (each
         try updates and scores every candidate's row once or twice); bounds its run time on
         large layouts.
+    refine_bytes : float
+        Memory (bytes) the refinement's covariance among candidate location-boundaries may
+        take (``(L B)^2`` float64 numbers for ``L`` locations, ``B`` boundaries); default
+        512 MiB. When the local points around the picks would take more, the local grid is
+        made coarser (its step doubled until they fit, none at all in the end); when the
+        greedy candidates alone would, only those nearest the picks are kept.
     objective : {"gain", "net-value"}
         ``gain``: the most information within the budget; ``net-value``: the most expected
         saving less investigation cost of the design elements (``probewise.core.netvalue``),
@@ -101,6 +109,7 @@ class OptimiseOptions:
     refine_sweeps: int = 3
     refine_cells: int = 3000
     refine_work: float = 5e8
+    refine_bytes: float = REFINE_BYTES
     objective: str = "gain"
 
 

@@ -16,6 +16,10 @@ of the candidate spacing, or half the candidate spacing when the cells are coars
 the candidate spacing of the pick), planned exactly as the greedy plans them. Targets are
 the evaluation grid coarsened to at most ``refine_cells`` cells, built by the optimiser's own
 ``build_targets``, so the refinement uses whatever target kind the optimiser uses.
+``Q`` below takes ``(L B)^2`` float64 numbers, so the candidates are bounded by
+``OptimiseOptions.refine_bytes``: past it the local grid's step is doubled until the local
+points fit (none past half the candidate spacing), and when the greedy grid alone is too
+large only its locations nearest the picks are kept (docs/optimiser.md "Memory").
 
 Exact state with removals: besides the cross-covariance ``M`` of candidates and targets and
 the target variances ``V`` of the greedy search, the refinement keeps ``Q``, the posterior
@@ -58,6 +62,7 @@ from probewise.core.optimise import (
     layout_from_picks,
 )
 from probewise.core.optimise_requirements import check_finalist
+from probewise.core.optimise_types import REFINE_BYTES
 from probewise.core.requirements import build_tracker
 
 
@@ -105,9 +110,11 @@ class RefineState:
         self.B = B = problem.B
         self.M = np.ascontiguousarray(start.M)
         self.V = start.V.copy()
-        L = len(problem.cand.local)
-        F = start.F[:, :, : start.n_rows].reshape(L * B, start.n_rows)
-        self.Q = prior_candidate_covariance(problem) - F @ F.T
+        L, R = len(problem.cand.local), start.n_rows
+        self.Q = prior_candidate_covariance(problem)
+        if R:  # Q -= F F^T in place: one (N, N) array, no temporaries of its size
+            f = start.F[:, :, :R].reshape(L * B, R)
+            dgemm(-1.0, f.T, f.T, 1.0, self.Q.T, 1, 0, 1)
         q4 = self.Q.reshape(L, B, L, B)
         self.P = np.ascontiguousarray(q4[np.arange(L), :, np.arange(L), :])
         self.G = np.zeros((L, B, B))
@@ -120,7 +127,7 @@ class RefineState:
     def _factors(self, l, obs, noise_var, sign: float, rows: bool = True):
         """Whitened covariance of the readings with every location-boundary ``(k, N)``
         (None unless ``rows``) and with every target ``(k, S)``: adding (``sign`` 1) or
-        removing (-1) them."""
+        removing (-1) them. ``l`` is one location or ``(k,)`` locations, one a reading."""
         idx = l * self.B + obs
         block = self.Q[np.ix_(idx, idx)]
         k = np.diag(noise_var) + sign * block
@@ -140,12 +147,22 @@ class RefineState:
         self.V -= sign * np.einsum("qs,qs->s", h, h)
         self.P -= sign * np.einsum("qlb,qlc->lbc", wr, wr)
 
-    def add(self, l: int, obs: np.ndarray, noise_var: np.ndarray) -> None:
-        """Condition on readings of boundaries ``obs`` at location ``l`` (noise variances)."""
+    def add(self, l, obs: np.ndarray, noise_var: np.ndarray) -> None:
+        """Condition on readings of boundaries ``obs`` at location ``l`` (noise variances;
+        ``l`` may be ``(k,)``, one location a reading)."""
         w, h = self._factors(l, obs, noise_var, 1.0)
         self._update_m(w, h, 1.0)
         self._update_small(w, h, 1.0)
         self._update_q(w, 1.0)
+
+    def add_many(self, readings: Sequence[tuple[int, np.ndarray, np.ndarray]]) -> None:
+        """Condition on several probes at once, ``(location, obs, noise_var)`` each at a
+        distinct location: one block update (BLAS on all readings) instead of one a probe."""
+        if not readings:
+            return
+        locs = np.concatenate([np.full(len(obs), l) for l, obs, _ in readings])
+        obs = np.concatenate([obs for _, obs, _ in readings])
+        self.add(locs, obs, np.concatenate([noise for _, _, noise in readings]))
 
     def _update_q(self, w: np.ndarray, sign: float) -> None:
         """``Q -= sign w^T w`` in place (``Q`` is symmetric, so its transpose is updated)."""
@@ -225,26 +242,76 @@ def merge_candidates(a: Candidates, b: Candidates) -> Candidates:
     )
 
 
-def refinement_problem(setup, picks: Sequence[tuple[int, int]], refine_cells: int):
-    """The refinement's GreedyProblem: greedy candidates plus local points around the picks,
-    targets on the evaluation grid coarsened to at most ``refine_cells`` cells."""
-    project, analysis, cand = setup.project, setup.analysis, setup.candidates
+def subset_candidates(cand: Candidates, keep: np.ndarray) -> Candidates:
+    """Candidates at locations ``keep`` (indices, in that order)."""
+    return Candidates(
+        cand.xy[keep],
+        cand.local[keep],
+        cand.method_ids,
+        cand.depth_m[keep],
+        cand.cost[keep],
+        cand.noise_var[keep],
+        cand.valid[keep],
+    )
+
+
+def max_refine_locations(refine_bytes: float, n_boundaries: int) -> int:
+    """Most candidate locations ``L`` whose ``Q`` (``(L B, L B)`` float64) fits
+    ``refine_bytes``."""
+    return math.isqrt(int(max(refine_bytes, 0) // 8)) // max(n_boundaries, 1)
+
+
+def nearest_candidates(cand: Candidates, picks, max_locations: int):
+    """The greedy candidates, or only the ``max_locations`` nearest the picks when there are
+    more (the picks' own locations always kept); returns them and the picks re-indexed."""
+    if len(cand.local) <= max_locations or not picks:
+        return cand, list(picks)
+    at = cand.local[[l for l, _ in picks]]
+    near = np.full(len(cand.local), np.inf)
+    for p in at:
+        near = np.minimum(near, np.hypot(*(cand.local - p).T))
+    near[[l for l, _ in picks]] = -1.0  # first, whatever the count
+    count = max(max_locations, len({l for l, _ in picks}))
+    keep = np.sort(np.argsort(near, kind="stable")[:count])
+    new = {int(l): i for i, l in enumerate(keep)}
+    return subset_candidates(cand, keep), [(new[l], j) for l, j in picks]
+
+
+def refinement_problem(
+    setup,
+    picks: Sequence[tuple[int, int]],
+    refine_cells: int,
+    refine_bytes: float = REFINE_BYTES,
+):
+    """The refinement's GreedyProblem and the picks in its candidates.
+
+    Candidates are the greedy candidates plus local points around the picks, as many as
+    ``Q`` within ``refine_bytes`` allows (module docstring); targets on the evaluation grid
+    coarsened to at most ``refine_cells`` cells.
+    """
+    project, analysis = setup.project, setup.analysis
     grid, _ = evaluation_grid_capped(project.site, analysis.origin, refine_cells)
+    most = max_refine_locations(refine_bytes, analysis.ground.n_boundaries)
+    cand, picks = nearest_candidates(setup.candidates, picks, most)
     spacing = setup.candidate_spacing_m
     # cell centres of the grid, thinned to about a quarter of the candidate spacing (at most
     # 5 x 5 points a pick); half the candidate spacing when the cells are coarser than that
     g = grid.spacing_m
     step = g * max(1, math.ceil(0.25 * spacing / g - 1e-9)) if g <= 0.5 * spacing else 0.5 * spacing
     centres = cand.xy[[l for l, _ in picks]] if picks else np.zeros((0, 2))
-    anchor = grid.xy_project[0]
-    extra = local_points(project, spacing, step, centres, anchor)
+    extra = np.zeros((0, 2))
+    while most > len(cand.local):
+        extra = local_points(project, spacing, step, centres, grid.xy_project[0])
+        if len(extra):
+            d = np.hypot(*(extra[:, None, :] - cand.xy[None, :, :]).transpose(2, 0, 1))
+            extra = extra[np.min(d, axis=1) > 1e-6]  # a greedy location already
+        if len(cand.local) + len(extra) <= most:
+            break
+        step *= 2.0  # too many for Q's memory: a coarser local grid (none past the spacing)
+        extra = np.zeros((0, 2))
     if len(extra):
-        near = np.min(np.hypot(*(extra[:, None, :] - cand.xy[None, :, :]).transpose(2, 0, 1)), 1)
-        extra = extra[near > 1e-6]  # a greedy location already
-    merged = cand
-    if len(extra):
-        merged = merge_candidates(cand, build_candidates(analysis, extra, cand.method_ids))
-    return GreedyProblem(analysis, merged, build_targets(analysis, grid))
+        cand = merge_candidates(cand, build_candidates(analysis, extra, cand.method_ids))
+    return GreedyProblem(analysis, cand, build_targets(analysis, grid)), picks
 
 
 class Exchange:
@@ -335,19 +402,20 @@ def refine_picks(
     max_sweeps: int,
     max_work: float = math.inf,
     on_step: Callable[[float], None] | None = None,
+    own_start: bool = False,
 ) -> tuple[list[tuple[int, int]], int, int]:
     """Exchange sweeps from the greedy picks; returns (picks, moves, sweeps).
 
     Each sweep tries the picks in increasing order of the gain they alone bring (the likeliest
     to be improved first), then spends any money freed. Sweeps stop when one changes nothing,
     after ``max_sweeps``, or when the tries have swept ``max_work`` candidate-target
-    covariances. ``start`` is the problem's state with the fixed part applied (not modified).
+    covariances. ``start`` is the problem's state with the fixed part applied (not modified,
+    unless ``own_start``: then it is used up rather than copied, which saves a copy of ``M``).
     ``on_step(fraction)`` is called after every try; it may raise to cancel.
     """
-    state = RefineState(problem, start.copy())
+    state = RefineState(problem, start if own_start else start.copy())
     ex = Exchange(problem, spec, state)
-    for l, j in ex.picks:
-        state.add(*ex._readings(l, j))
+    state.add_many([ex._readings(l, j) for l, j in ex.picks])
     per_try = float(state.M.size)
     tries_left = max(int(max_work // per_try), 1)
     total = min(max_sweeps * len(ex.picks), tries_left)
@@ -395,8 +463,8 @@ def refine_layout(
     local = isinstance(setup.analysis.baseline, LocalState)
     if options.refine_sweeps <= 0 or not picks or local:
         return layout, result, Refinement(g0, g0, 0, 0, 0, time.perf_counter() - t0)
-    problem = refinement_problem(setup, picks, options.refine_cells)
-    state = problem.base_state.copy()
+    problem, picks = refinement_problem(setup, picks, options.refine_cells, options.refine_bytes)
+    state = problem.base_state  # the problem is ours alone: used up, not copied
     fixed_cost, fixed_methods, fixed_xy = setup.fixed_cost, frozenset(), np.zeros((0, 2))
     if start is not None:
         fixed_cost = problem.apply_layout(state, start)[0]
@@ -419,7 +487,7 @@ def refine_layout(
         tracker,
     )
     new_picks, moves, sweeps = refine_picks(
-        problem, spec, state, options.refine_sweeps, options.refine_work, on_step
+        problem, spec, state, options.refine_sweeps, options.refine_work, on_step, own_start=True
     )
     n_loc = len(problem.cand.local)
     if moves:

@@ -114,7 +114,7 @@ def test_adding_and_removing_probes_equals_a_fresh_solve():
     valid = setup.candidates.valid
     picks = [(l, j) for l, j in [(3, 0), (20, 1), (41, 2), (30, 1)] if valid[l, j]]
     assert len(picks) == 4
-    problem = refinement_problem(setup, picks, 3000)
+    problem, picks = refinement_problem(setup, picks, 3000)
     cand = problem.cand
     state = RefineState(problem, problem.base_state.copy())
 
@@ -213,3 +213,79 @@ def test_warm_start_from_a_hand_made_layout_is_kept():
     warm = optimise(project, options, setup=setup)
     assert warm.result.cost <= hand.cost + 1e-6
     assert warm.result.information_gain_bits >= hand.information_gain_bits - 1e-9
+
+
+def test_probes_added_in_one_block_equal_a_fresh_solve():
+    # The refinement's start conditions on every greedy pick at once (RefineState.add_many);
+    # that must equal the block Cholesky solve of GreedyProblem.apply_layout, Q included.
+    project = tiny_project()
+    setup = prepare_optimisation(project, OptimiseOptions(budget=1e5, candidate_spacing_m=20.0))
+    valid = setup.candidates.valid
+    picks = [(l, j) for l, j in [(3, 0), (20, 1), (41, 2)] if valid[l, j]]
+    assert len(picks) == 3
+    problem, picks = refinement_problem(setup, picks, 3000)
+    cand = problem.cand
+    state = RefineState(problem, problem.base_state.copy())
+    readings = []
+    for l, j in picks:
+        obs = np.flatnonzero(problem.observes[l, j])
+        readings.append((l, obs, cand.noise_var[l, j, obs]))
+    state.add_many(readings)
+    fresh = problem.base_state.copy()
+    problem.apply_layout(fresh, layout_from_picks(cand, picks, None, "all"))
+    fresh.flush()
+    np.testing.assert_allclose(state.V, fresh.V, rtol=1e-9, atol=1e-12)
+    np.testing.assert_allclose(state.P, fresh.P, rtol=1e-9, atol=1e-10)
+    np.testing.assert_allclose(state.M, fresh.M, rtol=1e-9, atol=1e-10)
+    np.testing.assert_allclose(state.Q, RefineState(problem, fresh).Q, rtol=1e-9, atol=1e-10)
+
+
+def test_memory_budget_of_q_thins_the_refinement_candidates():
+    # Q is (L B, L B) float64 (module docstring of server/core/refine.py): within
+    # refine_bytes the local grid is made coarser, and below the greedy grid only the
+    # locations nearest the picks stay, the picks among them.
+    project = tiny_project()
+    setup = prepare_optimisation(project, OptimiseOptions(budget=1e5, candidate_spacing_m=20.0))
+    B = setup.analysis.ground.n_boundaries
+    greedy_xy = setup.candidates.xy
+    picks = [(l, 0) for l in (3, 20, 41)]
+    full, _ = refinement_problem(setup, picks, 3000)
+    n_greedy, n_full = len(greedy_xy), len(full.cand.local)
+    assert n_full > n_greedy + 3 * 8, "the premise: more local points than a 3 x 3 grid a pick"
+    half = n_greedy + (n_full - n_greedy) // 2
+    for most in (half, n_greedy - 10, 5):
+        refine_bytes = (most * B) ** 2 * 8
+        problem, moved = refinement_problem(setup, picks, 3000, refine_bytes)
+        state = RefineState(problem, problem.base_state.copy())
+        assert state.Q.nbytes <= refine_bytes
+        assert len(problem.cand.local) <= most
+        # the picks are the same probes in the thinned candidates
+        np.testing.assert_array_equal(
+            problem.cand.xy[[l for l, _ in moved]], greedy_xy[[3, 20, 41]]
+        )
+        if most == half:  # a coarser local grid, not none
+            assert len(problem.cand.local) > n_greedy
+    # the nearest greedy locations are the ones kept
+    problem, _ = refinement_problem(setup, picks, 3000, (5 * B) ** 2 * 8)
+    d = np.min(
+        np.hypot(*(greedy_xy[:, None, :] - greedy_xy[[3, 20, 41]][None]).transpose(2, 0, 1)), 1
+    )
+    kept = np.min(
+        np.hypot(*(problem.cand.xy[:, None, :] - greedy_xy[[3, 20, 41]][None]).transpose(2, 0, 1)),
+        1,
+    )
+    assert kept.max() <= np.sort(d)[4] + 1e-9
+
+
+def test_optimiser_with_a_small_refinement_memory_still_never_loses():
+    project = tiny_project()
+    options = OptimiseOptions(budget=8000.0, candidate_spacing_m=20.0)
+    setup = prepare_optimisation(project, options)
+    B = setup.analysis.ground.n_boundaries
+    small = OptimiseOptions(budget=8000.0, candidate_spacing_m=20.0, refine_bytes=(30 * B) ** 2 * 8)
+    out = optimise(project, small, setup=setup)
+    assert out.refinement.candidate_locations <= 30
+    assert out.refinement.refined_gain_bits >= out.refinement.greedy_gain_bits
+    again = evaluate_project(project, [out.layout]).layouts[0]
+    assert again.cost <= 8000.0 + 1e-6
+    assert again.information_gain_bits == pytest.approx(out.result.information_gain_bits, rel=1e-9)
