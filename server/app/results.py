@@ -4,7 +4,9 @@ A revision never changes once stored, so everything computed from it (the core P
 baseline on the evaluation grid, each layout's LayoutResult, figures drawn from them) can be
 kept and reused until the project moves on. The cache holds a few revisions (LRU), each
 computed lazily under its own lock: two requests that need the same numbers wait for one
-computation instead of doing it twice, while other projects are served meanwhile.
+computation instead of doing it twice, while other projects are served meanwhile. A page load
+does not wait for a slow evaluator: it is computed in the background with progress
+(``probewise.app.evaluation_jobs``).
 """
 
 from __future__ import annotations
