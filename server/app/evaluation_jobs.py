@@ -3,18 +3,21 @@
 Evaluating a project with thousands of existing readings, or a corridor-length site, takes
 from seconds to a minute (the baseline and every layout conditioned tile by tile:
 ``probewise.core.local_conditioning``). A page request must not wait that long without a
-word, so while ``deferring_slow_evaluations`` is in effect (the web app sets it for page
-loads) asking a revision for its evaluator when it is not computed yet and would be slow
-starts (or finds) its job here and raises :class:`EvaluationPending`; the page answers with
-a progress bar and loads itself again when the job is done. Everything else (the API, htmx
-fragments, images, the command line) computes in place as before.
+word, so while ``deferring_slow_evaluations`` is in effect (the web app sets it for a
+browser's GET of a page or an htmx fragment) asking a revision for its evaluator when it is not
+computed yet and would be slow starts (or finds) its job here and raises
+:class:`EvaluationPending`; the page answers with a progress bar and loads itself again when
+the job is done. Everything else (form posts, the API, images, the command line) computes in
+place as before.
 
 "Would be slow" is the core's own rule, decided before computing: the evaluation conditions
 locally (``use_local``) on the readings of the existing probes over the site's estimated
 cells. Below it (the demos) nothing changes. One job runs per revision at a time; it holds the
 revision's lock (``ProjectResults.compute_evaluator``), so a request that does wait waits for
-the same computation. A job that failed on bad input keeps that InputError in the revision
-(the page then shows it as it always did); any other failure is kept in the job and reported.
+the same computation. A job started for a newer revision stops the project's older ones at
+their next progress report (pages show the current revision only). A job that failed on bad
+input keeps that InputError in the revision (the page then shows it as it always did); any
+other failure is kept in the job and reported.
 """
 
 from __future__ import annotations
@@ -41,6 +44,11 @@ _jobs: weakref.WeakKeyDictionary[ProjectResults, EvaluationJob] = weakref.WeakKe
 _jobs_lock = threading.Lock()
 
 UNEXPECTED = "the server met an unexpected error; its log has the details"
+SUPERSEDED = "a newer revision of the project replaced it"
+
+
+class EvaluationSuperseded(Exception):  # noqa: N818 - a stop, not a fault
+    """Raised in a job's progress report to stop it: its revision is no longer current."""
 
 
 class EvaluationPending(Exception):  # noqa: N818 - not an error: the answer comes later
@@ -78,6 +86,7 @@ class EvaluationJob:
         self.error: str | None = None
         self.input_error = False  # the failure is the revision's InputError (kept there)
         self._ended = threading.Event()
+        self._stop = threading.Event()
 
     @property
     def finished(self) -> bool:
@@ -104,7 +113,13 @@ class EvaluationJob:
         """Block until the job ends (tests, shutdown); True when it has."""
         return self._ended.wait(timeout_s)
 
+    def stop(self) -> None:
+        """Ask the job to end at its next progress report (a newer revision is current)."""
+        self._stop.set()
+
     def report(self, fraction: float) -> None:
+        if self._stop.is_set():
+            raise EvaluationSuperseded
         self.fraction = min(max(float(fraction), 0.0), 1.0)
         self.stage = "summarising" if self.fraction >= 1.0 else "conditioning"
 
@@ -112,6 +127,8 @@ class EvaluationJob:
         try:
             entry.compute_evaluator(on_progress=self.report)
             self.fraction, self.stage = 1.0, "done"
+        except EvaluationSuperseded:  # nobody waits for it; asked again, it starts anew
+            self.error, self.stage = SUPERSEDED, "failed"
         except InputError as exc:  # kept in the revision too: its page shows it
             self.error, self.input_error, self.stage = str(exc), True, "failed"
         except Exception:  # noqa: BLE001 - the job must end with a status whatever happened
@@ -136,6 +153,11 @@ def start_evaluation(entry: ProjectResults, *, retry_failed: bool = True) -> Eva
         if job is not None and not stale:
             return job
         job = EvaluationJob(entry)
+        # the project's older revisions are no longer shown: their jobs would only take the CPU
+        for other, older in _jobs.items():
+            same = other.project_id == entry.project_id
+            if same and older.revision < entry.revision and not older.finished:
+                older.stop()
         _jobs[entry] = job
     thread = threading.Thread(
         target=job.run,

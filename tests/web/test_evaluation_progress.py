@@ -230,6 +230,32 @@ def test_an_unexpected_failure_is_reported_and_a_new_page_load_tries_again(
     assert len(calls) == 2  # the second page load started a new evaluation
 
 
+def test_a_newer_revision_stops_the_evaluation_of_the_older_one(
+    client: TestClient, large, hold: Hold
+):
+    project_id, model = large
+    first = client.get(f"/projects/{project_id}/schedule", headers=PAGE)
+    assert first.status_code == 202
+    assert hold.reached.wait(WAIT_S)
+    older = job_of(client, project_id)
+    revision = older.revision
+    saved = client.put(
+        f"/api/projects/{project_id}",
+        json={"model": dict(model, name="Renamed"), "expected_revision": revision},
+    )
+    assert saved.status_code == 200, saved.text
+    second = client.get(f"/projects/{project_id}/schedule", headers=PAGE)
+    assert second.status_code == 202
+    newer = job_of(client, project_id)
+    assert newer is not older and newer.revision > revision
+    hold.release.set()
+    assert older.wait(WAIT_S) and newer.wait(WAIT_S)
+    assert older.failed and older.error == "a newer revision of the project replaced it"
+    assert newer.stage == "done"
+    done = client.get(poll_url(second.text), headers=htmx())
+    assert done.headers.get("hx-redirect") == f"/projects/{project_id}/schedule"
+
+
 @pytest.mark.parametrize(
     "wanted",
     ["https://elsewhere.example/projects/{id}/schedule", "//elsewhere.example/x", "/projects/"],
