@@ -4,7 +4,9 @@ A revision never changes once stored, so everything computed from it (the core P
 baseline on the evaluation grid, each layout's LayoutResult, figures drawn from them) can be
 kept and reused until the project moves on. The cache holds a few revisions (LRU), each
 computed lazily under its own lock: two requests that need the same numbers wait for one
-computation instead of doing it twice, while other projects are served meanwhile.
+computation instead of doing it twice, while other projects are served meanwhile. A page load
+does not wait for a slow evaluator: it is computed in the background with progress
+(``probewise.app.evaluation_jobs``).
 """
 
 from __future__ import annotations
@@ -16,6 +18,7 @@ from typing import Any, TypeVar
 
 import sqlite_utils
 
+from probewise.app.evaluation_jobs import defer_if_slow
 from probewise.app.layouts import layout_kind
 from probewise.app.project import find_layout
 from probewise.app.schedule import default_layout_name
@@ -54,6 +57,7 @@ class ProjectResults:
         self.project: Project = to_core(stored.model)
         self._lock = threading.RLock()
         self._evaluator: GridEvaluator | None = None
+        self._evaluator_error: InputError | None = None
         self._results: dict[str, LayoutResult] = {}
         self._ranked: tuple[LayoutResult, ...] | None = None
         self._ranking: list[RankedOption] | None = None
@@ -62,13 +66,38 @@ class ProjectResults:
 
     @property
     def evaluator(self) -> GridEvaluator:
-        """The baseline solved on the evaluation grid (InputError when the grid is empty)."""
+        """The baseline solved on the evaluation grid (InputError when the grid is empty).
+
+        A page request may not wait for a slow one: it is then computed in the background and
+        EvaluationPending raised (``probewise.app.evaluation_jobs``)."""
+        if not self.evaluator_done:  # read without the lock: a background job may hold it
+            defer_if_slow(self)
+        return self.compute_evaluator()
+
+    @property
+    def evaluator_done(self) -> bool:
+        """True once the evaluator is computed or known to fail with an InputError."""
+        return self._evaluator is not None or self._evaluator_error is not None
+
+    def compute_evaluator(
+        self, on_progress: Callable[[float], None] | None = None
+    ) -> GridEvaluator:
+        """The evaluator, computed here when not yet done (``on_progress``: share of tiles)."""
         with self._lock:
-            if self._evaluator is None:
+            if self._evaluator is None and self._evaluator_error is None:
                 try:
-                    self._evaluator = GridEvaluator(self.project, layouts=self.project.layouts)
+                    self._evaluator = GridEvaluator(
+                        self.project, layouts=self.project.layouts, on_progress=on_progress
+                    )
                 except EmptyGridError as exc:
-                    raise InputError("grid_spacing_m", str(exc)) from None
+                    # a revision never changes: its input error is kept, not computed again
+                    self._evaluator_error = InputError("grid_spacing_m", str(exc))
+                except InputError as exc:
+                    self._evaluator_error = exc
+            if self._evaluator_error is not None:
+                error = self._evaluator_error
+                raise InputError(error.field, error.problem) from None
+            assert self._evaluator is not None
             return self._evaluator
 
     @property
@@ -80,13 +109,15 @@ class ProjectResults:
 
     def layout_result(self, name: str) -> LayoutResult:
         """One layout's numbers (its ``pareto`` flag is provisional; see ``results``)."""
+        evaluator = self.evaluator  # before the lock, which a background evaluation holds
         with self._lock:
             if name not in self._results:
-                self._results[name] = self.evaluator.evaluate_layout(self.core_layout(name))
+                self._results[name] = evaluator.evaluate_layout(self.core_layout(name))
             return self._results[name]
 
     def results(self) -> tuple[LayoutResult, ...]:
         """Every layout's numbers, in the model's order, with Pareto flags set among them."""
+        _ = self.evaluator  # before the lock, which a background evaluation holds
         with self._lock:
             if self._ranked is None:
                 self._ranked = with_pareto([self.layout_result(n) for n in self.layout_names])
@@ -103,6 +134,7 @@ class ProjectResults:
 
     def ranking(self) -> list[RankedOption]:
         """Every layout ranked (sorted by cost; Pareto flags over all of them)."""
+        evaluator = self.evaluator  # before the lock, which a background evaluation holds
         with self._lock:
             if self._ranking is None:
                 known = {r.name: r for r in self.results()}
@@ -111,7 +143,7 @@ class ProjectResults:
                         self.project,
                         self.project.layouts,
                         self.kinds(),
-                        evaluator=self.evaluator,
+                        evaluator=evaluator,
                         known=known,
                     )
                 except EmptyElementError as exc:  # a grid coarsened past an element

@@ -22,6 +22,7 @@ from probewise.web import (
     routes_behaviour,
     routes_compare,
     routes_elements,
+    routes_evaluation,
     routes_existing,
     routes_fieldwork,
     routes_ground,
@@ -40,6 +41,7 @@ from probewise.web import (
 )
 from probewise.web.deps import database_of
 from probewise.web.errors import install_error_handlers
+from probewise.web.routes_evaluation import install_evaluation_wait
 from probewise.web.security import MAX_BODY_BYTES, SecurityMiddleware, allowed_hosts_for
 
 log = logging.getLogger(__name__)
@@ -62,6 +64,7 @@ ROUTERS = (
     routes_sensitivity.router,
     routes_schedule_lab.router,
     routes_jobs.router,
+    routes_evaluation.router,
     routes_elements.router,
     routes_value.router,
 )
@@ -115,6 +118,7 @@ def create_app(
     )
     app.state.db_path = Path(db_path)
     app.state.db = None
+    install_evaluation_wait(app)  # page loads may defer a slow evaluation (inside the checks)
     app.add_middleware(
         SecurityMiddleware,
         allowed_hosts=allowed_hosts_for(bound_host, extra_hosts),
