@@ -3,27 +3,16 @@
 
 from __future__ import annotations
 
-from contextlib import nullcontext
-
 from probewise.core.analysis import existing_observations
 from probewise.core.fit import FitResult, fit_model
+from probewise.core.local_conditioning import one_blas_thread
 from probewise.core.model import Project
-
-
-def _one_blas_thread():
-    """The fit factorises many small matrices one after another: on a busy machine BLAS
-    threads only fight over the cores, so run it on one when threadpoolctl is at hand."""
-    try:
-        from threadpoolctl import threadpool_limits
-    except ImportError:  # optional: the numbers are the same, only the time differs
-        return nullcontext()
-    return threadpool_limits(limits=1, user_api="blas")
 
 
 def project_fit(project: Project) -> FitResult:
     """Maximum-likelihood fit of the project's model to its existing readings."""
     obs = existing_observations(project.existing, project.methods, project.origin)
-    with _one_blas_thread():
+    with one_blas_thread():  # many small factorisations: threads only fight over cores
         return fit_model(project.ground, project.origin, obs, tuple(p.id for p in project.existing))
 
 

@@ -34,6 +34,7 @@ from probewise.core.local_conditioning import (
     MAX_TILE_TARGETS,
     LocalState,
     group_tiles,
+    one_blas_thread,
     take_blocks,
 )
 from probewise.core.posterior import PosteriorState, condition
@@ -100,6 +101,12 @@ def explain_locally(
     -------
     LocalExplained
     """
+    with one_blas_thread():
+        return _explain(state, cand_xy, cand_fields, blocks, on_progress)
+
+
+def _explain(state, cand_xy, cand_fields, blocks, on_progress) -> LocalExplained:
+    """:func:`explain_locally`, on the current BLAS threads."""
     ground = state.ground
     L, B, C = len(cand_xy), ground.n_boundaries, blocks.n_cells
     cand_cells = np.zeros((L, B, C, B))

@@ -34,6 +34,7 @@ from probewise.core.local_conditioning import (
     LocalState,
     group_tiles,
     nearest_spot_readings,
+    one_blas_thread,
     take_observations,
     use_local,
 )
@@ -207,17 +208,24 @@ def predict_locally(
     local = LocalState(ground, origin, obs)
     index = local.existing
     out = tuple(np.empty(obs.size) for _ in range(4))
-    for tile in group_tiles(index.spots, local.tile_m, MAX_TILE_TARGETS):
-        lo, hi = index.spots[tile].min(axis=0), index.spots[tile].max(axis=0)
-        near = nearest_spot_readings(
-            index.spots, index.spot_of, lo, hi, local.nearest_spots, local.reach_m
-        )
-        mine = np.isin(index.spot_of[near], tile)
-        sub_stage = None if stage is None else stage[near]
-        got = predict_readings(ground, origin, take_observations(obs, near), sub_stage)
-        for whole, part in zip(out, got, strict=True):
-            whole[near[mine]] = part[mine]
+    with one_blas_thread():
+        for tile in group_tiles(index.spots, local.tile_m, MAX_TILE_TARGETS):
+            _predict_tile(ground, origin, obs, stage, local, tile, out)
     return out
+
+
+def _predict_tile(ground, origin, obs, stage, local, tile, out) -> None:
+    """One tile of :func:`predict_locally`, written into ``out``."""
+    index = local.existing
+    lo, hi = index.spots[tile].min(axis=0), index.spots[tile].max(axis=0)
+    near = nearest_spot_readings(
+        index.spots, index.spot_of, lo, hi, local.nearest_spots, local.reach_m
+    )
+    mine = np.isin(index.spot_of[near], tile)
+    sub_stage = None if stage is None else stage[near]
+    got = predict_readings(ground, origin, take_observations(obs, near), sub_stage)
+    for whole, part in zip(out, got, strict=True):
+        whole[near[mine]] = part[mine]
 
 
 def check_readings(

@@ -29,14 +29,14 @@ def exact_and_local(project, monkeypatch, stage=None):
 
 
 def test_every_spot_in_reach_gives_the_exact_check(monkeypatch):
-    # bench S with 300 CPTs: 306 spots, fewer than the 350 of a neighbourhood
-    exact, local = exact_and_local(bench_case("S", 300), monkeypatch)
+    # bench S with 250 CPTs: 256 spots, fewer than the 300 of a neighbourhood
+    exact, local = exact_and_local(bench_case("S", 250), monkeypatch)
     np.testing.assert_allclose(local.predicted_std_m, exact.predicted_std_m, rtol=1e-6)
     np.testing.assert_allclose(local.z, exact.z, rtol=1e-6, atol=1e-8)
 
 
 def test_stages_checked_locally_match_exact_with_every_spot(monkeypatch):
-    project = bench_case("S", 300)
+    project = bench_case("S", 250)
     stage = (np.arange(ProjectAnalysis(project).existing.size) // 400).astype(int)
     exact, local = exact_and_local(project, monkeypatch, stage)
     np.testing.assert_allclose(local.predicted_std_m, exact.predicted_std_m, rtol=1e-6)
@@ -49,8 +49,12 @@ def test_local_check_within_one_percent_of_exact_on_bench_l_500(monkeypatch):
     ratio = local.predicted_std_m / exact.predicted_std_m
     assert ratio.min() >= 1.0 - 1e-9  # fewer readings never predict more sharply
     assert ratio.max() <= 1.01
+    # the mean is moved by the nearby readings only: up to about half a posterior std where
+    # the readings disagree with the model's smoothness (the invented CPTs' depths are
+    # independent draws; docs/model.md "Many readings")
     shift = np.abs(local.predicted_mean_m - exact.predicted_mean_m) / exact.predicted_std_m
-    assert shift.max() <= 0.1
+    assert shift.max() <= 0.5
+    assert np.mean(local.flag == exact.flag) >= 0.99  # the same readings flagged
 
 
 def test_fit_beyond_its_cap_uses_a_fixed_random_subset_of_whole_probes():
