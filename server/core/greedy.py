@@ -220,9 +220,7 @@ class GreedyProblem:
         V = np.ones(len(t.slot_cell))
         V[real] = pred_t.var_m2[t.slot_cell[real], t.slot_bnd[real]]
         L = len(self.cand.local)
-        var_cum = np.cumsum(self.cand_fields.std_m**2, axis=1)  # (L, B)
-        idx = np.minimum.outer(np.arange(self.B), np.arange(self.B))
-        P = var_cum[:, idx]  # (L, B, B): prior cov at one point
+        F = np.zeros((L, self.B, 0))
         if white_c is not None and white_c.shape[0]:
             white_t = np.concatenate(pred_t.white, axis=0)  # (m, B, C)
             slots = np.zeros((white_t.shape[0], len(t.slot_cell)))
@@ -233,9 +231,16 @@ class GreedyProblem:
                 wb = np.ascontiguousarray(white_c[:, b, :])  # (m, L)
                 dgemm(-1.0, slots.T, wb.T, 1.0, M[b].T, 0, 1, 1)
             F = np.ascontiguousarray(white_c.transpose(2, 1, 0))  # (L, B, m)
-            P -= np.matmul(F, F.transpose(0, 2, 1))
-        else:
-            F = np.zeros((L, self.B, 0))
+        return self._start_state(M, V, F)
+
+    def _start_state(self, M: np.ndarray, V: np.ndarray, F: np.ndarray) -> GreedyState:
+        """The state from ``M (B, L, S)``, ``V (S,)`` and ``F (L, B, R)``, the factor of what
+        the existing readings explain among the candidates (``P`` is the prior at each
+        location less ``F F^T``)."""
+        L = len(self.cand.local)
+        var_cum = np.cumsum(self.cand_fields.std_m**2, axis=1)  # (L, B)
+        P = var_cum[:, np.minimum.outer(np.arange(self.B), np.arange(self.B))]  # (L, B, B)
+        P -= np.matmul(F, F.transpose(0, 2, 1))
         F_store = np.zeros((L, self.B, max(64, 2 * F.shape[2])))
         F_store[:, :, : F.shape[2]] = F
         return GreedyState(np.ascontiguousarray(M), P, V, F_store, F.shape[2])
@@ -254,13 +259,7 @@ class GreedyProblem:
         M = self.derive_slots(self._prior_cand_slots()) - self.derive_slots(explained)
         V = np.ones(S)
         V[real] = ex.cell_var_m2[sc, sb]
-        var_cum = np.cumsum(self.cand_fields.std_m**2, axis=1)  # (L, B)
-        P = var_cum[:, np.minimum.outer(np.arange(self.B), np.arange(self.B))]  # (L, B, B)
-        F = ex.cand_factor  # (L, B, R)
-        P -= np.einsum("lbr,lcr->lbc", F, F)
-        F_store = np.zeros((L, self.B, max(64, 2 * F.shape[2])))
-        F_store[:, :, : F.shape[2]] = F
-        return GreedyState(np.ascontiguousarray(M), P, V, F_store, F.shape[2])
+        return self._start_state(M, V, ex.cand_factor)
 
     def derive_slots(self, cov: np.ndarray) -> np.ndarray:
         """Fill the slots that are linear functionals of other slots (none here; the net-value

@@ -59,7 +59,12 @@ from probewise.core.greedy import (  # noqa: F401 - public here as before
     greedy_run,
 )
 from probewise.core.grid import EvaluationGrid
-from probewise.core.local_conditioning import LocalState, estimated_cells, use_local
+from probewise.core.local_conditioning import (
+    ExactStateNeededError,
+    LocalState,
+    estimated_cells,
+    use_local,
+)
 from probewise.core.model import CORRELATED_OPTIMISER_PROBLEM, Layout, PlannedProbe, Project
 from probewise.core.optimise_requirements import (
     candidate_tracker,
@@ -240,7 +245,11 @@ def prepare_optimisation(
     if net_value:
         from probewise.core.netvalue import ValueProblem
 
-        problem = ValueProblem(analysis, cand, grid, project)
+        try:
+            problem = ValueProblem(analysis, cand, grid, project)
+        except ExactStateNeededError:  # a choice element's average needs every reading
+            what = "valuing a choice element"
+            raise OptimiseError(analysis.baseline.exact_needed(what), "existing") from None
     else:
         problem = GreedyProblem(analysis, cand, build_targets(analysis, grid))
     # one pricing with evaluation and the schedule (probewise.core.programme)

@@ -85,3 +85,34 @@ def test_factor_of_a_covariance_reproduces_it():
     indefinite = psd - 3.0 * np.eye(12)
     f2 = factor_symmetric(indefinite)
     assert np.linalg.eigvalsh(f2 @ f2.T).min() >= -1e-9
+
+
+def test_net_value_with_a_choice_element_beyond_exact_is_refused_naming_existing(monkeypatch):
+    """A choice element's average is conditioned on every reading at once (docs/model.md
+    "Many readings"): beyond the thresholds the net-value optimiser refuses, naming `existing`."""
+    import json
+    from pathlib import Path
+
+    from probewise.app.to_core import to_core
+    from probewise.core.optimise import OptimiseError
+    from probewise.io.model_file import validate_model
+
+    root = Path(__file__).resolve().parents[2]
+    model = json.loads((root / "tests" / "data" / "tiny-model.json").read_text())
+    square = [[[110, 40], [190, 40], [190, 70], [110, 70], [110, 40]]]
+    model["elements"] = [  # invented
+        {
+            "name": "Culvert bed",
+            "geometry": {"type": "Polygon", "coordinates": square},
+            "base_of": "Alluvial clay",
+            "adverse": "deeper",
+            "consequence": {"kind": "choice", "threshold_depth_m": 5.0,
+                            "cheaper_cost": 20000, "robust_cost": 30000},
+        }
+    ]  # fmt: skip
+    project = to_core(validate_model(model))
+    monkeypatch.setattr(local_conditioning, "EXACT_MAX_READINGS", 0)
+    options = OptimiseOptions(budget=float("inf"), objective="net-value")
+    with pytest.raises(OptimiseError, match="valuing a choice element") as caught:
+        prepare_optimisation(project, options)
+    assert caught.value.field == "existing"
