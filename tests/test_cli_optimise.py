@@ -43,6 +43,14 @@ OPTION_KEYS = {
 }
 
 
+def test_search_cells_set_the_greedy_grid():
+    default = json.loads(run_cli("optimise", str(TINY), "--budget", "9000", "--json").stdout)
+    run = run_cli("optimise", str(TINY), "--budget", "9000", "--search-cells", "100", "--json")
+    assert run.returncode == 0, run.stderr
+    doc = json.loads(run.stdout)
+    assert doc["optimisation"]["cells"] <= 100 < default["optimisation"]["cells"]
+
+
 def test_optimise_json_has_the_documented_fields():
     budget = 9000.0
     run = run_cli("optimise", str(TINY), "--budget", str(budget), "--json")
@@ -131,6 +139,9 @@ def test_optimise_writes_the_layout_into_a_model_file(tmp_path):
         (["--budget", "9000", "--candidate-spacing", "9999"], "--candidate-spacing"),
         (["--budget", "9000", "--min-spacing", "-1"], "--min-spacing"),
         (["--budget", "9000", "--name", " "], "--name"),
+        (["--budget", "9000", "--search-cells", "50"], "--search-cells"),
+        (["--budget", "9000", "--search-cells", "200.5"], "--search-cells"),
+        (["--budget", "9000", "--search-cells", "many"], "--search-cells"),
     ],
 )
 def test_optimise_bad_input_exits_2_with_one_line(args, field):

@@ -17,7 +17,9 @@ OPTION_OF_FIELD = {
     "candidate_spacing_m": "--candidate-spacing",
     "min_spacing_m": "--min-spacing",
     "objective": "--objective",
+    "max_cells": "--search-cells",
 }
+MAX_SEARCH_CELLS = 10_000  # the greedy keeps candidates x cells x boundaries: about 0.8 GB here
 
 
 def add_optimiser_arguments(parser: argparse.ArgumentParser) -> None:
@@ -34,6 +36,13 @@ def add_optimiser_arguments(parser: argparse.ArgumentParser) -> None:
         "--min-spacing",
         metavar="M",
         help="least distance between chosen probes, m (default: the candidate spacing)",
+    )
+    parser.add_argument(
+        "--search-cells",
+        metavar="N",
+        help="most cells the greedy search scores on; the site's grid is coarsened by a whole "
+        f"factor to fit (default 1500, at most {MAX_SEARCH_CELLS}); finalists are scored on "
+        "the full grid",
     )
 
 
@@ -70,7 +79,21 @@ def optimiser_options(args: argparse.Namespace, project, budget: float):
             args.candidate_spacing, "--candidate-spacing", "spacing in m"
         ),
         min_spacing_m=parse_positive(args.min_spacing, "--min-spacing", "spacing in m"),
+        **search_cells(args),
     )
+
+
+def search_cells(args: argparse.Namespace) -> dict:
+    """``{"max_cells": N}`` from ``--search-cells`` (empty when not given); else InputError."""
+    text = getattr(args, "search_cells", None)
+    if text is None:
+        return {}
+    cells = read_number(text, "--search-cells", sign="positive", what="number of cells")
+    if cells != int(cells) or not 100 <= cells <= MAX_SEARCH_CELLS:
+        raise InputError(
+            "--search-cells", f"must be a whole number from 100 to {MAX_SEARCH_CELLS}, not {text}"
+        )
+    return {"max_cells": int(cells)}
 
 
 def optimiser_input_error(exc) -> InputError:
