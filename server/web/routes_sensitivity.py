@@ -3,7 +3,8 @@
 Both pages include their fragment (``_compare_sensitivity.html``, ``_schedule_sensitivity.html``)
 without numbers first: it loads itself with ``hx-trigger="load"`` from the routes here, since
 every changed model is a whole ranking again. ``?fit=1`` adds the model fitted to the existing
-readings (the fit the Readings page computes, shared through the revision's results).
+readings (the fit the Readings page computes, shared through the revision's results). Beyond
+exact conditioning (many readings) the fragment offers a button instead (``?go=1`` ranks).
 """
 
 from __future__ import annotations
@@ -14,6 +15,7 @@ import sqlite_utils
 from fastapi import APIRouter, Request
 from starlette.responses import Response
 
+from probewise.app.evaluation_jobs import evaluation_is_slow, existing_readings
 from probewise.app.fit import adopt_fit, fit_json, project_fit
 from probewise.app.results import ProjectResults, project_results
 from probewise.app.sensitivity import Sensitivity, ranking_sensitivity, sensitivity_sentence
@@ -42,7 +44,7 @@ def sensitivity_of(entry: ProjectResults, with_fit: bool) -> Sensitivity:
 
 
 def sensitivity_context(
-    db: sqlite_utils.Database, project_id: int, with_fit: bool, where: str
+    db: sqlite_utils.Database, project_id: int, with_fit: bool, where: str, go: bool = True
 ) -> dict[str, Any]:
     entry = project_results(db, project_id)
     context: dict[str, Any] = {
@@ -57,6 +59,14 @@ def sensitivity_context(
     if not entry.layout_names:
         context["sensitivity_problem"] = "there is no option to rank"
         return context
+    if not (go or with_fit) and evaluation_is_slow(entry.project):
+        # every changed model is a whole evaluation again (minutes with many readings): a
+        # page load must not start that unasked and keep the server busy
+        readings = existing_readings(entry.project)
+        context["sensitivity_offer"] = (
+            f"{readings:,} existing readings make each changed model a long evaluation"
+        )
+        return context
     try:
         sens = sensitivity_of(entry, with_fit)
     except InputError as exc:
@@ -70,12 +80,16 @@ def sensitivity_context(
 
 
 @router.get("/projects/{project_id}/compare/sensitivity")
-def compare_sensitivity(request: Request, project_id: int, db: Db, fit: bool = False) -> Response:
-    context = sensitivity_context(db, project_id, fit, "compare")
+def compare_sensitivity(
+    request: Request, project_id: int, db: Db, fit: bool = False, go: bool = False
+) -> Response:
+    context = sensitivity_context(db, project_id, fit, "compare", go)
     return render(request, FRAGMENTS["compare"], context)
 
 
 @router.get("/projects/{project_id}/schedule/sensitivity")
-def schedule_sensitivity(request: Request, project_id: int, db: Db, fit: bool = False) -> Response:
-    context = sensitivity_context(db, project_id, fit, "schedule")
+def schedule_sensitivity(
+    request: Request, project_id: int, db: Db, fit: bool = False, go: bool = False
+) -> Response:
+    context = sensitivity_context(db, project_id, fit, "schedule", go)
     return render(request, FRAGMENTS["schedule"], context)

@@ -277,3 +277,20 @@ def test_the_poll_sends_the_browser_only_to_this_projects_pages(
         headers=htmx(),
     )
     assert kept.headers.get("hx-redirect") == f"/projects/{project_id}/schedule?layout=A"
+
+
+def test_sensitivity_of_a_large_project_is_ranked_on_request_not_on_load(
+    client: TestClient, large
+):
+    """Each changed model is a whole evaluation again: beyond exact conditioning the fragment
+    offers a button (``?go=1``) instead of ranking on every page load."""
+    project_id, model = large
+    offer = client.get(f"/projects/{project_id}/schedule/sensitivity")
+    assert offer.status_code == 200
+    assert "Not ranked yet" in offer.text and "sensitivity?go=1" in offer.text
+    assert "sensitivity-table" not in offer.text
+    assert f"{readings_of(model):,} existing readings" in offer.text
+    ranked = client.get(f"/projects/{project_id}/compare/sensitivity?go=1")
+    assert ranked.status_code == 200 and "sensitivity-table" in ranked.text
+    small = client.get("/projects/1/compare/sensitivity")  # the demo: ranked on load
+    assert "sensitivity-table" in small.text and "Not ranked yet" not in small.text
