@@ -279,9 +279,7 @@ def test_the_poll_sends_the_browser_only_to_this_projects_pages(
     assert kept.headers.get("hx-redirect") == f"/projects/{project_id}/schedule?layout=A"
 
 
-def test_sensitivity_of_a_large_project_is_ranked_on_request_not_on_load(
-    client: TestClient, large
-):
+def test_sensitivity_of_a_large_project_is_ranked_on_request_not_on_load(client: TestClient, large):
     """Each changed model is a whole evaluation again: beyond exact conditioning the fragment
     offers a button (``?go=1``) instead of ranking on every page load."""
     project_id, model = large
