@@ -9,7 +9,6 @@ from dataclasses import dataclass
 from probewise.core.analysis import ProjectAnalysis
 from probewise.core.evaluate import Evaluation, evaluate_project
 from probewise.core.grid import EmptyGridError
-from probewise.core.local_conditioning import ExactStateNeededError
 from probewise.core.model import Layout, Project
 from probewise.core.value import EmptyElementError, LayoutValue, ValueEvaluator, layout_values
 from probewise.errors import InputError
@@ -44,9 +43,6 @@ def values_of_evaluation(
         by_layout = layout_values(values, analysis, chosen, evaluation.layouts)
     except EmptyElementError as exc:
         raise no_cell_error(exc.index, exc.name) from None
-    except ExactStateNeededError:  # many readings: the baseline is local
-        what = "valuing a choice element"
-        raise InputError("existing", analysis.baseline.exact_needed(what)) from None
     return ValueReport(
         project.currency,
         tuple(values.element_costs_now()),

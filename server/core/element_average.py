@@ -184,6 +184,11 @@ def average_cross_covariance(
     return np.einsum("ml,lm->m", load_obs, terms[:, spot_of])
 
 
+def element_extent(average: ElementAverage) -> tuple[np.ndarray, np.ndarray]:
+    """Corners ``(2,), (2,)`` of the rectangle holding the element's sub-points."""
+    return average.sub_xy.min(axis=0), average.sub_xy.max(axis=0)
+
+
 def condition_average(
     state: PosteriorState, average: ElementAverage, known_cov: np.ndarray | None = None
 ) -> tuple[float, float]:
@@ -191,9 +196,10 @@ def condition_average(
 
     Parameters
     ----------
-    state : PosteriorState
+    state : PosteriorState or LocalState
         Its first block holds the known readings (they move the mean); later blocks only
-        reduce the variance.
+        reduce the variance. A local state (many readings) conditions the average exactly on
+        the readings nearest the element (``LocalState.exact_near``; ``known_cov`` unused).
     average : ElementAverage
     known_cov : (m0,) float, optional
         Covariance of the first block with the average, if already computed.
@@ -205,6 +211,9 @@ def condition_average(
         average: w = L^-1 c, var = prior var - w'w (>= 0), mean = prior mean + w0' r0 (r0 the
         whitened residual of the known readings).
     """
+    exact_near = getattr(state, "exact_near", None)
+    if exact_near is not None:  # many readings: those nearest the element (docs/model.md)
+        return condition_average(exact_near(*element_extent(average)), average)
     blocks = []
     for b, (obs, f_obs) in enumerate(zip(state.observations, state.fields, strict=True)):
         if b == 0 and known_cov is not None:

@@ -315,6 +315,14 @@ class LocalState:
         """The readings of ``index`` a tile spanning ``lo``-``hi`` is conditioned on."""
         return index.nearest(lo, hi, self.nearest_spots, self.reach_m)
 
+    def exact_near(self, lo: np.ndarray, hi: np.ndarray) -> PosteriorState:
+        """The exact state on the readings a tile spanning ``lo``-``hi`` is conditioned on:
+        its nearest existing spots, then each planned block's nearest."""
+        state = condition(self.ground, self.origin, self.nearest(self.existing, lo, hi))
+        for block in self.planned:
+            state = state.extend(self.nearest(SpotIndex(block), lo, hi))
+        return state
+
     def exact_needed(self, what: str = "this computation") -> str:
         """Why ``what`` cannot run on this state, in words."""
         return EXACT_NEEDED.format(readings=self.known.size, what=what)

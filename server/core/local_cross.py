@@ -37,7 +37,7 @@ from probewise.core.local_conditioning import (
     one_blas_thread,
     take_blocks,
 )
-from probewise.core.posterior import PosteriorState, condition
+from probewise.core.posterior import PosteriorState
 
 EIGEN_FLOOR = 1e-10  # eigenvalues below this share of the largest are dropped from the factor
 
@@ -61,11 +61,6 @@ class LocalExplained:
     cand_cells: np.ndarray
     cell_var_m2: np.ndarray
     cand_factor: np.ndarray
-
-
-def tile_state(state: LocalState, lo: np.ndarray, hi: np.ndarray) -> PosteriorState:
-    """The exact state on the readings of the existing spots nearest a rectangle."""
-    return condition(state.ground, state.origin, state.nearest(state.existing, lo, hi))
 
 
 def whiten(state_t: PosteriorState, cross: np.ndarray) -> np.ndarray:
@@ -123,7 +118,7 @@ def _explain(state, cand_xy, cand_fields, blocks, on_progress) -> LocalExplained
     half = 0.5 * blocks.spacing_m
     for idx in cells:
         tile = take_blocks(blocks, idx)
-        state_t = tile_state(state, tile.xy.min(axis=0) - half, tile.xy.max(axis=0) + half)
+        state_t = state.exact_near(tile.xy.min(axis=0) - half, tile.xy.max(axis=0) + half)
         obs, f_obs = state_t.observations[0], state_t.fields[0]
         w_t = whiten(state_t, block_cross_covariance(ground, obs.xy, obs.boundary, f_obs, tile))
         w_c = cand_white(state_t)
@@ -136,7 +131,7 @@ def _explain(state, cand_xy, cand_fields, blocks, on_progress) -> LocalExplained
             on_progress(done / total)
     among = np.zeros((L * B, L * B))
     for idx in cands:
-        state_t = tile_state(state, cand_xy[idx].min(axis=0), cand_xy[idx].max(axis=0))
+        state_t = state.exact_near(cand_xy[idx].min(axis=0), cand_xy[idx].max(axis=0))
         w = cand_white(state_t).transpose(0, 2, 1).reshape(-1, L * B)  # index l B + b
         rows = (idx[:, None] * B + np.arange(B)[None, :]).reshape(-1)
         among[rows] = w[:, rows].T @ w

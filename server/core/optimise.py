@@ -60,7 +60,6 @@ from probewise.core.greedy import (  # noqa: F401 - public here as before
 )
 from probewise.core.grid import EvaluationGrid
 from probewise.core.local_conditioning import (
-    ExactStateNeededError,
     LocalState,
     estimated_cells,
     use_local,
@@ -245,11 +244,7 @@ def prepare_optimisation(
     if net_value:
         from probewise.core.netvalue import ValueProblem
 
-        try:
-            problem = ValueProblem(analysis, cand, grid, project)
-        except ExactStateNeededError:  # a choice element's average needs every reading
-            what = "valuing a choice element"
-            raise OptimiseError(analysis.baseline.exact_needed(what), "existing") from None
+        problem = ValueProblem(analysis, cand, grid, project)
     else:
         problem = GreedyProblem(analysis, cand, build_targets(analysis, grid))
     # one pricing with evaluation and the schedule (probewise.core.programme)

@@ -456,8 +456,11 @@ class ValueEvaluator:
             )  # fmt: skip
             return _Setup(element, cells, lo_e, hi_e, cost)
         avg = element_average(self.project.ground, self.grid, cells, k)
-        known = self.state.observations[0]
-        known_cov = average_cross_covariance(self.project.ground, avg, known, self.state.fields[0])
+        known_cov = None  # a local state (many readings) conditions near the element instead
+        if not hasattr(self.state, "exact_near"):
+            known = self.state.observations[0]
+            fields = self.state.fields[0]
+            known_cov = average_cross_covariance(self.project.ground, avg, known, fields)
         mean0, var0 = condition_average(self.state, avg, known_cov)
         p = p_cheaper_allowed(
             mean0, var0, var0, element.design_fractile, element.adverse, con.threshold_depth_m

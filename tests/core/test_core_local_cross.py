@@ -87,14 +87,15 @@ def test_factor_of_a_covariance_reproduces_it():
     assert np.linalg.eigvalsh(f2 @ f2.T).min() >= -1e-9
 
 
-def test_net_value_with_a_choice_element_beyond_exact_is_refused_naming_existing(monkeypatch):
-    """A choice element's average is conditioned on every reading at once (docs/model.md
-    "Many readings"): beyond the thresholds the net-value optimiser refuses, naming `existing`."""
+def test_net_value_with_a_choice_element_runs_locally_as_exact_with_every_spot(monkeypatch):
+    """The net-value search with a choice element beyond the thresholds: with every spot in
+    reach (the tiny model's few probes) it picks what the exact search picks and values the
+    layout the same (docs/model.md "Many readings")."""
     import json
     from pathlib import Path
 
     from probewise.app.to_core import to_core
-    from probewise.core.optimise import OptimiseError
+    from probewise.core.optimise import optimise
     from probewise.io.model_file import validate_model
 
     root = Path(__file__).resolve().parents[2]
@@ -111,8 +112,15 @@ def test_net_value_with_a_choice_element_beyond_exact_is_refused_naming_existing
         }
     ]  # fmt: skip
     project = to_core(validate_model(model))
+    options = OptimiseOptions(
+        budget=float("inf"), objective="net-value", candidate_spacing_m=40.0,
+        warm_start=False, refine_sweeps=0,
+    )  # fmt: skip
+    exact = optimise(project, options)
     monkeypatch.setattr(local_conditioning, "EXACT_MAX_READINGS", 0)
-    options = OptimiseOptions(budget=float("inf"), objective="net-value")
-    with pytest.raises(OptimiseError, match="valuing a choice element") as caught:
-        prepare_optimisation(project, options)
-    assert caught.value.field == "existing"
+    local = optimise(project, options)
+    assert isinstance(prepare_optimisation(project, options).analysis.baseline, LocalState)
+    assert [(p.x, p.y, p.method) for p in local.layout.probes] == [
+        (p.x, p.y, p.method) for p in exact.layout.probes
+    ]
+    assert local.layout.probes  # a layout that pays for itself
