@@ -74,19 +74,44 @@ def boundary_covariance(
         return np.zeros((len(bnd_a), len(bnd_b)))
     h_spots = pairwise_distance_m(spots_a, spots_b)  # (ua, ub)
     s_a, s_b = fields_a.std_m[first_a], fields_b.std_m[first_b]
+    cum = cumulative_unit_covariance(ground, h_spots, s_a, s_b, levels)
     ua, ub = h_spots.shape
-    cum = np.empty((levels, ua, ub))
-    acc = np.zeros((ua, ub))
-    for i in range(levels):
-        rho = correlate_unit(ground.units[i].correlation, h_spots)
-        rho *= s_a[:, i, None]
-        rho *= s_b[None, :, i]
-        acc += rho
-        cum[i] = acc
     flat = np.minimum(bnd_a[:, None], bnd_b[None, :]) * (ua * ub)
     flat += (spot_a * ub)[:, None]
     flat += spot_b[None, :]
     return cum.reshape(-1).take(flat)
+
+
+def cumulative_unit_covariance(
+    ground: GroundModel, h_m: np.ndarray, std_a: np.ndarray, std_b: np.ndarray, levels: int
+) -> np.ndarray:
+    """Covariance of boundary ``i`` at one set of places with boundary ``i`` at another, for
+    the shallowest ``levels`` boundaries, built one unit at a time.
+
+    Parameters
+    ----------
+    h_m : (na, nb) float
+        Distances between the places.
+    std_a, std_b : (na, B), (nb, B) float
+        Thickness std of every unit at each place.
+    levels : int
+        Boundaries wanted (0..levels-1).
+
+    Returns
+    -------
+    (levels, na, nb) float
+        ``cum[i] = sum over units i' <= i of s_i'(a) s_i'(b) rho_i'(h)``: the covariance of
+        boundaries j and k is ``cum[min(j, k)]``.
+    """
+    cum = np.empty((levels, *h_m.shape))
+    acc = np.zeros(h_m.shape)
+    for i in range(levels):
+        rho = correlate_unit(ground.units[i].correlation, h_m)
+        rho *= std_a[:, i, None]
+        rho *= std_b[None, :, i]
+        acc += rho
+        cum[i] = acc
+    return cum
 
 
 def distinct_spots(xy_obs: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -150,27 +175,17 @@ def cross_covariance_all(
     m, n, B = len(bnd_obs), fields_pts.n_points, ground.n_boundaries
     if m == 0:
         return np.empty((0, B, n))
-    # A probe reads several boundaries at one spot: correlate each distinct spot once.
-    # cum[s, i] = sum over units i' <= i of s_i'(spot) s_i'(pt) rho_i'(h); a reading of
-    # boundary j then has covariance cum[s, min(j, k)] with boundary k at the points.
+    # A probe reads several boundaries at one spot: correlate each distinct spot once; a
+    # reading of boundary j has covariance cum[min(j, k), s] with boundary k at the points.
     spots, spot_of, first = distinct_spots(xy_obs)
     s_spot = fields_obs.std_m[first]  # (u, B); fields depend on the spot only
-    deepest = np.full(len(spots), -1)
-    np.maximum.at(deepest, spot_of, bnd_obs)
     h = pairwise_distance_m(spots, xy_pts)  # (u, n)
     if fields_obs.coreg is not None:
         return _cross_coregionalised(ground, bnd_obs, spot_of, fields_obs, h, fields_pts)
-    cum = np.empty((len(spots), B, n))
-    acc = np.zeros((len(spots), n))
-    for i in range(B):
-        if (deepest >= i).any():
-            rho = correlate_unit(ground.units[i].correlation, h)
-            rho *= s_spot[:, i, None]
-            rho *= fields_pts.std_m[None, :, i]
-            acc += rho
-        cum[:, i, :] = acc
+    # level min(j, k) <= j never passes the deepest boundary read
+    cum = cumulative_unit_covariance(ground, h, s_spot, fields_pts.std_m, int(bnd_obs.max()) + 1)
     level = np.minimum(bnd_obs[:, None], np.arange(B)[None, :])  # (m, B)
-    return cum[spot_of[:, None], level]
+    return cum[level, spot_of[:, None]]
 
 
 def _cross_coregionalised(ground, bnd_obs, spot_of, fields_obs, h, fields_pts):
