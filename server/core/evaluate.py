@@ -234,10 +234,14 @@ class GridEvaluator:
         """The baseline's cell prediction. A local state (many readings) predicts ``layouts``
         in the same sweep of its tiles, so each tile is conditioned on the existing readings
         once rather than once per layout; ``on_progress`` gets the share of tiles done."""
-        baseline = self.analysis.baseline
-        if getattr(baseline, "predict_cells_alternatives", None) is None or not layouts:
-            return predict_cells(baseline, self.blocks)
+        if not (self.sweeps_tiles and layouts):
+            return predict_cells(self.analysis.baseline, self.blocks)
         return self._sweep(layouts, on_progress)
+
+    @property
+    def sweeps_tiles(self) -> bool:
+        """True when the baseline is conditioned tile by tile (many readings)."""
+        return hasattr(self.analysis.baseline, "predict_cells_alternatives")
 
     def _sweep(
         self, layouts: Sequence[Layout], on_progress: Callable[[float], None] | None = None
@@ -258,9 +262,8 @@ class GridEvaluator:
     def evaluate_layouts(self, layouts: Sequence[Layout]) -> list[LayoutResult]:
         """Metrics of several layouts; a local state predicts them in one sweep of its
         tiles instead of one per layout."""
-        local = getattr(self.analysis.baseline, "predict_cells_alternatives", None)
         todo = [layout for layout in layouts if id(layout) not in self._swept]
-        if local is not None and len(todo) > 1:
+        if self.sweeps_tiles and len(todo) > 1:
             self._sweep(todo)
         return [self.evaluate_layout(layout) for layout in layouts]
 

@@ -313,7 +313,13 @@ class LocalState:
 
     def nearest(self, index: SpotIndex, lo: np.ndarray, hi: np.ndarray) -> Observations:
         """The readings of ``index`` a tile spanning ``lo``-``hi`` is conditioned on."""
-        return index.nearest(lo, hi, self.nearest_spots, self.reach_m)
+        return take_observations(index.obs, self.nearest_index(index, lo, hi))
+
+    def nearest_index(self, index: SpotIndex, lo: np.ndarray, hi: np.ndarray) -> np.ndarray:
+        """:meth:`nearest` as indices ``(r,)`` into ``index.obs``, ascending."""
+        return nearest_spot_readings(
+            index.spots, index.spot_of, lo, hi, self.nearest_spots, self.reach_m
+        )
 
     def exact_near(self, lo: np.ndarray, hi: np.ndarray) -> PosteriorState:
         """The exact state on the readings a tile spanning ``lo``-``hi`` is conditioned on:
@@ -432,12 +438,8 @@ class LocalState:
             xy_t, f_t, pm_t, pv_t, cross, half = tile_targets(idx)
             lo, hi = xy_t.min(axis=0) - half, xy_t.max(axis=0) + half
             if state_t is None:  # first solve, or a tile not kept within the budget
-                state_t = condition(self.ground, self.origin, self.nearest(self.existing, lo, hi))
-                if done:  # the planned readings the base had seen, unkept with it
-                    old = SpotIndex(take_observations(planned_all, np.arange(done)))
-                    state_t = state_t.extend(self.nearest(old, lo, hi))
-                pred_t = None
-            if new.obs.size:
+                state_t, pred_t = self.exact_near(lo, hi), None  # every planned block too
+            elif new.obs.size:
                 state_t = state_t.extend(self.nearest(new, lo, hi))
             pred_t = state_t.predict_targets(xy_t, f_t, pm_t, pv_t, cross, pred_t)
             moments[0][0][idx], moments[0][1][idx] = pred_t.mean_m, pred_t.var_m2
@@ -472,13 +474,3 @@ class SpotIndex:
     def __init__(self, obs: Observations):
         self.obs = obs
         self.spots, self.spot_of, _ = distinct_spots(obs.xy)
-
-    def nearest(
-        self, lo: np.ndarray, hi: np.ndarray, count: int, reach_m: float = math.inf
-    ) -> Observations:
-        """The readings at the ``count`` spots nearest the rectangle ``lo``-``hi`` (none
-        farther than ``reach_m``)."""
-        if self.obs.size == 0:
-            return self.obs
-        pick = nearest_spot_readings(self.spots, self.spot_of, lo, hi, count, reach_m)
-        return take_observations(self.obs, pick)

@@ -33,7 +33,6 @@ from probewise.core.local_conditioning import (
     MAX_TILE_TARGETS,
     LocalState,
     group_tiles,
-    nearest_spot_readings,
     one_blas_thread,
     take_observations,
     use_local,
@@ -218,9 +217,7 @@ def _predict_tile(ground, origin, obs, stage, local, tile, out) -> None:
     """One tile of :func:`predict_locally`, written into ``out``."""
     index = local.existing
     lo, hi = index.spots[tile].min(axis=0), index.spots[tile].max(axis=0)
-    near = nearest_spot_readings(
-        index.spots, index.spot_of, lo, hi, local.nearest_spots, local.reach_m
-    )
+    near = local.nearest_index(index, lo, hi)
     mine = np.isin(index.spot_of[near], tile)
     sub_stage = None if stage is None else stage[near]
     got = predict_readings(ground, origin, take_observations(obs, near), sub_stage)
